@@ -1,0 +1,1 @@
+"""The command-line interface: the only layer that imports Typer and Rich."""

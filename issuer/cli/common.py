@@ -1,0 +1,126 @@
+"""What every command shares: option types, consoles, JSON output, error handling.
+
+Commands stay thin: parse options, call one library function, render the result.
+Heavy libraries (numpy, Alembic, reportlab) are imported inside the functions that
+need them so that a one-code command starts quickly.
+"""
+
+from __future__ import annotations
+
+import json
+import sys
+from typing import Annotated, Any, NoReturn, Optional
+
+import typer
+
+try:  # recent Typer releases carry their own copy of click
+    from typer._click import exceptions as click_exceptions
+    from typer._click.core import Context
+except ImportError:  # pragma: no cover - older Typer uses the click package
+    from click import Context  # type: ignore[no-redef]
+    from click import exceptions as click_exceptions  # type: ignore[no-redef]
+from typer.core import TyperGroup
+
+from issuer.errors import IssuerError
+
+JsonOption = Annotated[
+    bool, typer.Option("--json", help="Print machine-readable JSON on stdout, and nothing else there.")
+]
+DbOption = Annotated[
+    Optional[str],
+    typer.Option(
+        "--db",
+        help="Register database: a SQLite file path or an SQLAlchemy URL "
+        "(default: ISSUER_DB, then the config file, then issuer's file in your data directory).",
+        show_default=False,
+    ),
+]
+ActorOption = Annotated[
+    Optional[str],
+    typer.Option(
+        "--actor",
+        help="Who is acting, for the log (default: ISSUER_ACTOR, then your OS user name).",
+        show_default=False,
+    ),
+]
+
+CHECK_CAUTION = "A check character catches mistakes, not fraud: anyone can compute a valid one."
+SCATTER_CAUTION = (
+    "Scattered numbers are hard to guess, not secret: treat them as public once printed."
+)
+PERSONAL_DATA_CAUTION = (
+    "A member register holds personal data: local law and your organisation's policy "
+    "decide what may be stored and for how long."
+)
+
+
+class UserError(click_exceptions.ClickException):
+    """A user's mistake: one line on stderr, exit code 2."""
+
+    exit_code = 2
+
+    def show(self, file: Any = None) -> None:  # noqa: ARG002 - click's signature
+        typer.echo(f"issuer: {self.format_message()}", err=True)
+
+
+class IssuerGroup(TyperGroup):
+    """Root command group: turns library errors and usage errors into one line."""
+
+    def invoke(self, ctx: Context) -> Any:
+        try:
+            return super().invoke(ctx)
+        except IssuerError as exc:
+            raise UserError(exc.message) from None
+
+    def main(self, *args: Any, standalone_mode: bool = True, **kwargs: Any) -> Any:
+        try:
+            result = super().main(*args, standalone_mode=False, **kwargs)
+        except click_exceptions.NoArgsIsHelpError as exc:
+            typer.echo(exc.ctx.get_help() if exc.ctx else str(exc))
+            return _finish(standalone_mode, 0)
+        except click_exceptions.ClickException as exc:
+            message = exc.format_message().splitlines()[0] if exc.format_message() else "error"
+            hint = ""
+            if isinstance(exc, click_exceptions.UsageError) and exc.ctx is not None:
+                hint = f" (see '{exc.ctx.command_path} --help')"
+            typer.echo(f"issuer: {message}{hint}", err=True)
+            return _finish(standalone_mode, exc.exit_code)
+        except typer.Exit as exc:
+            return _finish(standalone_mode, exc.exit_code)
+        except typer.Abort:
+            typer.echo("issuer: aborted", err=True)
+            return _finish(standalone_mode, 130)
+        if isinstance(result, int) and not isinstance(result, bool):
+            return _finish(standalone_mode, result)
+        return _finish(standalone_mode, 0) if standalone_mode else result
+
+
+def _finish(standalone_mode: bool, code: int) -> Any:
+    if standalone_mode:
+        sys.exit(code)
+    return code
+
+
+def print_json(data: Any) -> None:
+    """JSON on stdout, exactly, with nothing else around it."""
+    sys.stdout.write(json.dumps(data, ensure_ascii=False, default=str))
+    sys.stdout.write("\n")
+    sys.stdout.flush()
+
+
+def fail(message: str, code: int = 2) -> NoReturn:
+    """Stop with one line on stderr."""
+    typer.echo(f"issuer: {message}", err=True)
+    raise typer.Exit(code)
+
+
+def console() -> Any:
+    from rich.console import Console
+
+    return Console(highlight=False)
+
+
+def err_console() -> Any:
+    from rich.console import Console
+
+    return Console(stderr=True, highlight=False)

@@ -1,0 +1,94 @@
+"""Settings: built-in defaults < config file < environment < command line.
+
+The documented defaults ship inside the package (``issuer/bundled_config/issuer.toml``,
+from the repository's ``config/``). A user's own file is ``issuer.toml`` in the user
+config directory (``platformdirs.user_config_dir("issuer")``), or the file named by
+``ISSUER_CONFIG``. Environment: ``ISSUER_DB``, ``ISSUER_ACTOR``.
+"""
+
+from __future__ import annotations
+
+import getpass
+import os
+import tomllib
+from dataclasses import dataclass, field
+from importlib import resources
+from pathlib import Path
+from typing import Any
+
+from issuer.errors import InvalidFormat
+
+APP_NAME = "issuer"
+
+
+def bundled_config_text() -> str:
+    return resources.files("issuer.bundled_config").joinpath("issuer.toml").read_text("utf-8")
+
+
+def user_config_path() -> Path:
+    explicit = os.environ.get("ISSUER_CONFIG")
+    if explicit:
+        return Path(explicit)
+    from platformdirs import user_config_dir
+
+    return Path(user_config_dir(APP_NAME)) / "issuer.toml"
+
+
+def default_database_path() -> Path:
+    from platformdirs import user_data_dir
+
+    return Path(user_data_dir(APP_NAME)) / "register.sqlite"
+
+
+def _merge(base: dict[str, Any], over: dict[str, Any]) -> dict[str, Any]:
+    merged = dict(base)
+    for key, value in over.items():
+        if isinstance(value, dict) and isinstance(merged.get(key), dict):
+            merged[key] = _merge(merged[key], value)
+        else:
+            merged[key] = value
+    return merged
+
+
+def _read_toml(text: str, where: str) -> dict[str, Any]:
+    try:
+        return tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise InvalidFormat(f"config file {where} is not valid TOML: {exc}") from None
+
+
+@dataclass(frozen=True)
+class Settings:
+    """The settings in force for one invocation."""
+
+    database: str
+    actor: str
+    raw: dict[str, Any] = field(default_factory=dict)
+
+    def section(self, name: str) -> dict[str, Any]:
+        value = self.raw.get(name, {})
+        return value if isinstance(value, dict) else {}
+
+
+def load_settings(*, database: str | None = None, actor: str | None = None) -> Settings:
+    """Resolve settings; arguments are the command line's values (``None`` = not given)."""
+    raw = _read_toml(bundled_config_text(), "(built-in)")
+    path = user_config_path()
+    if path.is_file():
+        raw = _merge(raw, _read_toml(path.read_text("utf-8"), str(path)))
+    register = raw.get("register", {})
+    chosen_db = (
+        database
+        or os.environ.get("ISSUER_DB")
+        or register.get("database")
+        or str(default_database_path())
+    )
+    chosen_actor = actor or os.environ.get("ISSUER_ACTOR") or register.get("actor") or _os_user()
+    return Settings(database=str(chosen_db), actor=str(chosen_actor), raw=raw)
+
+
+def _os_user() -> str:
+    try:
+        return getpass.getuser()
+    except (KeyError, OSError):
+        return "unknown"

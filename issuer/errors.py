@@ -1,0 +1,71 @@
+"""The exceptions issuer raises. Library code raises; only the CLI turns them into a
+one-line message and an exit code."""
+
+from __future__ import annotations
+
+
+class IssuerError(Exception):
+    """Base of every error a user can cause. ``str(error)`` is a one-line message."""
+
+    default_message = "issuer error"
+
+    def __init__(self, message: str | None = None) -> None:
+        super().__init__(message or self.default_message)
+
+    @property
+    def message(self) -> str:
+        return str(self.args[0])
+
+
+class InvalidFormat(IssuerError, ValueError):
+    """Text does not have the shape it must have."""
+
+    default_message = "the text does not have the expected format"
+
+
+class InvalidLength(InvalidFormat):
+    default_message = "the text has the wrong length"
+
+
+class InvalidComponent(InvalidFormat):
+    """A character outside the alphabet, a wrong prefix or suffix."""
+
+    default_message = "the text contains a character or part that is not allowed"
+
+
+class InvalidCheck(IssuerError, ValueError):
+    default_message = "the check character does not match"
+
+
+class UnknownName(IssuerError, ValueError):
+    """An unknown scheme, alphabet, layout or series key."""
+
+    default_message = "unknown name"
+
+
+class UnsupportedAlphabet(IssuerError, ValueError):
+    """A scheme asked to serve an alphabet it cannot serve."""
+
+    default_message = "the scheme cannot serve that alphabet"
+
+
+class RegisterError(IssuerError):
+    """A request the register refuses (exhausted series, voided code, clash, ...)."""
+
+    default_message = "the register refused the request"
+
+
+class NotFound(RegisterError):
+    default_message = "not found in the register"
+
+
+class Conflict(RegisterError):
+    default_message = "the request conflicts with the register's contents"
+
+
+class Exhausted(RegisterError):
+    default_message = "the series has no numbers left"
+
+
+class PermissionDenied(RegisterError):
+    default_message = "the database refused this act for the connected role"

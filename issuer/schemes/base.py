@@ -1,0 +1,133 @@
+"""The one interface every check-character method offers.
+
+A :class:`Scheme` is bound to the alphabet of the body it protects. The check
+character(s) come from :attr:`Scheme.check_alphabet`, which is the body alphabet or,
+where the method says so, a larger set (ISO/IEC 7064 MOD 11-2's ``X``).
+
+Values, not text, are the common currency: ``compute_values`` is the method itself;
+the text forms and the numpy bulk forms are derived here once.
+"""
+
+from __future__ import annotations
+
+from abc import ABC, abstractmethod
+from typing import TYPE_CHECKING, ClassVar, Sequence
+
+from issuer.alphabets import Alphabet
+from issuer.errors import InvalidCheck, InvalidLength, UnsupportedAlphabet
+
+if TYPE_CHECKING:
+    import numpy as np
+    import numpy.typing as npt
+
+    IntMatrix = npt.NDArray[np.int64]
+
+
+class Scheme(ABC):
+    """A check-character method bound to a body alphabet."""
+
+    #: the name scripts use (``--scheme``)
+    name: ClassVar[str]
+    #: one line for people
+    title: ClassVar[str]
+    #: the publication that defines the method
+    source: ClassVar[str]
+    #: the alphabet used when none is named
+    natural_alphabet: ClassVar[str]
+    #: how many check characters the method appends
+    check_length: ClassVar[int] = 1
+
+    def __init__(self, alphabet: Alphabet) -> None:
+        reason = self.unsupported_reason(alphabet)
+        if reason:
+            raise UnsupportedAlphabet(f"scheme {self.name} cannot serve alphabet {alphabet.name}: {reason}")
+        self.alphabet = alphabet
+        self.check_alphabet = self.make_check_alphabet(alphabet)
+
+    # -- what a concrete scheme provides ---------------------------------------
+    @classmethod
+    def unsupported_reason(cls, alphabet: Alphabet) -> str | None:
+        """Why this scheme cannot serve ``alphabet``, or ``None`` when it can."""
+        return None
+
+    def make_check_alphabet(self, alphabet: Alphabet) -> Alphabet:
+        """The set the check character(s) come from; the body alphabet by default."""
+        return alphabet
+
+    @abstractmethod
+    def compute_values(self, body: Sequence[int]) -> tuple[int, ...]:
+        """Check values (positions in :attr:`check_alphabet`) for a body's values."""
+
+    # -- derived text forms ------------------------------------------------------
+    def compute(self, body: str) -> str:
+        """The check character(s) for a canonical body."""
+        return self.check_alphabet.text(self.compute_values(self.alphabet.values(body)))
+
+    def append(self, body: str) -> str:
+        """The body followed by its check character(s)."""
+        return body + self.compute(body)
+
+    def split(self, code: str) -> tuple[str, str]:
+        """A canonical code split into (body, check)."""
+        if len(code) <= self.check_length:
+            raise InvalidLength(f"a code needs more than {self.check_length} character(s)")
+        cut = len(code) - self.check_length
+        return code[:cut], code[cut:]
+
+    def validate(self, code: str) -> str:
+        """Return ``code`` when its check character(s) match; raise otherwise."""
+        body, check = self.split(code)
+        self.alphabet.canonical(body)
+        self.check_alphabet.canonical(check)
+        if self.compute(body) != check:
+            raise InvalidCheck(f"the check character of {code} does not match")
+        return code
+
+    def is_valid(self, code: str) -> bool:
+        try:
+            self.validate(code)
+        except ValueError:
+            return False
+        return True
+
+    # -- bulk (numpy) ----------------------------------------------------------
+    def compute_bulk(self, bodies: IntMatrix) -> IntMatrix:
+        """Check values for an ``(n, length)`` matrix of body values: ``(n, check_length)``.
+
+        The default calls :meth:`compute_values` per row; fast schemes override it with
+        column-wise arithmetic.
+        """
+        import numpy as np
+
+        out = np.empty((bodies.shape[0], self.check_length), dtype=np.int64)
+        for i, row in enumerate(bodies.tolist()):
+            out[i] = self.compute_values(row)
+        return out
+
+    def verify_bulk(self, codes: IntMatrix) -> npt.NDArray[np.bool_]:
+        """For an ``(n, length + check_length)`` matrix of values, which rows are valid.
+
+        Body columns hold body-alphabet values and check columns check-alphabet values;
+        a negative value (a symbol outside the alphabet) makes its row invalid.
+        """
+        import numpy as np
+
+        cut = codes.shape[1] - self.check_length
+        ok = (codes >= 0).all(axis=1)
+        bodies = np.where(codes[:, :cut] < 0, 0, codes[:, :cut]).astype(np.int64)
+        checks = self.compute_bulk(bodies)
+        return ok & (checks == codes[:, cut:]).all(axis=1)
+
+    def code_matrix(self, codes: Sequence[str] | npt.NDArray[np.bytes_], width: int) -> IntMatrix:
+        """Equal-width canonical code texts as values, body and check columns each in
+        their own alphabet; -1 marks a symbol outside it."""
+        import numpy as np
+
+        raw = np.asarray(codes, dtype=f"S{width}").view(np.uint8).reshape(-1, width)
+        cut = width - self.check_length
+        body = self.alphabet.lookup_table()[raw[:, :cut]]
+        check = self.check_alphabet.lookup_table()[raw[:, cut:]]
+        return np.concatenate([body, check], axis=1).astype(np.int64)
+
+    def __repr__(self) -> str:
+        return f"<scheme {self.name} over {self.alphabet.name}>"
