@@ -124,3 +124,13 @@ def err_console() -> Any:
     from rich.console import Console
 
     return Console(stderr=True, highlight=False)
+
+
+def open_register_from_options(db: str | None, actor: str | None) -> Any:
+    """Open the register the settings point at (command line > environment > config)."""
+    from issuer.config import load_settings
+    from issuer.register.store import open_register
+
+    settings = load_settings(database=db, actor=actor)
+    timeout = int(settings.section("register").get("busy_timeout_ms", 15000))
+    return open_register(settings.database, actor=settings.actor, busy_timeout_ms=timeout)

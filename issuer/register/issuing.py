@@ -1,0 +1,273 @@
+"""Issuance: allocate base numbers, append check characters, store codes and the log
+entry, all in one transaction — a batch is issued whole or not at all.
+
+In-order series hand out ``start, start+1, ...``; the counter moves in the same
+transaction as the codes, so a rolled-back batch leaves no hole. Scattered series
+send the same counter through the series' keyed permutation (FF1 with cycle walking),
+so numbers look random yet can never collide and exhaustion is known exactly.
+Numbers brought in by import are skipped by both.
+"""
+
+from __future__ import annotations
+
+import hashlib
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass, field
+from typing import Any
+
+from sqlalchemy import insert, select
+from sqlalchemy.exc import IntegrityError
+from sqlalchemy.orm import Session
+
+from issuer.errors import Conflict, Exhausted, InvalidFormat
+from issuer.register.log import NewEntry, append_entry
+from issuer.register.models import ISSUED, SCATTERED, Batch, IssuedCode, Series
+from issuer.register.series import capacity, code_format, get_series, permutation
+from issuer.register.store import Register
+
+#: batches at least this large take the numpy path
+BULK_FROM = 64
+#: rows per INSERT round trip in bulk issuance
+CHUNK = 50_000
+
+Progress = Callable[[int], None]
+
+
+@dataclass(frozen=True)
+class IssuedInfo:
+    code: str
+    display: str
+    base: int
+    holder: str | None = None
+
+    def as_dict(self) -> dict[str, Any]:
+        return {"code": self.code, "display": self.display, "base": self.base, "holder": self.holder}
+
+
+@dataclass(frozen=True)
+class IssueResult:
+    batch: int
+    series: str
+    count: int
+    codes: list[IssuedInfo] = field(repr=False)
+    replayed: bool = False
+    protected: bool | None = None
+
+    @property
+    def first(self) -> IssuedInfo | None:
+        return self.codes[0] if self.codes else None
+
+    @property
+    def last(self) -> IssuedInfo | None:
+        return self.codes[-1] if self.codes else None
+
+
+def _bases_for(series: Series, counters: Sequence[int] | Any) -> list[int]:
+    """Base numbers for counters, in order."""
+    if series.mode == SCATTERED:
+        scatter = permutation(series)
+        if len(counters) >= BULK_FROM:
+            import numpy as np
+
+            return scatter.bases_for_counters(np.asarray(counters, dtype=np.int64)).tolist()  # type: ignore[no-any-return]
+        return [scatter.base_for_counter(int(k)) for k in counters]
+    start = series.range_start
+    return [start + int(k) for k in counters]
+
+
+def _taken(session: Session, series: Series, bases: Sequence[int]) -> set[int]:
+    """Which of ``bases`` the series already holds (only imports can be among them)."""
+    found: set[int] = set()
+    for at in range(0, len(bases), 500):
+        chunk = list(bases[at: at + 500])
+        found.update(
+            session.scalars(
+                select(IssuedCode.base).where(
+                    IssuedCode.series_id == series.id, IssuedCode.base.in_(chunk)
+                )
+            )
+        )
+    return found
+
+
+def allocate(session: Session, series: Series, count: int) -> list[int]:
+    """Take the next ``count`` free base numbers of a locked series and move its counter."""
+    if count < 1:
+        raise InvalidFormat("the count must be at least 1")
+    left = capacity(series) - series.code_count
+    if count > left:
+        raise Exhausted(
+            f"series {series.key} has {left} number{'s' if left != 1 else ''} left; "
+            f"{count} asked for, nothing issued"
+        )
+    counter = series.next_counter
+    if series.imported_count == 0:
+        bases = _bases_for(series, range(counter, counter + count))
+        counter += count
+    else:
+        bases = []
+        while len(bases) < count:
+            need = count - len(bases)
+            window = range(counter, min(counter + need, capacity(series)))
+            if not window:  # pragma: no cover - guarded by the capacity check above
+                raise Exhausted(f"series {series.key} ran out of numbers")
+            candidates = _bases_for(series, window)
+            taken = _taken(session, series, candidates)
+            bases.extend(base for base in candidates if base not in taken)
+            counter = window.stop
+    series.next_counter = counter
+    series.code_count += count
+    return bases
+
+
+def codes_digest(codes: Sequence[str]) -> str:
+    """SHA-256 over a batch's codes, one per line: the log entry covers what was issued."""
+    digest = hashlib.sha256()
+    for code in codes:
+        digest.update(code.encode("ascii"))
+        digest.update(b"\n")
+    return digest.hexdigest()
+
+
+def store_codes(
+    session: Session,
+    register: Register,
+    series: Series,
+    batch: Batch,
+    bases: Sequence[int],
+    *,
+    holder: str | None,
+    note: str | None,
+    replaces_id: int | None = None,
+    progress: Progress | None = None,
+) -> list[str]:
+    """Insert the codes for ``bases``; returns their canonical texts in order."""
+    shape = code_format(series)
+    if len(bases) >= BULK_FROM:
+        import numpy as np
+
+        codes = shape.codes_for_bases(np.asarray(bases, dtype=np.int64))
+    else:
+        codes = [shape.code_for_base(base) for base in bases]
+    at = register.clock()
+    for start in range(0, len(codes), CHUNK):
+        rows = [
+            {
+                "series_id": series.id,
+                "code": code,
+                "base": base,
+                "status": ISSUED,
+                "batch_id": batch.id,
+                "holder": holder,
+                "note": note,
+                "issued_at": at,
+                "issued_by": register.actor,
+                "replaces_id": replaces_id,
+                "print_count": 0,
+            }
+            for code, base in zip(codes[start: start + CHUNK], bases[start: start + CHUNK])
+        ]
+        session.execute(insert(IssuedCode), rows)
+        if progress:
+            progress(len(rows))
+    return codes
+
+
+def _replay(session: Session, request_id: str, key: str, count: int) -> IssueResult | None:
+    batch = session.scalar(select(Batch).where(Batch.request_id == request_id))
+    if batch is None:
+        return None
+    series = session.get(Series, batch.series_id)
+    assert series is not None
+    if series.key != key or batch.count != count:
+        raise Conflict(
+            f"request id {request_id!r} was used for {batch.count} code(s) of series "
+            f"{series.key}; use a new id for a different request"
+        )
+    shape = code_format(series)
+    rows = session.execute(
+        select(IssuedCode.code, IssuedCode.base, IssuedCode.holder)
+        .where(IssuedCode.batch_id == batch.id)
+        .order_by(IssuedCode.id)
+    ).tuples()
+    codes = [IssuedInfo(code, shape.display(code), base, holder) for code, base, holder in rows]
+    return IssueResult(batch.id, series.key, len(codes), codes, replayed=True)
+
+
+def issue_codes(
+    register: Register,
+    key: str,
+    count: int = 1,
+    *,
+    holder: str | None = None,
+    note: str | None = None,
+    request_id: str | None = None,
+    progress: Progress | None = None,
+) -> IssueResult:
+    """Issue ``count`` codes from series ``key`` in one transaction.
+
+    With ``request_id``, a retry of the same request returns the codes issued the
+    first time instead of issuing new ones.
+    """
+    if count < 1:
+        raise InvalidFormat("the count must be at least 1")
+    if request_id is not None and not request_id.strip():
+        raise InvalidFormat("a request id cannot be empty")
+
+    def work(session: Session) -> IssueResult:
+        if request_id is not None:
+            replay = _replay(session, request_id, key, count)
+            if replay is not None:
+                return replay
+        series = get_series(session, key, lock=True)
+        bases = allocate(session, series, count)
+        at = register.clock()
+        batch = Batch(
+            series_id=series.id,
+            kind="issue",
+            request_id=request_id,
+            count=count,
+            created_at=at,
+            actor=register.actor,
+        )
+        session.add(batch)
+        session.flush()
+        codes = store_codes(
+            session, register, series, batch, bases, holder=holder, note=note, progress=progress
+        )
+        detail: dict[str, Any] = {
+            "count": count,
+            "first": codes[0],
+            "last": codes[-1],
+            "codes_sha256": codes_digest(codes),
+        }
+        if request_id is not None:
+            detail["request_id"] = request_id
+        append_entry(
+            session,
+            NewEntry(
+                action="issue",
+                series_id=series.id,
+                code=codes[0] if count == 1 else None,
+                batch_id=batch.id,
+                detail=detail,
+            ),
+            actor=register.actor,
+            at=at,
+        )
+        shape = code_format(series)
+        infos = [IssuedInfo(code, shape.display(code), base, holder) for code, base in zip(codes, bases)]
+        protected = permutation(series).is_protected if series.mode == SCATTERED else None
+        return IssueResult(batch.id, series.key, count, infos, protected=protected)
+
+    try:
+        return register.write(work)
+    except IntegrityError:
+        # two desks sent the same request id at once: the other one won; replay it
+        if request_id is None:
+            raise
+        with register.reading() as session:
+            replay = _replay(session, request_id, key, count)
+        if replay is None:
+            raise
+        return replay

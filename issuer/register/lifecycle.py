@@ -1,0 +1,297 @@
+"""Void, replace, restore, and the history of a code.
+
+Rows are never deleted and counters never move back, so a voided code can come back
+only through :func:`restore_code` — never through issuance.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from datetime import datetime
+from typing import Any
+
+from sqlalchemy import or_, select
+from sqlalchemy.orm import Session
+
+from issuer.codes import normalise_text
+from issuer.errors import Conflict, InvalidCheck, InvalidFormat, NotFound
+from issuer.register.issuing import allocate, store_codes
+from issuer.register.log import NewEntry, append_entry
+from issuer.register.models import ISSUED, VOIDED, Batch, IssuedCode, LogEntry, Series
+from issuer.register.series import all_series, code_format
+from issuer.register.store import Register
+
+
+def require_reason(reason: str | None) -> str:
+    text = (reason or "").strip()
+    if not text:
+        raise InvalidFormat("a reason is required (say why, for the log)")
+    return text
+
+
+def canonical_candidates(session: Session, text: str) -> list[tuple[Series, str]]:
+    """Each series whose shape ``text`` fits, with the text's canonical form in it."""
+    found = []
+    for series in all_series(session):
+        shape = code_format(series)
+        try:
+            found.append((series, shape.parse(text).canonical))
+        except InvalidFormat:
+            continue
+    return found
+
+
+def find_code(session: Session, text: str, *, lock: bool = False) -> IssuedCode:
+    """The stored code a typed text names; raise when it names none."""
+    candidates = canonical_candidates(session, text)
+    if not candidates:
+        raise InvalidFormat(f"{text.strip()!r} does not have the shape of any series' codes")
+    statement = select(IssuedCode).where(IssuedCode.code.in_([code for _, code in candidates]))
+    if lock:
+        statement = statement.with_for_update().execution_options(populate_existing=True)
+    row = session.scalars(statement).first()
+    if row is None:
+        if not any(code_format(series).scheme.is_valid(code[len(series.prefix): len(code) - len(series.suffix)])
+                   for series, code in candidates):
+            raise InvalidCheck(f"{normalise_text(text)}: the check character does not match (a typo?)")
+        raise NotFound(f"{normalise_text(text)} was never issued by this register")
+    return row
+
+
+@dataclass(frozen=True)
+class CodeRecord:
+    """A stored code, for display."""
+
+    code: str
+    display: str
+    series: str
+    status: str
+    base: int
+    holder: str | None
+    note: str | None
+    issued_at: datetime
+    issued_by: str
+    batch: int
+    void_reason: str | None
+    voided_at: datetime | None
+    replaces: str | None
+    replaced_by: str | None
+    print_count: int
+    last_seen_at: datetime | None
+    last_seen_where: str | None
+
+    def as_dict(self) -> dict[str, Any]:
+        return dict(self.__dict__)
+
+
+def code_record(session: Session, row: IssuedCode) -> CodeRecord:
+    series = session.get(Series, row.series_id)
+    assert series is not None
+
+    def code_of(row_id: int | None) -> str | None:
+        if row_id is None:
+            return None
+        return session.scalar(select(IssuedCode.code).where(IssuedCode.id == row_id))
+
+    return CodeRecord(
+        code=row.code,
+        display=code_format(series).display(row.code),
+        series=series.key,
+        status=row.status,
+        base=row.base,
+        holder=row.holder,
+        note=row.note,
+        issued_at=row.issued_at,
+        issued_by=row.issued_by,
+        batch=row.batch_id,
+        void_reason=row.void_reason,
+        voided_at=row.voided_at,
+        replaces=code_of(row.replaces_id),
+        replaced_by=code_of(row.replaced_by_id),
+        print_count=row.print_count,
+        last_seen_at=row.last_seen_at,
+        last_seen_where=row.last_seen_where,
+    )
+
+
+def _void(session: Session, register: Register, row: IssuedCode, reason: str, at: datetime) -> None:
+    if row.status == VOIDED:
+        raise Conflict(f"{row.code} is voided already ({row.void_reason})")
+    row.status = VOIDED
+    row.void_reason = reason
+    row.voided_at = at
+    row.voided_by = register.actor
+
+
+def void_code(register: Register, text: str, *, reason: str) -> CodeRecord:
+    """Void an issued code. It stays in the register and is never issued again."""
+    why = require_reason(reason)
+
+    def work(session: Session) -> CodeRecord:
+        row = find_code(session, text, lock=True)
+        at = register.clock()
+        _void(session, register, row, why, at)
+        append_entry(
+            session,
+            NewEntry("void", row.series_id, row.code, None, {"reason": why}),
+            actor=register.actor,
+            at=at,
+        )
+        session.flush()
+        return code_record(session, row)
+
+    return register.write(work)
+
+
+@dataclass(frozen=True)
+class Replacement:
+    code: str
+    display: str
+    replaces: str
+    batch: int
+
+
+def replace_code(register: Register, text: str, *, reason: str) -> Replacement:
+    """Void a code and issue its replacement from the same series, linked both ways."""
+    why = require_reason(reason)
+
+    def work(session: Session) -> Replacement:
+        old = find_code(session, text, lock=True)
+        series = session.scalar(
+            select(Series)
+            .where(Series.id == old.series_id)
+            .with_for_update()
+            .execution_options(populate_existing=True)
+        )
+        assert series is not None
+        at = register.clock()
+        _void(session, register, old, why, at)
+        bases = allocate(session, series, 1)
+        batch = Batch(series_id=series.id, kind="replace", count=1, created_at=at, actor=register.actor)
+        session.add(batch)
+        session.flush()
+        (new_code,) = store_codes(
+            session, register, series, batch, bases, holder=old.holder, note=old.note,
+            replaces_id=old.id,
+        )
+        new_id = session.scalar(select(IssuedCode.id).where(IssuedCode.code == new_code))
+        old.replaced_by_id = new_id
+        append_entry(
+            session,
+            NewEntry("void", series.id, old.code, None, {"reason": why, "replaced_by": new_code}),
+            actor=register.actor,
+            at=at,
+        )
+        append_entry(
+            session,
+            NewEntry("replace", series.id, new_code, batch.id, {"reason": why, "replaces": old.code}),
+            actor=register.actor,
+            at=at,
+        )
+        session.flush()
+        return Replacement(new_code, code_format(series).display(new_code), old.code, batch.id)
+
+    return register.write(work)
+
+
+def restore_code(register: Register, text: str, *, reason: str) -> CodeRecord:
+    """Undo a mistaken void. A code that was replaced cannot come back while its
+    replacement is in use: void the replacement first."""
+    why = require_reason(reason)
+
+    def work(session: Session) -> CodeRecord:
+        row = find_code(session, text, lock=True)
+        if row.status != VOIDED:
+            raise Conflict(f"{row.code} is not voided")
+        if row.replaced_by_id is not None:
+            replacement = session.get(IssuedCode, row.replaced_by_id)
+            assert replacement is not None
+            if replacement.status == ISSUED:
+                raise Conflict(
+                    f"{row.code} was replaced by {replacement.code}; void that first"
+                )
+        at = register.clock()
+        previous = row.void_reason
+        row.status = ISSUED
+        row.void_reason = None
+        row.voided_at = None
+        row.voided_by = None
+        append_entry(
+            session,
+            NewEntry("restore", row.series_id, row.code, None, {"reason": why, "void_reason": previous}),
+            actor=register.actor,
+            at=at,
+        )
+        session.flush()
+        return code_record(session, row)
+
+    return register.write(work)
+
+
+@dataclass(frozen=True)
+class Event:
+    id: int
+    at: datetime
+    actor: str
+    action: str
+    series: str | None
+    code: str | None
+    batch: int | None
+    detail: str
+
+    def as_dict(self) -> dict[str, Any]:
+        import json
+
+        data = dict(self.__dict__)
+        data["detail"] = json.loads(self.detail)
+        return data
+
+
+def _events(session: Session, statement: Any) -> list[Event]:
+    keys = {series_id: key for series_id, key in session.execute(select(Series.id, Series.key))}
+    return [
+        Event(e.id, e.at, e.actor, e.action, keys.get(e.series_id) if e.series_id else None,
+              e.code, e.batch_id, e.detail)
+        for e in session.scalars(statement)
+    ]
+
+
+def code_history(session: Session, text: str) -> tuple[CodeRecord, list[Event]]:
+    """A code's record and every logged event that concerns it, oldest first."""
+    row = find_code(session, text)
+    statement = (
+        select(LogEntry)
+        .where(
+            or_(
+                LogEntry.code == row.code,
+                (LogEntry.batch_id == row.batch_id) & LogEntry.action.in_(("issue", "import")),
+            )
+        )
+        .order_by(LogEntry.id)
+    )
+    return code_record(session, row), _events(session, statement)
+
+
+def log_entries(
+    session: Session,
+    *,
+    series: str | None = None,
+    actor: str | None = None,
+    since: datetime | None = None,
+    limit: int | None = None,
+) -> list[Event]:
+    """Logged events, oldest first, filtered."""
+    statement = select(LogEntry).order_by(LogEntry.id)
+    if series is not None:
+        series_id = session.scalar(select(Series.id).where(Series.key == series))
+        if series_id is None:
+            raise NotFound(f"no series {series!r} in this register")
+        statement = statement.where(LogEntry.series_id == series_id)
+    if actor is not None:
+        statement = statement.where(LogEntry.actor == actor)
+    if since is not None:
+        statement = statement.where(LogEntry.at >= since)
+    if limit is not None:
+        statement = statement.order_by(None).order_by(LogEntry.id.desc()).limit(limit)
+        return list(reversed(_events(session, statement)))
+    return _events(session, statement)

@@ -1,0 +1,199 @@
+"""The hash-chained log.
+
+Every entry's hash is SHA-256 over a canonical JSON of its content and the previous
+entry's hash; entry ids are consecutive. Recomputing the chain shows the first entry
+that was altered (its hash no longer matches), deleted (a gap in ids or a broken
+link) or inserted (a link that does not follow) behind the tool's back. It does not
+prove more than that: someone who can rewrite the whole chain *and* the head can hide
+it, which is why :func:`head` exists — write the head hash down somewhere else.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+from collections.abc import Iterable, Iterator, Mapping
+from dataclasses import dataclass
+from datetime import datetime
+from typing import Any
+
+from sqlalchemy import insert, select
+from sqlalchemy.orm import Session
+
+from issuer.register.models import LogEntry, LogHead
+
+GENESIS = "0" * 64
+
+
+def timestamp_text(at: datetime) -> str:
+    """The one textual form of a time that goes into a hash."""
+    return at.strftime("%Y-%m-%dT%H:%M:%S.%fZ")
+
+
+def entry_hash(
+    *,
+    entry_id: int,
+    at: datetime,
+    actor: str,
+    action: str,
+    series_id: int | None,
+    code: str | None,
+    batch_id: int | None,
+    detail: str,
+    prev_hash: str,
+) -> str:
+    content = {
+        "id": entry_id,
+        "at": timestamp_text(at),
+        "actor": actor,
+        "action": action,
+        "series": series_id,
+        "code": code,
+        "batch": batch_id,
+        "detail": detail,
+        "prev": prev_hash,
+    }
+    data = json.dumps(content, sort_keys=True, separators=(",", ":"), ensure_ascii=False)
+    return hashlib.sha256(data.encode("utf-8")).hexdigest()
+
+
+@dataclass(frozen=True)
+class NewEntry:
+    """What a caller logs; the chain fields are filled in by :func:`append_entries`."""
+
+    action: str
+    series_id: int | None = None
+    code: str | None = None
+    batch_id: int | None = None
+    detail: Mapping[str, Any] | None = None
+
+
+def detail_text(detail: Mapping[str, Any] | None) -> str:
+    return json.dumps(dict(detail or {}), sort_keys=True, ensure_ascii=False, default=str)
+
+
+def _lock_head(session: Session) -> LogHead:
+    statement = (
+        select(LogHead)
+        .where(LogHead.id == 1)
+        .with_for_update()
+        .execution_options(populate_existing=True)
+    )
+    return session.execute(statement).scalar_one()
+
+
+def append_entries(
+    session: Session, entries: Iterable[NewEntry], *, actor: str, at: datetime
+) -> int:
+    """Append entries to the chain inside the caller's transaction; returns how many.
+
+    The head row is locked first, so concurrent writers append one after another.
+    """
+    head = _lock_head(session)
+    last_id, last_hash = head.last_id, head.last_hash
+    rows: list[dict[str, Any]] = []
+    for entry in entries:
+        last_id += 1
+        detail = detail_text(entry.detail)
+        digest = entry_hash(
+            entry_id=last_id,
+            at=at,
+            actor=actor,
+            action=entry.action,
+            series_id=entry.series_id,
+            code=entry.code,
+            batch_id=entry.batch_id,
+            detail=detail,
+            prev_hash=last_hash,
+        )
+        rows.append(
+            {
+                "id": last_id,
+                "at": at,
+                "actor": actor,
+                "action": entry.action,
+                "series_id": entry.series_id,
+                "code": entry.code,
+                "batch_id": entry.batch_id,
+                "detail": detail,
+                "prev_hash": last_hash,
+                "hash": digest,
+            }
+        )
+        last_hash = digest
+    if rows:
+        session.execute(insert(LogEntry), rows)
+        head.last_id, head.last_hash = last_id, last_hash
+        session.flush()
+    return len(rows)
+
+
+def append_entry(session: Session, entry: NewEntry, *, actor: str, at: datetime) -> None:
+    append_entries(session, [entry], actor=actor, at=at)
+
+
+def head(session: Session) -> tuple[int, str]:
+    """The newest entry's id and hash: the anchor to write down elsewhere."""
+    row = session.execute(select(LogHead.last_id, LogHead.last_hash).where(LogHead.id == 1)).one()
+    return int(row[0]), str(row[1])
+
+
+@dataclass(frozen=True)
+class ChainProblem:
+    entry_id: int
+    problem: str
+
+
+@dataclass(frozen=True)
+class ChainReport:
+    entries: int
+    head_id: int
+    head_hash: str
+    problem: ChainProblem | None
+
+    @property
+    def intact(self) -> bool:
+        return self.problem is None
+
+
+def _stream(session: Session) -> Iterator[LogEntry]:
+    statement = select(LogEntry).order_by(LogEntry.id).execution_options(yield_per=5000)
+    for entry in session.scalars(statement):
+        yield entry
+
+
+def verify_chain(session: Session) -> ChainReport:
+    """Recompute the chain from the start; report the first entry that does not fit."""
+    expected_id, previous = 0, GENESIS
+    count = 0
+    problem: ChainProblem | None = None
+    for entry in _stream(session):
+        count += 1
+        expected_id += 1
+        if entry.id != expected_id:
+            problem = ChainProblem(expected_id, f"entry {expected_id} is missing (next found: {entry.id})")
+            break
+        if entry.prev_hash != previous:
+            problem = ChainProblem(entry.id, "does not link to the entry before it (inserted or reordered)")
+            break
+        recomputed = entry_hash(
+            entry_id=entry.id,
+            at=entry.at,
+            actor=entry.actor,
+            action=entry.action,
+            series_id=entry.series_id,
+            code=entry.code,
+            batch_id=entry.batch_id,
+            detail=entry.detail,
+            prev_hash=entry.prev_hash,
+        )
+        if recomputed != entry.hash:
+            problem = ChainProblem(entry.id, "its content no longer matches its hash (altered)")
+            break
+        previous = entry.hash
+    head_id, head_hash = head(session)
+    if problem is None and (head_id != expected_id or head_hash != previous):
+        problem = ChainProblem(
+            head_id, "the chain's head does not match its last entry (entries removed at the end?)"
+        )
+    return ChainReport(entries=count, head_id=head_id, head_hash=head_hash, problem=problem)

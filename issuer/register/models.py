@@ -1,0 +1,173 @@
+"""The register's tables, as SQLAlchemy 2.x typed ORM models.
+
+The schema is created and upgraded by the Alembic migrations in ``migrations/``; the
+models describe it (a test checks that both agree). Times are stored in UTC.
+"""
+
+from __future__ import annotations
+
+from datetime import UTC, datetime
+from typing import Any, Optional
+
+from sqlalchemy import (
+    BigInteger,
+    DateTime,
+    ForeignKey,
+    Index,
+    Integer,
+    LargeBinary,
+    MetaData,
+    String,
+    Text,
+    TypeDecorator,
+    UniqueConstraint,
+)
+from sqlalchemy.engine import Dialect
+from sqlalchemy.orm import DeclarativeBase, Mapped, mapped_column
+
+NAMING = {
+    "ix": "ix_%(table_name)s_%(column_0_N_name)s",
+    "uq": "uq_%(table_name)s_%(column_0_N_name)s",
+    "ck": "ck_%(table_name)s_%(constraint_name)s",
+    "fk": "fk_%(table_name)s_%(column_0_name)s_%(referred_table_name)s",
+    "pk": "pk_%(table_name)s",
+}
+
+#: code statuses
+ISSUED = "issued"
+VOIDED = "voided"
+
+#: series modes
+SEQUENTIAL = "sequential"
+SCATTERED = "scattered"
+
+
+class UTCDateTime(TypeDecorator[datetime]):
+    """A timestamp that is always timezone-aware UTC in Python, whatever the backend."""
+
+    impl = DateTime(timezone=True)
+    cache_ok = True
+
+    def process_bind_param(self, value: Optional[datetime], dialect: Dialect) -> Any:
+        if value is None:
+            return None
+        if value.tzinfo is None:
+            raise ValueError("naive datetime given to the register")
+        value = value.astimezone(UTC)
+        return value.replace(tzinfo=None) if dialect.name == "sqlite" else value
+
+    def process_result_value(self, value: Any, dialect: Dialect) -> Optional[datetime]:
+        if value is None:
+            return None
+        if value.tzinfo is None:
+            return value.replace(tzinfo=UTC)  # type: ignore[no-any-return]
+        return value.astimezone(UTC)  # type: ignore[no-any-return]
+
+
+class Base(DeclarativeBase):
+    metadata = MetaData(naming_convention=NAMING)
+
+
+class Series(Base):
+    """A series: the fixed shape of its codes and how numbers are drawn."""
+
+    __tablename__ = "series"
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    key: Mapped[str] = mapped_column(String(64), unique=True)
+    title: Mapped[str] = mapped_column(String(200), default="")
+    scheme: Mapped[str] = mapped_column(String(40))
+    alphabet: Mapped[str] = mapped_column(String(200))
+    length: Mapped[int] = mapped_column(Integer)
+    prefix: Mapped[str] = mapped_column(String(32), default="")
+    suffix: Mapped[str] = mapped_column(String(32), default="")
+    grouping: Mapped[str] = mapped_column(String(64), default="")
+    separator: Mapped[str] = mapped_column(String(4), default="-")
+    mode: Mapped[str] = mapped_column(String(16), default=SEQUENTIAL)
+    range_start: Mapped[int] = mapped_column(BigInteger)
+    range_end: Mapped[int] = mapped_column(BigInteger)
+    #: counters consumed so far: counter k maps to base start+k (in order) or to the
+    #: keyed permutation's k-th value (scattered)
+    next_counter: Mapped[int] = mapped_column(BigInteger, default=0)
+    #: codes held in this series (issued, voided or imported): capacity - this = left
+    code_count: Mapped[int] = mapped_column(BigInteger, default=0)
+    #: codes brought in by import; while zero the allocator need not look for them
+    imported_count: Mapped[int] = mapped_column(BigInteger, default=0)
+    #: the AES key of a scattered series; never printed or exported
+    scatter_key: Mapped[Optional[bytes]] = mapped_column(LargeBinary, default=None)
+    created_at: Mapped[datetime] = mapped_column(UTCDateTime())
+    created_by: Mapped[str] = mapped_column(String(120))
+
+
+class Batch(Base):
+    """One act of issuance (or import): its codes commit together or not at all."""
+
+    __tablename__ = "batch"
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    series_id: Mapped[int] = mapped_column(ForeignKey("series.id"), index=True)
+    kind: Mapped[str] = mapped_column(String(16))  # issue | replace | import
+    request_id: Mapped[Optional[str]] = mapped_column(String(200), unique=True, default=None)
+    count: Mapped[int] = mapped_column(Integer)
+    created_at: Mapped[datetime] = mapped_column(UTCDateTime())
+    actor: Mapped[str] = mapped_column(String(120))
+
+
+class IssuedCode(Base):
+    """A code the register holds. Rows are never deleted: a voided code stays here,
+    so no path can issue it again."""
+
+    __tablename__ = "issued_code"
+    __table_args__ = (UniqueConstraint("series_id", "base"),)
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    series_id: Mapped[int] = mapped_column(ForeignKey("series.id"))
+    #: canonical form: prefix, body, check, suffix; unique across the register
+    code: Mapped[str] = mapped_column(String(100), unique=True)
+    base: Mapped[int] = mapped_column(BigInteger)
+    status: Mapped[str] = mapped_column(String(16), default=ISSUED)
+    batch_id: Mapped[int] = mapped_column(ForeignKey("batch.id"), index=True)
+    holder: Mapped[Optional[str]] = mapped_column(String(200), default=None)
+    note: Mapped[Optional[str]] = mapped_column(Text, default=None)
+    issued_at: Mapped[datetime] = mapped_column(UTCDateTime())
+    issued_by: Mapped[str] = mapped_column(String(120))
+    void_reason: Mapped[Optional[str]] = mapped_column(Text, default=None)
+    voided_at: Mapped[Optional[datetime]] = mapped_column(UTCDateTime(), default=None)
+    voided_by: Mapped[Optional[str]] = mapped_column(String(120), default=None)
+    replaces_id: Mapped[Optional[int]] = mapped_column(ForeignKey("issued_code.id"), default=None)
+    replaced_by_id: Mapped[Optional[int]] = mapped_column(
+        ForeignKey("issued_code.id"), default=None
+    )
+    print_count: Mapped[int] = mapped_column(Integer, default=0)
+    last_seen_at: Mapped[Optional[datetime]] = mapped_column(UTCDateTime(), default=None)
+    last_seen_where: Mapped[Optional[str]] = mapped_column(String(200), default=None)
+
+
+class LogEntry(Base):
+    """One logged act. Each entry's hash covers its content and the previous entry's
+    hash, so an entry altered, removed or inserted behind the tool's back shows."""
+
+    __tablename__ = "log_entry"
+    __table_args__ = (Index(None, "series_id", "id"), Index(None, "code"))
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    at: Mapped[datetime] = mapped_column(UTCDateTime())
+    actor: Mapped[str] = mapped_column(String(120))
+    action: Mapped[str] = mapped_column(String(32))
+    series_id: Mapped[Optional[int]] = mapped_column(ForeignKey("series.id"), default=None)
+    code: Mapped[Optional[str]] = mapped_column(String(100), default=None)
+    batch_id: Mapped[Optional[int]] = mapped_column(ForeignKey("batch.id"), default=None)
+    #: JSON text with the act's particulars (reason, count, first/last code, ...)
+    detail: Mapped[str] = mapped_column(Text, default="{}")
+    prev_hash: Mapped[str] = mapped_column(String(64))
+    hash: Mapped[str] = mapped_column(String(64), unique=True)
+
+
+class LogHead(Base):
+    """A single row holding the chain's newest entry; writers lock it to append."""
+
+    __tablename__ = "log_head"
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    last_id: Mapped[int] = mapped_column(BigInteger, default=0)
+    last_hash: Mapped[str] = mapped_column(String(64))

@@ -1,0 +1,286 @@
+"""Defining series and reading their state."""
+
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass
+from functools import lru_cache
+from typing import TYPE_CHECKING
+
+from sqlalchemy import func, select
+from sqlalchemy.orm import Session
+
+from issuer.codes import CodeFormat, normalise_affix
+from issuer.errors import Conflict, InvalidFormat, NotFound
+from issuer.register.log import NewEntry, append_entry
+from issuer.register.models import ISSUED, SCATTERED, SEQUENTIAL, VOIDED, IssuedCode, Series
+from issuer.schemes import get_scheme
+
+if TYPE_CHECKING:
+    from issuer.register.store import Register
+    from issuer.scatter import ScatterPermutation
+
+KEY_PATTERN = re.compile(r"^[a-z0-9][a-z0-9_-]{0,63}$")
+#: the largest base number a register stores (a signed 64-bit integer)
+MAX_BASE = 2**63 - 1
+MODES = (SEQUENTIAL, SCATTERED)
+
+
+@dataclass(frozen=True)
+class SeriesSpec:
+    """What a person asks for when defining a series."""
+
+    key: str
+    scheme: str
+    length: int
+    alphabet: str | None = None
+    prefix: str = ""
+    suffix: str = ""
+    mode: str = SEQUENTIAL
+    start: int | None = None
+    end: int | None = None
+    group: tuple[int, ...] = ()
+    sep: str = "-"
+    title: str = ""
+
+
+@lru_cache(maxsize=256)
+def _format(
+    scheme: str, alphabet: str, length: int, prefix: str, suffix: str, grouping: str, sep: str
+) -> CodeFormat:
+    group = tuple(int(part) for part in grouping.split(",")) if grouping else ()
+    return CodeFormat(get_scheme(scheme, alphabet), length, prefix, suffix, group, sep)
+
+
+def code_format(series: Series) -> CodeFormat:
+    """The shape of a stored series' codes."""
+    return _format(
+        series.scheme,
+        series.alphabet,
+        series.length,
+        series.prefix,
+        series.suffix,
+        series.grouping,
+        series.separator,
+    )
+
+
+def permutation(series: Series) -> ScatterPermutation:
+    """The keyed permutation of a scattered series' range."""
+    from issuer.scatter import ScatterPermutation
+
+    assert series.scatter_key is not None
+    return ScatterPermutation(
+        key=series.scatter_key,
+        radix=code_format(series).alphabet_size,
+        start=series.range_start,
+        end=series.range_end,
+        tweak=series.key.encode("utf-8"),
+    )
+
+
+def capacity(series: Series) -> int:
+    return series.range_end - series.range_start + 1
+
+
+def _position_sets(shape: CodeFormat) -> list[frozenset[str]]:
+    """For each character position of a canonical code, the characters it may hold."""
+    body = frozenset(shape.scheme.alphabet.symbols)
+    check = frozenset(shape.scheme.check_alphabet.symbols)
+    return (
+        [frozenset(ch) for ch in shape.prefix]
+        + [body] * shape.length
+        + [check] * shape.scheme.check_length
+        + [frozenset(ch) for ch in shape.suffix]
+    )
+
+
+def could_coincide(one: CodeFormat, other: CodeFormat) -> bool:
+    """Whether some text could be a code of both shapes."""
+    first, second = _position_sets(one), _position_sets(other)
+    return len(first) == len(second) and all(a & b for a, b in zip(first, second))
+
+
+def build_format(spec: SeriesSpec) -> tuple[CodeFormat, int, int]:
+    """Validate a spec; return its shape and inclusive base range."""
+    if not KEY_PATTERN.match(spec.key):
+        raise InvalidFormat(
+            f"series key {spec.key!r} must be 1-64 lower-case letters, digits, - or _"
+        )
+    if spec.mode not in MODES:
+        raise InvalidFormat(f"mode must be one of {', '.join(MODES)}, not {spec.mode!r}")
+    scheme = get_scheme(spec.scheme, spec.alphabet)
+    max_length = getattr(scheme, "max_body_length", None)
+    if max_length is not None and spec.length > max_length:
+        raise InvalidFormat(
+            f"scheme {scheme.name} protects at most {max_length} body characters, not {spec.length}"
+        )
+    shape = CodeFormat(
+        scheme,
+        spec.length,
+        normalise_affix(spec.prefix),
+        normalise_affix(spec.suffix),
+        spec.group,
+        spec.sep,
+    )
+    top = shape.capacity - 1
+    start = 1 if spec.start is None else spec.start
+    end = min(top, MAX_BASE) if spec.end is None else spec.end
+    if start < 0 or end < start:
+        raise InvalidFormat(f"the range {start}..{end} is empty or negative")
+    if end > top:
+        raise InvalidFormat(
+            f"--end {end} does not fit in {spec.length} {scheme.alphabet.name} symbols (largest {top})"
+        )
+    if end > MAX_BASE:
+        raise InvalidFormat(f"the range must end at or below {MAX_BASE}")
+    return shape, start, end
+
+
+def add_series(register: Register, spec: SeriesSpec) -> Series:
+    """Define a new series; refuse one whose codes could coincide with another's."""
+    shape, start, end = build_format(spec)
+    key_bytes: bytes | None = None
+    if spec.mode == SCATTERED:
+        from issuer.scatter import new_key
+
+        key_bytes = new_key()
+
+    def work(session: Session) -> Series:
+        if session.scalar(select(Series.id).where(Series.key == spec.key)) is not None:
+            raise Conflict(f"a series {spec.key} exists already")
+        for other in session.scalars(select(Series)):
+            if could_coincide(shape, code_format(other)):
+                raise Conflict(
+                    f"codes of {spec.key} could coincide with codes of series {other.key} "
+                    f"(same length and overlapping characters at every position); "
+                    "give one of them a distinct prefix, suffix or length"
+                )
+        series = Series(
+            key=spec.key,
+            title=spec.title,
+            scheme=shape.scheme.name,
+            alphabet=shape.scheme.alphabet.name,
+            length=spec.length,
+            prefix=shape.prefix,
+            suffix=shape.suffix,
+            grouping=",".join(map(str, spec.group)),
+            separator=spec.sep,
+            mode=spec.mode,
+            range_start=start,
+            range_end=end,
+            next_counter=0,
+            code_count=0,
+            imported_count=0,
+            scatter_key=key_bytes,
+            created_at=register.clock(),
+            created_by=register.actor,
+        )
+        session.add(series)
+        session.flush()
+        append_entry(
+            session,
+            NewEntry(
+                action="series.add",
+                series_id=series.id,
+                detail={
+                    "scheme": series.scheme,
+                    "alphabet": series.alphabet,
+                    "length": series.length,
+                    "prefix": series.prefix,
+                    "suffix": series.suffix,
+                    "mode": series.mode,
+                    "start": start,
+                    "end": end,
+                    "title": series.title,
+                },
+            ),
+            actor=register.actor,
+            at=register.clock(),
+        )
+        return series
+
+    return register.write(work)
+
+
+def get_series(session: Session, key: str, *, lock: bool = False) -> Series:
+    statement = select(Series).where(Series.key == key)
+    if lock:
+        statement = statement.with_for_update().execution_options(populate_existing=True)
+    series = session.scalar(statement)
+    if series is None:
+        raise NotFound(f"no series {key!r} in this register")
+    return series
+
+
+def all_series(session: Session) -> list[Series]:
+    return list(session.scalars(select(Series).order_by(Series.key)))
+
+
+@dataclass(frozen=True)
+class SeriesState:
+    """A series' shape and fill, for ``series show`` and ``series list``."""
+
+    key: str
+    title: str
+    scheme: str
+    alphabet: str
+    length: int
+    prefix: str
+    suffix: str
+    mode: str
+    start: int
+    end: int
+    capacity: int
+    issued: int
+    voided: int
+    held: int
+    remaining: int
+    fill: float
+    next_code: str | None
+    example: str
+    protected: bool | None
+
+    def as_dict(self) -> dict[str, object]:
+        return dict(self.__dict__)
+
+
+def series_state(session: Session, series: Series) -> SeriesState:
+    shape = code_format(series)
+    counts: dict[str, int] = {
+        status: int(number)
+        for status, number in session.execute(
+            select(IssuedCode.status, func.count())
+            .where(IssuedCode.series_id == series.id)
+            .group_by(IssuedCode.status)
+        ).tuples()
+    }
+    total = capacity(series)
+    remaining = total - series.code_count
+    next_code = None
+    protected: bool | None = None
+    if series.mode == SEQUENTIAL and remaining > 0:
+        next_code = shape.display(shape.code_for_base(series.range_start + series.next_counter))
+    if series.mode == SCATTERED:
+        protected = permutation(series).is_protected
+    return SeriesState(
+        key=series.key,
+        title=series.title,
+        scheme=series.scheme,
+        alphabet=series.alphabet,
+        length=series.length,
+        prefix=series.prefix,
+        suffix=series.suffix,
+        mode=series.mode,
+        start=series.range_start,
+        end=series.range_end,
+        capacity=total,
+        issued=int(counts.get(ISSUED, 0)),
+        voided=int(counts.get(VOIDED, 0)),
+        held=series.code_count,
+        remaining=remaining,
+        fill=series.code_count / total,
+        next_code=next_code,
+        example=shape.display(shape.code_for_base(series.range_start)),
+        protected=protected,
+    )

@@ -1,0 +1,219 @@
+"""Engines, sessions and the one transaction helper.
+
+Backend quirks live here and nowhere else:
+
+* SQLite: WAL journal, ``synchronous=FULL`` (a commit is durable), a busy timeout,
+  foreign keys on, and every writing transaction opened with ``BEGIN IMMEDIATE`` — a
+  deferred transaction that reads the counter and then writes fails at once under
+  contention, whatever the busy timeout. New files are created owner-only (0600).
+* PostgreSQL (psycopg 3): writers lock the series row and the log head with
+  ``SELECT ... FOR UPDATE``; serialization failures and deadlocks are retried.
+
+The database is created and upgraded by Alembic (:mod:`issuer.register.migrate`);
+opening a register whose schema is already current never imports Alembic.
+"""
+
+from __future__ import annotations
+
+import os
+import random
+import time
+from collections.abc import Callable, Iterator
+from contextlib import contextmanager
+from dataclasses import dataclass, field
+from datetime import UTC, datetime
+from pathlib import Path
+from typing import Any, TypeVar
+
+from sqlalchemy import Engine, create_engine, event, text
+from sqlalchemy.engine import make_url
+from sqlalchemy.exc import ArgumentError, DBAPIError, OperationalError
+from sqlalchemy.orm import Session
+
+from issuer.errors import IssuerError, PermissionDenied, RegisterError
+
+T = TypeVar("T")
+
+#: the Alembic revision the code expects; a test keeps it equal to the migrations' head
+SCHEMA_HEAD = "0001"
+
+#: how often a writing transaction is tried when another desk holds the lock
+WRITE_ATTEMPTS = 8
+
+
+def utc_now() -> datetime:
+    return datetime.now(UTC)
+
+
+def database_url(database: str) -> str:
+    """A SQLAlchemy URL for a path or URL given by the user."""
+    if "://" in database:
+        try:
+            url = make_url(database)
+        except ArgumentError:
+            raise RegisterError(f"not a database URL: {database}") from None
+        if url.drivername in ("postgresql", "postgres"):
+            url = url.set(drivername="postgresql+psycopg")
+        return url.render_as_string(hide_password=False)
+    path = Path(database).expanduser().resolve()
+    return f"sqlite:///{path}"
+
+
+def _prepare_sqlite_file(url: str) -> None:
+    """Create the file owner-only, with its folder, so nobody else can read the register."""
+    database = make_url(url).database
+    if not database or database == ":memory:":
+        return
+    path = Path(database)
+    try:
+        path.parent.mkdir(parents=True, exist_ok=True)
+        if not path.exists():
+            descriptor = os.open(path, os.O_CREAT | os.O_WRONLY, 0o600)
+            os.close(descriptor)
+    except OSError as exc:
+        raise RegisterError(f"cannot create the register at {path}: {exc.strerror}") from None
+    if not os.access(path, os.R_OK | os.W_OK) or not os.access(path.parent, os.W_OK):
+        raise RegisterError(f"the register at {path} cannot be written (check permissions)")
+
+
+def make_engine(url: str, *, busy_timeout_ms: int = 15000) -> Engine:
+    if url.startswith("sqlite"):
+        _prepare_sqlite_file(url)
+        engine = create_engine(url, connect_args={"timeout": busy_timeout_ms / 1000})
+
+        @event.listens_for(engine, "connect")
+        def _on_connect(dbapi_connection: Any, _record: Any) -> None:
+            # the driver's own transaction handling is off; we say BEGIN ourselves
+            dbapi_connection.isolation_level = None
+            cursor = dbapi_connection.cursor()
+            cursor.execute(f"PRAGMA busy_timeout = {int(busy_timeout_ms)}")
+            cursor.execute("PRAGMA journal_mode = WAL")
+            cursor.execute("PRAGMA synchronous = FULL")
+            cursor.execute("PRAGMA foreign_keys = ON")
+            cursor.close()
+
+        @event.listens_for(engine, "begin")
+        def _on_begin(connection: Any) -> None:
+            writing = connection.get_execution_options().get("issuer_write", False)
+            connection.exec_driver_sql("BEGIN IMMEDIATE" if writing else "BEGIN")
+
+        return engine
+    return create_engine(url, pool_pre_ping=True)
+
+
+def _is_retryable(exc: DBAPIError) -> bool:
+    """Lock contention that a later attempt may get past."""
+    original = exc.orig
+    sqlstate = getattr(original, "sqlstate", None)
+    if sqlstate in ("40001", "40P01", "55P03"):  # serialization, deadlock, lock not available
+        return True
+    message = str(original).lower()
+    return "database is locked" in message or "database is busy" in message
+
+
+def _is_permission_error(exc: DBAPIError) -> bool:
+    sqlstate = getattr(exc.orig, "sqlstate", None)
+    return sqlstate == "42501" or "permission denied" in str(exc.orig).lower()
+
+
+@dataclass
+class Register:
+    """An open register: an engine plus who is acting and the clock to use."""
+
+    engine: Engine
+    actor: str
+    clock: Callable[[], datetime] = field(default=utc_now)
+
+    @property
+    def backend(self) -> str:
+        return self.engine.dialect.name
+
+    @contextmanager
+    def reading(self) -> Iterator[Session]:
+        """A session for reads; nothing it does is committed."""
+        with Session(self.engine, expire_on_commit=False) as session:
+            yield session
+
+    @contextmanager
+    def writing(self) -> Iterator[Session]:
+        """One writing transaction: committed whole on success, rolled back whole on any
+        error. Use :meth:`write` to get the retries as well."""
+        with self.engine.connect() as connection:
+            connection.execution_options(issuer_write=True)
+            with Session(bind=connection, expire_on_commit=False) as session:
+                with session.begin():
+                    yield session
+
+    def write(self, work: Callable[[Session], T]) -> T:
+        """Run ``work`` in one writing transaction, retried (with jitter) while another
+        desk holds the lock; ``work`` must be safe to run again from the start."""
+        for attempt in range(1, WRITE_ATTEMPTS + 1):
+            try:
+                with self.writing() as session:
+                    return work(session)
+            except DBAPIError as exc:
+                if _is_permission_error(exc):
+                    raise PermissionDenied(
+                        "the database refused this act for the connected role "
+                        f"({str(exc.orig).splitlines()[0]})"
+                    ) from None
+                if not _is_retryable(exc) or attempt == WRITE_ATTEMPTS:
+                    if isinstance(exc, OperationalError) and _is_retryable(exc):
+                        raise RegisterError(
+                            "the register stayed busy (another desk is writing); try again"
+                        ) from None
+                    raise
+                time.sleep(random.uniform(0.01, 0.05) * attempt)
+        raise AssertionError("unreachable")  # pragma: no cover
+
+    def schema_revision(self) -> str | None:
+        """The Alembic revision the database is at, or None for an empty database."""
+        with self.engine.connect() as connection:
+            try:
+                row = connection.execute(text("SELECT version_num FROM alembic_version")).first()
+            except DBAPIError:
+                connection.rollback()
+                return None
+            return None if row is None else str(row[0])
+
+    def close(self) -> None:
+        self.engine.dispose()
+
+
+def open_register(
+    database: str,
+    *,
+    actor: str,
+    clock: Callable[[], datetime] = utc_now,
+    busy_timeout_ms: int = 15000,
+    upgrade: bool = True,
+) -> Register:
+    """Open (creating or upgrading as needed) the register at ``database``."""
+    url = database_url(database)
+    try:
+        engine = make_engine(url, busy_timeout_ms=busy_timeout_ms)
+    except (ArgumentError, ImportError) as exc:
+        raise RegisterError(f"cannot open the register {database}: {exc}") from None
+    register = Register(engine=engine, actor=actor, clock=clock)
+    try:
+        revision = register.schema_revision()
+    except OperationalError as exc:
+        engine.dispose()
+        raise RegisterError(f"cannot open the register {database}: {str(exc.orig).splitlines()[0]}") from None
+    if revision != SCHEMA_HEAD:
+        if not upgrade:
+            raise RegisterError(
+                f"the register is at schema {revision or 'none'}, this issuer needs {SCHEMA_HEAD}: "
+                "run 'issuer db upgrade'"
+            )
+        from issuer.register.migrate import upgrade_to_head
+
+        try:
+            upgrade_to_head(register)
+        except IssuerError:
+            raise
+        except DBAPIError as exc:
+            raise RegisterError(
+                f"cannot prepare the register {database}: {str(exc.orig).splitlines()[0]}"
+            ) from None
+    return register
