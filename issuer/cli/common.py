@@ -134,3 +134,44 @@ def open_register_from_options(db: str | None, actor: str | None) -> Any:
     settings = load_settings(database=db, actor=actor)
     timeout = int(settings.section("register").get("busy_timeout_ms", 15000))
     return open_register(settings.database, actor=settings.actor, busy_timeout_ms=timeout)
+
+
+class progress_bar:  # noqa: N801 - used as a context manager like a function
+    """A Rich progress bar on stderr, shown only for work big enough to take a while.
+
+    ``with progress_bar(total, "Issuing") as advance: advance(n)``
+    """
+
+    def __init__(self, total: int, description: str, *, show_from: int = 20_000) -> None:
+        self.total = total
+        self.description = description
+        self.enabled = total >= show_from
+        self._progress: Any = None
+        self._task: Any = None
+
+    def __enter__(self) -> Any:
+        if not self.enabled:
+            return lambda _n: None
+        from rich.progress import (
+            BarColumn,
+            MofNCompleteColumn,
+            Progress,
+            TextColumn,
+            TimeRemainingColumn,
+        )
+
+        self._progress = Progress(
+            TextColumn("{task.description}"),
+            BarColumn(),
+            MofNCompleteColumn(),
+            TimeRemainingColumn(),
+            console=err_console(),
+            transient=True,
+        )
+        self._progress.start()
+        self._task = self._progress.add_task(self.description, total=self.total)
+        return lambda n: self._progress.advance(self._task, n)
+
+    def __exit__(self, *exc: object) -> None:
+        if self._progress is not None:
+            self._progress.stop()
