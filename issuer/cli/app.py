@@ -44,7 +44,7 @@ def root(
 
 def _register_commands() -> None:
     # each module adds its commands to ``app``; imports here stay light
-    from issuer.cli import engine, logcmd  # noqa: F401
+    from issuer.cli import demo, desk, engine, issuing, logcmd, series  # noqa: F401
 
 
 _register_commands()

@@ -1,0 +1,216 @@
+"""``issuer issue``, ``void``, ``replace``, ``restore`` and ``history``."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Annotated, Any, Optional
+
+import typer
+
+from issuer.cli.app import app
+from issuer.cli.common import (
+    PERSONAL_DATA_CAUTION,
+    ActorOption,
+    DbOption,
+    JsonOption,
+    console,
+    open_register_from_options,
+    print_json,
+    progress_bar,
+)
+
+#: batches up to this size are listed code by code in the terminal
+LIST_UP_TO = 50
+
+ReasonOption = Annotated[str, typer.Option("--reason", help="Why, in a few words: it goes into the log.")]
+
+
+@app.command("issue")
+def issue(
+    key: Annotated[str, typer.Argument(help="The series to issue from.")],
+    *,
+    count: Annotated[int, typer.Option("--count", "-n", help="How many codes, all in one batch.", min=1)] = 1,
+    holder: Annotated[
+        Optional[str],
+        typer.Option("--holder", help="Who holds the item or card. Personal data: store only what your policy allows."),
+    ] = None,
+    note: Annotated[Optional[str], typer.Option("--note", help="A note kept with each code.")] = None,
+    request_id: Annotated[
+        Optional[str],
+        typer.Option("--request-id", help="An id for this request: a retry with the same id returns the same codes."),
+    ] = None,
+    out: Annotated[
+        Optional[Path], typer.Option("--out", help="Also write the batch's codes to this CSV file.", dir_okay=False)
+    ] = None,
+    db: DbOption = None,
+    actor: ActorOption = None,
+    as_json: JsonOption = False,
+) -> None:
+    """Issue the next code(s) of a series: whole batch or nothing."""
+    from issuer.register.issuing import issue_codes
+
+    register = open_register_from_options(db, actor)
+    with progress_bar(count, f"Issuing {count:,} codes") as advance:
+        result = issue_codes(
+            register, key, count, holder=holder, note=note, request_id=request_id, progress=advance
+        )
+    if out is not None:
+        _write_codes_csv(out, result)
+    if as_json:
+        print_json({
+            "batch": result.batch,
+            "series": result.series,
+            "replayed": result.replayed,
+            "codes": [info.as_dict() for info in result.codes],
+        })
+        return
+    _render_issue(result, out)
+
+
+def _write_codes_csv(path: Path, result: Any) -> None:
+    import csv
+    import os
+    import tempfile
+
+    directory = path.resolve().parent
+    handle, temporary = tempfile.mkstemp(dir=directory, prefix=".issuer-", suffix=".csv")
+    try:
+        with os.fdopen(handle, "w", newline="", encoding="utf-8") as stream:
+            writer = csv.writer(stream)
+            writer.writerow(["code", "display", "base", "series", "batch"])
+            for info in result.codes:
+                writer.writerow([info.code, info.display, info.base, result.series, result.batch])
+        os.replace(temporary, path)
+    except BaseException:
+        Path(temporary).unlink(missing_ok=True)
+        raise
+
+
+def _render_issue(result: Any, out: Path | None) -> None:
+    out_console = console()
+    verb = "Already issued for this request id" if result.replayed else "Issued"
+    if result.count <= LIST_UP_TO:
+        from rich.table import Table
+
+        table = Table(title=f"{verb}: batch {result.batch}, series {result.series}")
+        table.add_column("code", style="bold")
+        table.add_column("holder")
+        for info in result.codes:
+            table.add_row(info.display, info.holder or "")
+        out_console.print(table)
+    else:
+        out_console.print(
+            f"{verb} {result.count:,} codes in batch {result.batch} of series {result.series}: "
+            f"first [bold]{result.first.display}[/bold], last [bold]{result.last.display}[/bold]"
+        )
+    if out is not None:
+        out_console.print(f"Codes written to {out}")
+    if result.protected is False:
+        out_console.print(
+            "Note: this scattered series' range is below FF1's one-million minimum domain: "
+            "the order is only shuffled, not protected."
+        )
+    if any(info.holder for info in result.codes):
+        out_console.print(PERSONAL_DATA_CAUTION, style="dim")
+
+
+@app.command("void")
+def void(
+    code: Annotated[str, typer.Argument(help="The code to void, as typed or scanned.")],
+    *,
+    reason: ReasonOption,
+    db: DbOption = None,
+    actor: ActorOption = None,
+    as_json: JsonOption = False,
+) -> None:
+    """Void a code (lost, stolen, damaged). It is never issued again."""
+    from issuer.register.lifecycle import void_code
+
+    record = void_code(open_register_from_options(db, actor), code, reason=reason)
+    if as_json:
+        print_json(record.as_dict())
+    else:
+        console().print(f"Voided [bold]{record.display}[/bold] ({record.series}): {record.void_reason}")
+
+
+@app.command("replace")
+def replace(
+    code: Annotated[str, typer.Argument(help="The code to replace, as typed or scanned.")],
+    *,
+    reason: ReasonOption,
+    db: DbOption = None,
+    actor: ActorOption = None,
+    as_json: JsonOption = False,
+) -> None:
+    """Void a code and issue its replacement from the same series, linked both ways."""
+    from issuer.register.lifecycle import replace_code
+
+    result = replace_code(open_register_from_options(db, actor), code, reason=reason)
+    if as_json:
+        print_json({"code": result.code, "replaces": result.replaces, "display": result.display, "batch": result.batch})
+    else:
+        console().print(f"Voided {result.replaces}; its replacement is [bold]{result.display}[/bold]")
+
+
+@app.command("restore")
+def restore(
+    code: Annotated[str, typer.Argument(help="The voided code to bring back.")],
+    *,
+    reason: ReasonOption,
+    db: DbOption = None,
+    actor: ActorOption = None,
+    as_json: JsonOption = False,
+) -> None:
+    """Undo a mistaken void (logged)."""
+    from issuer.register.lifecycle import restore_code
+
+    record = restore_code(open_register_from_options(db, actor), code, reason=reason)
+    if as_json:
+        print_json(record.as_dict())
+    else:
+        console().print(f"Restored [bold]{record.display}[/bold]: it is in use again")
+
+
+@app.command("history")
+def history(
+    code: Annotated[str, typer.Argument(help="The code, as typed or scanned.")],
+    *,
+    db: DbOption = None,
+    as_json: JsonOption = False,
+) -> None:
+    """Everything that happened to a code: issue, prints, sightings, void, replacement."""
+    from issuer.register.lifecycle import code_history
+
+    register = open_register_from_options(db, None)
+    with register.reading() as session:
+        record, events = code_history(session, code)
+    if as_json:
+        print_json({"code": record.as_dict(), "events": [event.as_dict() for event in events]})
+        return
+    from rich.table import Table
+
+    out = console()
+    status = "[green]in use[/green]" if record.status == "issued" else f"[red]voided[/red] ({record.void_reason})"
+    out.print(f"[bold]{record.display}[/bold]  series {record.series}  {status}")
+    facts = [
+        f"issued {record.issued_at:%Y-%m-%d %H:%M} UTC by {record.issued_by} (batch {record.batch})",
+        f"printed {record.print_count} time(s)",
+    ]
+    if record.holder:
+        facts.append(f"holder: {record.holder}")
+    if record.replaces:
+        facts.append(f"replaces {record.replaces}")
+    if record.replaced_by:
+        facts.append(f"replaced by {record.replaced_by}")
+    if record.last_seen_at:
+        facts.append(f"last seen {record.last_seen_at:%Y-%m-%d %H:%M} UTC {record.last_seen_where or ''}".rstrip())
+    out.print("; ".join(facts))
+    table = Table()
+    for column in ("#", "when (UTC)", "who", "act", "details"):
+        table.add_column(column)
+    from issuer.cli.logcmd import _detail_summary
+
+    for event in events:
+        table.add_row(str(event.id), f"{event.at:%Y-%m-%d %H:%M:%S}", event.actor, event.action,
+                      _detail_summary(event.detail))
+    out.print(table)

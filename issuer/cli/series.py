@@ -1,0 +1,163 @@
+"""``issuer series``: define series and see their state."""
+
+from __future__ import annotations
+
+from typing import Annotated, Optional
+
+import typer
+
+from issuer.cli.app import app
+from issuer.cli.common import (
+    SCATTER_CAUTION,
+    ActorOption,
+    DbOption,
+    JsonOption,
+    console,
+    err_console,
+    open_register_from_options,
+    print_json,
+)
+from issuer.errors import InvalidFormat
+
+series_app = typer.Typer(help="Define series (the shape of their codes) and see how full they are.")
+app.add_typer(series_app, name="series")
+
+
+def parse_group(text: str | None) -> tuple[int, ...]:
+    if not text:
+        return ()
+    try:
+        return tuple(int(part) for part in text.split(","))
+    except ValueError:
+        raise InvalidFormat(f"--group {text!r} must be sizes separated by commas, e.g. 4,4") from None
+
+
+@series_app.command("add")
+def add(
+    key: Annotated[str, typer.Argument(help="Short name of the series, e.g. tools (lower case).")],
+    *,
+    scheme: Annotated[str, typer.Option("--scheme", help="Check-character method (see 'issuer schemes').")],
+    length: Annotated[int, typer.Option("--length", help="Body length, without the check character(s).", min=1)],
+    alphabet: Annotated[
+        Optional[str], typer.Option("--alphabet", help="Body symbols: digits, letters, alnum, crockford32, hex or custom:SYMBOLS (default: the scheme's own).")
+    ] = None,
+    prefix: Annotated[str, typer.Option("--prefix", help="Fixed text before the body, e.g. QTL.")] = "",
+    suffix: Annotated[str, typer.Option("--suffix", help="Fixed text after the check character(s).")] = "",
+    mode: Annotated[
+        str, typer.Option("--mode", help="sequential (in order) or scattered (keyed permutation, hard to guess).")
+    ] = "sequential",
+    start: Annotated[Optional[int], typer.Option("--start", help="Lowest base number (default 1).", min=0)] = None,
+    end: Annotated[Optional[int], typer.Option("--end", help="Highest base number (default: the largest the length allows).", min=0)] = None,
+    group: Annotated[Optional[str], typer.Option("--group", help="How to group body+check for people, e.g. 4,4.")] = None,
+    sep: Annotated[str, typer.Option("--sep", help="Separator between prefix, groups and suffix.")] = "-",
+    title: Annotated[str, typer.Option("--title", help="A title for people and labels.")] = "",
+    db: DbOption = None,
+    actor: ActorOption = None,
+    as_json: JsonOption = False,
+) -> None:
+    """Define a series. Its shape is frozen once it has issued a number."""
+    from issuer.register.series import SeriesSpec, add_series, series_state
+
+    spec = SeriesSpec(
+        key=key, scheme=scheme, length=length, alphabet=alphabet, prefix=prefix, suffix=suffix,
+        mode=mode, start=start, end=end, group=parse_group(group), sep=sep, title=title,
+    )
+    register = open_register_from_options(db, actor)
+    series = add_series(register, spec)
+    with register.reading() as session:
+        state = series_state(session, series)
+    if as_json:
+        print_json(state.as_dict())
+        return
+    out = console()
+    out.print(f"Series [bold]{state.key}[/bold] defined: codes like [bold]{state.example}[/bold], "
+              f"{state.capacity:,} numbers ({state.mode}).")
+    if state.mode == "scattered":
+        if state.protected is False:
+            err_console().print(
+                "Note: this range is below the one-million minimum domain of NIST SP 800-38G FF1, "
+                "so the order is only shuffled, not protected."
+            )
+        out.print(SCATTER_CAUTION)
+
+
+def _render_state(state: object) -> None:
+    from rich.table import Table
+
+    data = state.as_dict()  # type: ignore[attr-defined]
+    table = Table(show_header=False, title=f"Series {data['key']}")
+    table.add_column("field", style="bold")
+    table.add_column("value")
+    labels = {
+        "title": "Title", "example": "Codes look like", "scheme": "Check method",
+        "alphabet": "Body symbols", "length": "Body length", "mode": "Issued",
+        "capacity": "Capacity", "issued": "In use", "voided": "Voided",
+        "remaining": "Left to issue", "fill": "Fill", "next_code": "Next in order",
+        "protected": "FF1 domain ≥ 10⁶",
+    }
+    for key, label in labels.items():
+        value = data.get(key)
+        if value is None or value == "":
+            continue
+        if key == "fill":
+            value = f"{value:.4%}"
+        elif key == "mode":
+            value = "in order" if value == "sequential" else "scattered"
+        elif isinstance(value, int) and not isinstance(value, bool):
+            value = f"{value:,}"
+        elif key == "protected":
+            value = "yes" if value else "no: order only shuffled, not protected"
+        table.add_row(label, str(value))
+    table.add_row("Range", f"{data['start']:,} .. {data['end']:,}")
+    console().print(table)
+
+
+@series_app.command("show")
+def show(
+    key: Annotated[str, typer.Argument(help="The series to show.")],
+    *,
+    db: DbOption = None,
+    as_json: JsonOption = False,
+) -> None:
+    """Show a series: capacity, in use, voided, left, next in-order number or fill."""
+    from issuer.register.series import get_series, series_state
+
+    register = open_register_from_options(db, None)
+    with register.reading() as session:
+        state = series_state(session, get_series(session, key))
+    if as_json:
+        print_json(state.as_dict())
+    else:
+        _render_state(state)
+
+
+@series_app.command("list")
+def list_series(
+    *,
+    db: DbOption = None,
+    as_json: JsonOption = False,
+) -> None:
+    """List the register's series with how full each is."""
+    from issuer.register.series import all_series, series_state
+
+    register = open_register_from_options(db, None)
+    with register.reading() as session:
+        states = [series_state(session, series) for series in all_series(session)]
+    if as_json:
+        print_json([state.as_dict() for state in states])
+        return
+    from rich.table import Table
+
+    table = Table(title="Series")
+    for column in ("key", "title", "codes look like", "check", "mode", "in use", "voided", "left"):
+        table.add_column(column, justify="right" if column in ("in use", "voided", "left") else "left")
+    for state in states:
+        table.add_row(
+            state.key, state.title, state.example, state.scheme,
+            "in order" if state.mode == "sequential" else "scattered",
+            f"{state.issued:,}", f"{state.voided:,}", f"{state.remaining:,}",
+        )
+    if not states:
+        console().print("No series yet: define one with 'issuer series add'.")
+        return
+    console().print(table)
