@@ -189,7 +189,7 @@ def _replay(session: Session, request_id: str, key: str, count: int) -> IssueRes
         select(IssuedCode.code, IssuedCode.base, IssuedCode.holder)
         .where(IssuedCode.batch_id == batch.id)
         .order_by(IssuedCode.id)
-    ).tuples()
+    )
     codes = [IssuedInfo(code, shape.display(code), base, holder) for code, base, holder in rows]
     return IssueResult(batch.id, series.key, len(codes), codes, replayed=True)
 

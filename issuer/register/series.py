@@ -253,7 +253,7 @@ def series_state(session: Session, series: Series) -> SeriesState:
             select(IssuedCode.status, func.count())
             .where(IssuedCode.series_id == series.id)
             .group_by(IssuedCode.status)
-        ).tuples()
+        )
     }
     total = capacity(series)
     remaining = total - series.code_count
