@@ -197,7 +197,7 @@ def open_register(
     register = Register(engine=engine, actor=actor, clock=clock)
     try:
         revision = register.schema_revision()
-    except OperationalError as exc:
+    except DBAPIError as exc:
         engine.dispose()
         raise RegisterError(f"cannot open the register {database}: {str(exc.orig).splitlines()[0]}") from None
     if revision != SCHEMA_HEAD:
