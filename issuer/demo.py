@@ -48,6 +48,17 @@ def _mistype(code: str, *, position: int, kind: str) -> str:
     return "".join(chars)
 
 
+def _confusable(passes: list[Any]) -> tuple[str, str]:
+    """A pass typed with a letter where the alphabet has a digit (O for 0, I or L for 1),
+    which Crockford's Base32 reads as meant."""
+    for info in passes:
+        if "0" in info.display:
+            return info.display.replace("0", "O", 1), "a pass typed with the letter O for zero"
+        if "1" in info.display:
+            return info.display.replace("1", "l", 1), "a pass typed with a small l for one"
+    return passes[0].display.lower(), "a pass typed in lower case"
+
+
 def run_demo(register: Register) -> DemoReport:
     report = DemoReport()
     for spec in SERIES:
@@ -77,7 +88,7 @@ def run_demo(register: Register) -> DemoReport:
         (_mistype(member, position=6, kind="substitute"), "one digit misheard on the phone"),
         (lost.display, "a tag that was voided"),
         (damaged.display.lower(), "an old card, typed in lower case"),
-        (passes.codes[0].display.replace("0", "O"), "a pass with the letter O for zero"),
+        _confusable(passes.codes),
         ("QTL-12-34", "too short"),
     ]
     report.typed = typed

@@ -63,4 +63,5 @@ def demo(
         answer.input = f"{text}\n[dim]{story}[/dim]"
     render_answers(report.answers)
     out.print(f"[dim]{CHECK_CAUTION}\n{SCATTER_CAUTION}\n{PERSONAL_DATA_CAUTION}[/dim]")
-    out.print(f"Try: issuer check --db {db} QTL-0000-0018   or   issuer desk --db {db}")
+    example = report.issued["tools"][0]
+    out.print(f"Try: issuer check --db {db} {example}\n  or: issuer desk --db {db}")

@@ -41,6 +41,7 @@ class DeskAnswer:
     series: str | None = None
     reason: str | None = None
     holder: str | None = None
+    #: the replacement's display form, for a voided code that was replaced
     replacement: str | None = None
     suggestions: list[Suggestion] = field(default_factory=list)
 
@@ -71,16 +72,22 @@ def _stored(session: Session, codes: Iterable[str]) -> dict[str, IssuedCode]:
 
 
 def _readings(shapes: Sequence[tuple[Series, CodeFormat]], text: str) -> tuple[list[_Reading], list[str]]:
-    readings, problems = [], []
+    """Every series the text fits, and otherwise what is wrong: only the problems of
+    series whose prefix and suffix it carries, when there are any."""
+    readings: list[_Reading] = []
+    problems: list[tuple[bool, str]] = []
+    cleaned = normalise_text(text)
     for series, shape in shapes:
         try:
             parsed = shape.parse(text)
         except InvalidFormat as exc:
-            problems.append(f"{series.key}: {exc.message}" if len(shapes) > 1 else exc.message)
+            affixes_fit = cleaned.startswith(shape.prefix) and cleaned.endswith(shape.suffix)
+            problems.append((affixes_fit, f"{series.key}: {exc.message}" if len(shapes) > 1 else exc.message))
             continue
         valid = shape.scheme.compute(parsed.body) == parsed.check
         readings.append(_Reading(series, shape, parsed.canonical, valid))
-    return readings, problems
+    closest = [message for fits, message in problems if fits] or [message for _, message in problems]
+    return readings, closest
 
 
 def _suggest(session: Session, reading: _Reading) -> list[Suggestion]:
@@ -130,10 +137,13 @@ def check_codes(session: Session, inputs: Sequence[str]) -> list[DeskAnswer]:
     replacements: dict[int, str] = {}
     replaced_ids = [row.replaced_by_id for row in stored.values() if row.replaced_by_id]
     if replaced_ids:
+        shape_of = {series.id: shape for series, shape in shapes}
         replacements = {
-            row_id: code
-            for row_id, code in session.execute(
-                select(IssuedCode.id, IssuedCode.code).where(IssuedCode.id.in_(replaced_ids))
+            row_id: shape_of[series_id].display(code)
+            for row_id, code, series_id in session.execute(
+                select(IssuedCode.id, IssuedCode.code, IssuedCode.series_id).where(
+                    IssuedCode.id.in_(replaced_ids)
+                )
             )
         }
     answers = []

@@ -73,7 +73,7 @@ def test_issued_voided_and_replaced_codes(register: Any, tools: str) -> None:
     assert [a.status for a in answers] == ["issued", "voided", "voided", "issued"]
     assert answers[0].code == tools and answers[0].input == tools.lower()
     assert answers[1].reason == "lost" and answers[1].replacement is None
-    assert answers[2].reason == "cracked tag" and answers[2].replacement == new.code
+    assert answers[2].reason == "cracked tag" and answers[2].replacement == new.display
 
 
 def test_malformed_inputs_say_what_is_wrong(register: Any, tools: str) -> None:
