@@ -1,0 +1,388 @@
+"""Looking after a register: opening it without changing it, its status, upgrades,
+roles, backups, and checking the log against an anchor written down elsewhere.
+
+:mod:`issuer.register.doctor` runs the full health check; :mod:`issuer.register.roles`
+holds the role policy.
+"""
+
+from __future__ import annotations
+
+import os
+import shlex
+import sqlite3
+from collections.abc import Callable, Iterator, Sequence
+from contextlib import contextmanager
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+from sqlalchemy import func, inspect, select, text
+from sqlalchemy.engine import make_url
+from sqlalchemy.exc import DBAPIError
+from sqlalchemy.orm import Session
+
+from issuer.errors import Conflict, InvalidFormat, PermissionDenied, RegisterError
+from issuer.register.log import ChainReport, verify_chain
+from issuer.register.models import IssuedCode, LogEntry, Series
+from issuer.register.store import SCHEMA_HEAD, Register, database_url, make_engine
+
+Progress = Callable[[int, int], None]
+
+
+def sqlite_path(register: Register) -> Path | None:
+    """The register's file, or None when it is not a SQLite file."""
+    if register.backend != "sqlite":
+        return None
+    database = register.engine.url.database
+    if not database or database == ":memory:":
+        return None
+    return Path(database)
+
+
+def open_existing(database: str, *, actor: str = "doctor", busy_timeout_ms: int = 15000) -> Register:
+    """Open a register as it is: no upgrade, and no empty file made where none was."""
+    url = database_url(database)
+    if url.startswith("sqlite"):
+        path = make_url(url).database
+        if path and path != ":memory:" and not Path(path).is_file():
+            raise RegisterError(f"there is no register at {path}")
+    try:
+        engine = make_engine(url, busy_timeout_ms=busy_timeout_ms)
+    except (ImportError, ValueError) as exc:
+        raise RegisterError(f"cannot open the register {database}: {exc}") from None
+    register = Register(engine=engine, actor=actor)
+    try:
+        with engine.connect():
+            pass
+    except DBAPIError as exc:
+        engine.dispose()
+        raise RegisterError(
+            f"cannot open the register {database}: {str(exc.orig).splitlines()[0]}"
+        ) from None
+    return register
+
+
+@contextmanager
+def snapshot(register: Register) -> Iterator[Session]:
+    """A read-only session that sees one consistent moment of the register, even while
+    other desks write (PostgreSQL: REPEATABLE READ; SQLite: one read transaction)."""
+    with register.engine.connect() as connection:
+        if register.backend == "postgresql":
+            connection = connection.execution_options(isolation_level="REPEATABLE READ")
+        with Session(bind=connection, expire_on_commit=False) as session:
+            try:
+                yield session
+            finally:
+                session.rollback()
+
+
+def redacted_url(register: Register) -> str:
+    return register.engine.url.render_as_string(hide_password=True)
+
+
+# --- status and upgrade -----------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class RegisterStatus:
+    backend: str
+    database: str
+    revision: str | None
+    expected: str
+    series: int
+    codes: int
+    log_entries: int
+    head_id: int
+    head_hash: str
+
+    @property
+    def current(self) -> bool:
+        return self.revision == self.expected
+
+    def as_dict(self) -> dict[str, Any]:
+        data = dict(self.__dict__)
+        data["current"] = self.current
+        return data
+
+
+def register_status(register: Register) -> RegisterStatus:
+    revision = register.schema_revision()
+    series = codes = entries = head_id = 0
+    head_hash = ""
+    if revision == SCHEMA_HEAD:
+        from issuer.register.log import head
+
+        with snapshot(register) as session:
+            series = int(session.scalar(select(func.count()).select_from(Series)) or 0)
+            codes = int(session.scalar(select(func.count()).select_from(IssuedCode)) or 0)
+            entries = int(session.scalar(select(func.count()).select_from(LogEntry)) or 0)
+            head_id, head_hash = head(session)
+    return RegisterStatus(
+        backend=register.backend,
+        database=redacted_url(register),
+        revision=revision,
+        expected=SCHEMA_HEAD,
+        series=series,
+        codes=codes,
+        log_entries=entries,
+        head_id=head_id,
+        head_hash=head_hash,
+    )
+
+
+def upgrade_register(register: Register) -> tuple[str | None, str | None]:
+    """Bring the schema to this issuer's head; returns (before, after)."""
+    from issuer.register.migrate import upgrade_to_head
+
+    try:
+        before = register.schema_revision()
+        if before != SCHEMA_HEAD:
+            upgrade_to_head(register)
+        return before, register.schema_revision()
+    except DBAPIError as exc:
+        raise RegisterError(f"cannot upgrade the register: {str(exc.orig).splitlines()[0]}") from None
+
+
+# --- roles (PostgreSQL) -------------------------------------------------------------
+
+
+def roles_script(register: Register, *, clerk: str, admin: str) -> list[str]:
+    """The role statements for this register's database and schema."""
+    from issuer.register.roles import roles_statements
+
+    if register.backend != "postgresql":
+        raise InvalidFormat(
+            "roles are a PostgreSQL feature; a SQLite register is guarded by its file's "
+            "permissions (issuer creates it owner-only)"
+        )
+    with register.engine.connect() as connection:
+        database, schema = connection.execute(
+            text("SELECT current_database(), current_schema()")
+        ).one()
+        tables = sorted(inspect(connection).get_table_names(schema=schema))
+    if "log_entry" not in tables:
+        raise RegisterError("this database holds no register yet: run 'issuer db upgrade' first")
+    return roles_statements(
+        database=str(database), schema=str(schema), tables=tables, clerk=clerk, admin=admin
+    )
+
+
+def apply_statements(register: Register, statements: list[str]) -> None:
+    """Run the statements in one transaction (as a role allowed to grant)."""
+    try:
+        with register.engine.begin() as connection:
+            # the driver's own cursor, without parameters: the SQL holds a literal '%'
+            cursor = connection.connection.cursor()
+            for statement in statements:
+                if not statement.startswith("--"):
+                    cursor.execute(statement)
+            cursor.close()
+    except DBAPIError as exc:
+        message = str(exc.orig).splitlines()[0]
+        if getattr(exc.orig, "sqlstate", None) == "42501":
+            raise PermissionDenied(
+                f"the connected role may not set up roles ({message}); connect as the "
+                "register's owner or a superuser"
+            ) from None
+        raise RegisterError(f"the role statements failed: {message}") from None
+
+
+# --- backup -------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class BackupResult:
+    source: str
+    destination: str
+    size: int
+    head_id: int
+    head_hash: str
+
+    def as_dict(self) -> dict[str, Any]:
+        return dict(self.__dict__)
+
+
+def _create_private(path: Path) -> None:
+    descriptor = os.open(path, os.O_CREAT | os.O_EXCL | os.O_WRONLY, 0o600)
+    os.close(descriptor)
+    os.chmod(path, 0o600)  # whatever the umask said
+
+
+def _fsync_directory(folder: Path) -> None:
+    try:
+        descriptor = os.open(folder, os.O_RDONLY)
+    except OSError:  # pragma: no cover - platforms without directory handles
+        return
+    try:
+        os.fsync(descriptor)
+    finally:
+        os.close(descriptor)
+
+
+def backup_sqlite(
+    register: Register, destination: str | Path, *, force: bool = False,
+    progress: Progress | None = None,
+) -> BackupResult:
+    """Copy a SQLite register with SQLite's online backup API while desks keep working.
+
+    The copy is written owner-only (0600) to a temporary file beside ``destination``,
+    checked (``PRAGMA integrity_check``), switched out of WAL so it is one
+    self-contained file, and only then renamed into place: an interrupted backup never
+    leaves something that looks like a good one.
+    """
+    source = sqlite_path(register)
+    if source is None:
+        raise InvalidFormat("online backup works on a SQLite register file")
+    target = Path(destination).expanduser().resolve()
+    if target == source.resolve():
+        raise InvalidFormat("the backup cannot overwrite the register itself")
+    if target.is_dir():
+        raise InvalidFormat(f"{target} is a folder; give a file name for the backup")
+    if target.exists() and not force:
+        raise Conflict(f"{target} exists already; use --force to overwrite it")
+    if not target.parent.is_dir():
+        raise InvalidFormat(f"the folder {target.parent} does not exist")
+    partial = target.parent / f".{target.name}.{os.getpid()}.partial"
+    try:
+        _create_private(partial)
+    except OSError as exc:
+        raise RegisterError(f"cannot write the backup in {target.parent}: {exc.strerror}") from None
+    try:
+        head_id, head_hash = _copy(source, partial, progress)
+        os.replace(partial, target)
+        _fsync_directory(target.parent)
+    except BaseException:
+        for leftover in (partial, Path(f"{partial}-journal"), Path(f"{partial}-wal"), Path(f"{partial}-shm")):
+            leftover.unlink(missing_ok=True)
+        raise
+    return BackupResult(str(source), str(target), target.stat().st_size, head_id, head_hash)
+
+
+def _copy(source: Path, partial: Path, progress: Progress | None) -> tuple[int, str]:
+    reader = sqlite3.connect(source, isolation_level=None, timeout=15)
+    writer = sqlite3.connect(partial, isolation_level=None)
+    try:
+        # one read transaction: every step copies the same moment of the register,
+        # however many desks commit meanwhile
+        reader.execute("BEGIN")
+        reader.execute("SELECT count(*) FROM sqlite_master").fetchone()
+
+        def report(_status: int, remaining: int, total: int) -> None:
+            if progress is not None:
+                progress(total - remaining, total)
+
+        reader.backup(writer, pages=4096, progress=report)
+        reader.execute("COMMIT")
+        writer.execute("PRAGMA journal_mode = DELETE")
+        check = writer.execute("PRAGMA integrity_check").fetchall()
+        if check != [("ok",)]:
+            raise RegisterError(f"the copy failed its integrity check: {check[0][0]}")
+        row = writer.execute("SELECT last_id, last_hash FROM log_head WHERE id = 1").fetchone()
+    except sqlite3.Error as exc:
+        raise RegisterError(f"the backup failed: {exc}") from None
+    finally:
+        writer.close()
+        reader.close()
+    with open(partial, "rb+") as handle:
+        os.fsync(handle.fileno())
+    if row is None:
+        raise RegisterError("the copy has no log head: is the source a register?")
+    return int(row[0]), str(row[1])
+
+
+def pg_dump_command(register: Register, destination: str) -> list[str]:
+    """The pg_dump command that backs up a PostgreSQL register (we do not run it:
+    the server's own tool knows its version and format best)."""
+    url = register.engine.url.set(drivername="postgresql", password=None)
+    return [
+        "pg_dump",
+        "--format=custom",
+        f"--file={destination}",
+        f"--dbname={url.render_as_string(hide_password=False)}",
+    ]
+
+
+def pg_restore_command(register: Register, destination: str) -> list[str]:
+    url = register.engine.url.set(drivername="postgresql", password=None)
+    return ["pg_restore", "--clean", "--if-exists", f"--dbname={url.render_as_string()}", destination]
+
+
+def shell_line(command: list[str]) -> str:
+    return shlex.join(command)
+
+
+# --- anchors --------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class Anchor:
+    """A log entry's id and hash, written down somewhere the register cannot reach."""
+
+    entry_id: int
+    hash: str
+
+    def __str__(self) -> str:
+        return f"{self.entry_id}:{self.hash}"
+
+
+def parse_anchor(value: str) -> Anchor:
+    entry, sep, digest = value.strip().partition(":")
+    digest = digest.strip().lower()
+    if (
+        not sep
+        or not entry.strip().isdigit()
+        or len(digest) != 64
+        or any(ch not in "0123456789abcdef" for ch in digest)
+    ):
+        raise InvalidFormat(f"an anchor looks like 1234:<64 hex digits>, not {value!r}")
+    return Anchor(int(entry), digest)
+
+
+@dataclass(frozen=True)
+class AnchorCheck:
+    anchor: Anchor
+    problem: str | None
+
+    @property
+    def holds(self) -> bool:
+        return self.problem is None
+
+
+def check_anchor(session: Session, report: ChainReport, anchor: Anchor) -> AnchorCheck:
+    """Whether the anchored entry is still in the chain, with the same hash.
+
+    With the chain intact up to it, a matching hash means every entry up to the
+    anchor is as it was when the anchor was written down.
+    """
+    stored = session.scalar(select(LogEntry.hash).where(LogEntry.id == anchor.entry_id))
+    if stored is None:
+        return AnchorCheck(anchor, f"entry {anchor.entry_id} is no longer in the log")
+    if stored != anchor.hash:
+        return AnchorCheck(
+            anchor, f"entry {anchor.entry_id} has a different hash now: the log was rewritten"
+        )
+    if report.problem is not None and report.problem.entry_id <= anchor.entry_id:
+        return AnchorCheck(
+            anchor, f"the chain breaks at entry {report.problem.entry_id}, before the anchor"
+        )
+    return AnchorCheck(anchor, None)
+
+
+def verify_log(
+    register: Register, anchors: Sequence[Anchor] = ()
+) -> tuple[ChainReport, list[AnchorCheck]]:
+    """Recompute the whole chain in one consistent snapshot; check anchors."""
+    with snapshot(register) as session:
+        report = verify_chain(session)
+        checks = [check_anchor(session, report, anchor) for anchor in anchors]
+    return report, checks
+
+
+def current_anchor(register: Register) -> tuple[Anchor, Any]:
+    """The newest entry as an anchor, with its time."""
+    from issuer.register.log import head
+
+    with snapshot(register) as session:
+        head_id, head_hash = head(session)
+        at = session.scalar(select(LogEntry.at).where(LogEntry.id == head_id)) if head_id else None
+    return Anchor(head_id, head_hash), at

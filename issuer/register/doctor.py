@@ -1,0 +1,353 @@
+"""``issuer doctor``: is this register whole?
+
+Each check reads one consistent snapshot and answers ``ok``, ``warn`` (worth a look,
+not wrong) or ``problem`` (the register disagrees with itself). The checks:
+
+* the database's own integrity check (SQLite ``PRAGMA integrity_check`` and
+  ``foreign_key_check``; PostgreSQL checks its own pages — ``pg_amcheck`` goes deeper);
+* the schema's migration level against the one this issuer needs;
+* the log's hash chain, recomputed from the first entry;
+* every series' counters against the codes it holds: ``code_count`` equals the rows,
+  and the counter covers exactly the numbers issued (an in-order series without a gap);
+* every batch whole: as many codes as it says, each batch logged once, the logged
+  count and the SHA-256 over its codes matching what is stored;
+* voids logged, replacement links pointing both ways;
+* SQLite: the file owner-only; PostgreSQL: the log's append-only trigger in place.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import stat
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from typing import Any
+
+from sqlalchemy import text
+from sqlalchemy.orm import Session
+
+from issuer.register.admin import snapshot, sqlite_path
+from issuer.register.log import verify_chain
+from issuer.register.models import SCATTERED
+from issuer.register.store import SCHEMA_HEAD, Register
+
+OK, WARN, PROBLEM, SKIPPED = "ok", "warn", "problem", "skipped"
+#: at most this many particulars listed per check
+MAX_DETAILS = 10
+
+Stage = Callable[[str], None]
+
+
+@dataclass
+class Finding:
+    check: str
+    status: str
+    summary: str
+    details: list[str] = field(default_factory=list)
+
+    def as_dict(self) -> dict[str, Any]:
+        return dict(self.__dict__)
+
+
+@dataclass
+class DoctorReport:
+    database: str
+    backend: str
+    findings: list[Finding]
+
+    @property
+    def healthy(self) -> bool:
+        return all(finding.status != PROBLEM for finding in self.findings)
+
+    def as_dict(self) -> dict[str, Any]:
+        return {
+            "database": self.database,
+            "backend": self.backend,
+            "healthy": self.healthy,
+            "findings": [finding.as_dict() for finding in self.findings],
+        }
+
+
+def _finding(check: str, problems: list[str], ok_summary: str, bad_summary: str) -> Finding:
+    if not problems:
+        return Finding(check, OK, ok_summary)
+    more = len(problems) - MAX_DETAILS
+    details = problems[:MAX_DETAILS] + ([f"... and {more} more"] if more > 0 else [])
+    return Finding(check, PROBLEM, bad_summary.format(n=len(problems)), details)
+
+
+def check_integrity(register: Register, session: Session) -> Finding:
+    if register.backend != "sqlite":
+        return Finding(
+            "integrity", SKIPPED,
+            f"{register.backend} checks its own pages; pg_amcheck runs a deeper check",
+        )
+    rows = [str(row[0]) for row in session.execute(text("PRAGMA integrity_check"))]
+    problems = [] if rows == ["ok"] else rows
+    problems += [
+        f"table {row[0]} row {row[1]} points to a missing {row[2]} row"
+        for row in session.execute(text("PRAGMA foreign_key_check"))
+    ]
+    return _finding("integrity", problems, "SQLite integrity check passed", "{n} integrity problem(s)")
+
+
+def check_schema(revision: str | None) -> Finding:
+    if revision == SCHEMA_HEAD:
+        return Finding("schema", OK, f"at migration {revision}, as this issuer needs")
+    if revision is None:
+        return Finding("schema", PROBLEM, "no register schema here (run 'issuer db upgrade')")
+    return Finding(
+        "schema", PROBLEM,
+        f"at migration {revision}, this issuer needs {SCHEMA_HEAD}: run 'issuer db upgrade'",
+    )
+
+
+def check_log(session: Session) -> Finding:
+    report = verify_chain(session)
+    if report.problem is None:
+        return Finding("log chain", OK, f"{report.entries} entries, chain intact up to #{report.head_id}")
+    return Finding(
+        "log chain", PROBLEM,
+        f"the chain breaks at entry {report.problem.entry_id}",
+        [f"entry {report.problem.entry_id}: {report.problem.problem}"],
+    )
+
+
+def _series_rows(session: Session) -> list[Any]:
+    return list(session.execute(text(
+        "SELECT s.id, s.key, s.mode, s.range_start, s.range_end, s.next_counter, s.code_count, "
+        "s.imported_count, "
+        "(SELECT count(*) FROM issued_code c WHERE c.series_id = s.id) AS held, "
+        "(SELECT count(*) FROM issued_code c JOIN batch b ON b.id = c.batch_id "
+        " WHERE c.series_id = s.id AND b.kind = 'import') AS imported "
+        "FROM series s ORDER BY s.key"
+    )))
+
+
+def _counter_problems(session: Session, row: Any) -> list[str]:
+    key, problems = row.key, []
+    if row.code_count != row.held:
+        problems.append(f"{key}: code_count says {row.code_count}, the series holds {row.held} codes")
+    if row.imported_count != row.imported:
+        problems.append(f"{key}: imported_count says {row.imported_count}, imports hold {row.imported}")
+    capacity = row.range_end - row.range_start + 1
+    if not 0 <= row.next_counter <= capacity:
+        return problems + [f"{key}: next_counter {row.next_counter} is outside 0..{capacity}"]
+    bases = {
+        kind: [int(b) for (b,) in session.execute(text(
+            "SELECT c.base FROM issued_code c JOIN batch b ON b.id = c.batch_id "
+            f"WHERE c.series_id = :s AND b.kind {'=' if kind else '<>'} 'import'"
+        ), {"s": row.id})]
+        for kind in (True, False)
+    }
+    imported, drawn = bases[True], bases[False]
+    if row.mode == SCATTERED:
+        try:
+            counters_of = _scatter_counters(session, row.id)
+        except ImportError:  # pragma: no cover - scatter ships with issuer
+            return problems + [f"{key}: cannot check a scattered series without issuer.scatter"]
+        drawn_counters, imported_counters = counters_of(drawn), counters_of(imported)
+    else:
+        drawn_counters = [base - row.range_start for base in drawn]
+        imported_counters = [base - row.range_start for base in imported]
+    beyond = [k for k in drawn_counters if not 0 <= k < row.next_counter]
+    if beyond:
+        problems.append(
+            f"{key}: {len(beyond)} issued code(s) lie beyond the counter {row.next_counter}"
+        )
+    skipped = sum(1 for k in imported_counters if 0 <= k < row.next_counter)
+    if len(drawn) + skipped != row.next_counter:
+        missing = row.next_counter - len(drawn) - skipped
+        what = "missing (a gap)" if missing > 0 else "too many"
+        problems.append(
+            f"{key}: the counter has used {row.next_counter} numbers but {len(drawn)} issued "
+            f"and {skipped} imported are held: {abs(missing)} {what}"
+        )
+    return problems
+
+
+def _scatter_counters(session: Session, series_id: int) -> Callable[[list[int]], list[int]]:
+    from issuer.register.models import Series
+    from issuer.register.series import permutation
+
+    series = session.get(Series, series_id)
+    assert series is not None
+    scatter = permutation(series)
+
+    def counters(bases: list[int]) -> list[int]:
+        if not bases:
+            return []
+        return [int(k) for k in scatter.counters_for_bases(bases)]
+
+    return counters
+
+
+def check_counters(session: Session) -> Finding:
+    rows = _series_rows(session)
+    problems = [problem for row in rows for problem in _counter_problems(session, row)]
+    return _finding(
+        "counters", problems,
+        f"{len(rows)} series: counters agree with the codes held",
+        "{n} counter problem(s)",
+    )
+
+
+def check_batches(session: Session) -> Finding:
+    problems = [
+        f"batch {row[0]} ({row[1]}) says {row[2]} code(s), holds {row[3]}: half-issued"
+        for row in session.execute(text(
+            "SELECT b.id, b.kind, b.count, count(c.id) FROM batch b "
+            "LEFT JOIN issued_code c ON c.batch_id = b.id "
+            "GROUP BY b.id, b.kind, b.count HAVING b.count <> count(c.id) ORDER BY b.id"
+        ))
+    ]
+    problems += [
+        f"code {row[0]} sits in batch {row[1]} of another series"
+        for row in session.execute(text(
+            "SELECT c.code, c.batch_id FROM issued_code c JOIN batch b ON b.id = c.batch_id "
+            "WHERE b.series_id <> c.series_id"
+        ))
+    ]
+    total = session.execute(text("SELECT count(*) FROM batch")).scalar_one()
+    return _finding("batches", problems, f"{total} batch(es), each whole", "{n} batch problem(s)")
+
+
+def _batch_digests(session: Session) -> dict[int, tuple[int, str, list[str]]]:
+    """Per batch: how many codes, the SHA-256 over them in issue order, the first two."""
+    found: dict[int, tuple[int, str, list[str]]] = {}
+    current: int | None = None
+    digest, count = hashlib.sha256(), 0
+    first: list[str] = []
+
+    def close() -> None:
+        if current is not None:
+            found[current] = (count, digest.hexdigest(), first)
+
+    rows = session.execute(
+        text("SELECT batch_id, code FROM issued_code ORDER BY batch_id, id"),
+        execution_options={"yield_per": 20_000},
+    )
+    for batch_id, code in rows:
+        if batch_id != current:
+            close()
+            current, digest, count, first = batch_id, hashlib.sha256(), 0, []
+        digest.update(code.encode("ascii") + b"\n")
+        count += 1
+        if len(first) < 2:
+            first.append(code)
+    close()
+    return found
+
+
+def check_log_agrees(session: Session) -> Finding:
+    problems: list[str] = []
+    digests = _batch_digests(session)
+    batches = {
+        int(row[0]): (str(row[1]), int(row[2]))
+        for row in session.execute(text("SELECT id, kind, count FROM batch"))
+    }
+    logged: dict[int, int] = {}
+    for entry_id, action, code, batch_id, detail_text in session.execute(text(
+        "SELECT id, action, code, batch_id, detail FROM log_entry WHERE batch_id IS NOT NULL "
+        "ORDER BY id"
+    )):
+        logged[batch_id] = logged.get(batch_id, 0) + 1
+        detail = json.loads(detail_text)
+        count, digest, first = digests.get(batch_id, (0, "", []))
+        if "count" in detail and int(detail["count"]) != count:
+            problems.append(f"log entry {entry_id} says {detail['count']} code(s), batch {batch_id} holds {count}")
+        if "codes_sha256" in detail and detail["codes_sha256"] != digest:
+            problems.append(f"log entry {entry_id}: batch {batch_id}'s codes differ from those logged")
+        if action in ("issue", "replace") and code is not None and first[:1] != [code]:
+            problems.append(f"log entry {entry_id} names {code}, batch {batch_id} holds {first[:1]}")
+    for batch_id, (kind, _count) in sorted(batches.items()):
+        times = logged.get(batch_id, 0)
+        if times == 0:
+            problems.append(f"batch {batch_id} ({kind}) has no log entry")
+        elif times > 1 and kind != "replace":
+            problems.append(f"batch {batch_id} ({kind}) is logged {times} times")
+    problems += [
+        f"{row[0]} is voided but no void of it is logged"
+        for row in session.execute(text(
+            "SELECT c.code FROM issued_code c JOIN batch b ON b.id = c.batch_id "
+            "WHERE c.status = 'voided' AND b.kind <> 'import' AND NOT EXISTS "
+            "(SELECT 1 FROM log_entry e WHERE e.code = c.code AND e.action = 'void')"
+        ))
+    ]
+    problems += [
+        f"{row[0]} and its replacement {row[1]} do not point at each other"
+        for row in session.execute(text(
+            "SELECT o.code, n.code FROM issued_code o JOIN issued_code n ON n.id = o.replaced_by_id "
+            "WHERE n.replaces_id IS NULL OR n.replaces_id <> o.id "
+            "UNION ALL "
+            "SELECT o.code, n.code FROM issued_code n JOIN issued_code o ON o.id = n.replaces_id "
+            "WHERE o.replaced_by_id IS NULL OR o.replaced_by_id <> n.id"
+        ))
+    ]
+    return _finding(
+        "log and codes", problems,
+        f"{len(batches)} batch(es) logged with matching counts and code digests; voids logged",
+        "{n} disagreement(s) between the log and the codes",
+    )
+
+
+def check_guard(register: Register, session: Session) -> Finding:
+    if register.backend == "sqlite":
+        path = sqlite_path(register)
+        if path is None:
+            return Finding("access", SKIPPED, "an in-memory register")
+        mode = stat.S_IMODE(path.stat().st_mode)
+        if mode & 0o022:
+            return Finding(
+                "access", PROBLEM,
+                f"{path} can be written by others (mode {mode:o}): chmod 600 it",
+            )
+        if mode & 0o044:
+            return Finding("access", WARN, f"{path} can be read by others (mode {mode:o}): chmod 600 it")
+        return Finding("access", OK, f"the register file is owner-only (mode {mode:o})")
+    if register.backend != "postgresql":
+        return Finding("access", SKIPPED, f"no access check for {register.backend}")
+    from issuer.register.roles import GUARD_TRIGGER
+
+    present = session.execute(
+        text(
+            "SELECT count(*) FROM pg_trigger WHERE tgrelid = to_regclass('log_entry') "
+            "AND tgname = :name AND tgenabled <> 'D'"
+        ),
+        {"name": GUARD_TRIGGER},
+    ).scalar_one()
+    if present:
+        return Finding("access", OK, "log_entry is append-only (trigger in place)")
+    return Finding(
+        "access", WARN,
+        "log_entry has no append-only trigger: 'issuer db roles --apply' sets it and the roles up",
+    )
+
+
+def run_doctor(register: Register, stage: Stage | None = None) -> DoctorReport:
+    """Every check, in one snapshot of the register."""
+    def say(what: str) -> None:
+        if stage is not None:
+            stage(what)
+
+    from issuer.register.admin import redacted_url
+
+    findings: list[Finding] = []
+    revision = register.schema_revision()
+    with snapshot(register) as session:
+        say("integrity check")
+        findings.append(check_integrity(register, session))
+        findings.append(check_schema(revision))
+        if revision == SCHEMA_HEAD:
+            say("log chain")
+            findings.append(check_log(session))
+            say("counters")
+            findings.append(check_counters(session))
+            say("batches")
+            findings.append(check_batches(session))
+            say("log against codes")
+            findings.append(check_log_agrees(session))
+        say("access")
+        findings.append(check_guard(register, session))
+    return DoctorReport(redacted_url(register), register.backend, findings)
