@@ -6,12 +6,18 @@ where the method says so, a larger set (ISO/IEC 7064 MOD 11-2's ``X``).
 
 Values, not text, are the common currency: ``compute_values`` is the method itself;
 the text forms and the numpy bulk forms are derived here once.
+
+A scheme may append no check character at all (``none``: ``check_length`` 0), and a
+method that protects only a limited number of positions (ISBN-10-style weights mod
+11) says so in :attr:`Scheme.max_body_length`; longer bodies are refused with
+:class:`~issuer.errors.InvalidLength` rather than silently left unprotected.
 """
 
 from __future__ import annotations
 
 from abc import ABC, abstractmethod
-from typing import TYPE_CHECKING, ClassVar, Sequence
+from collections.abc import Sequence
+from typing import TYPE_CHECKING, ClassVar
 
 from issuer.alphabets import Alphabet
 from issuer.errors import InvalidCheck, InvalidLength, UnsupportedAlphabet
@@ -34,21 +40,53 @@ class Scheme(ABC):
     source: ClassVar[str]
     #: the alphabet used when none is named
     natural_alphabet: ClassVar[str]
-    #: how many check characters the method appends
+    #: how many check characters the method appends (0 for ``none``)
     check_length: ClassVar[int] = 1
+    #: the longest body the method protects in every position; ``None``: no limit
+    max_body_length: ClassVar[int | None] = None
+    #: why :attr:`max_body_length` exists, for the refusal message
+    max_body_reason: ClassVar[str] = ""
+    #: error classes the method detects in every case (names as in ``issuer.assess``:
+    #: single, adjacent, jump, twin, jump_twin, phonetic); a promise the tests hold it to
+    guaranteed: ClassVar[frozenset[str]] = frozenset()
 
     def __init__(self, alphabet: Alphabet) -> None:
         reason = self.unsupported_reason(alphabet)
         if reason:
-            raise UnsupportedAlphabet(f"scheme {self.name} cannot serve alphabet {alphabet.name}: {reason}")
+            raise UnsupportedAlphabet(
+                f"scheme {self.name} cannot serve alphabet {alphabet.name} "
+                f"({alphabet.size} symbols): {reason}; {_suggestion(alphabet, self.name)}"
+            )
         self.alphabet = alphabet
         self.check_alphabet = self.make_check_alphabet(alphabet)
 
     # -- what a concrete scheme provides ---------------------------------------
     @classmethod
     def unsupported_reason(cls, alphabet: Alphabet) -> str | None:
-        """Why this scheme cannot serve ``alphabet``, or ``None`` when it can."""
+        """Why this scheme cannot serve ``alphabet`` (a short clause), or ``None``."""
         return None
+
+    def guarantees(self) -> frozenset[str]:
+        """The error classes this bound scheme always detects (see :attr:`guaranteed`)."""
+        return self.guaranteed
+
+    def require_body_length(self, length: int) -> None:
+        """Refuse a body longer than the method protects."""
+        limit = self.max_body_length
+        if limit is not None and length > limit:
+            raise InvalidLength(
+                f"scheme {self.name} protects at most {limit} body characters "
+                f"({self.max_body_reason}), not {length}"
+            )
+
+    def verify_values(self, body: Sequence[int], check: Sequence[int]) -> bool:
+        """Whether ``check`` (check-alphabet values) is a valid check for ``body``.
+
+        The default compares with the computed check; a method whose published
+        condition admits more than one check (ISO/IEC 7064 pure systems with two check
+        characters) overrides this with its own congruence.
+        """
+        return tuple(check) == self.compute_values(body)
 
     def make_check_alphabet(self, alphabet: Alphabet) -> Alphabet:
         """The set the check character(s) come from; the body alphabet by default."""
@@ -61,6 +99,7 @@ class Scheme(ABC):
     # -- derived text forms ------------------------------------------------------
     def compute(self, body: str) -> str:
         """The check character(s) for a canonical body."""
+        self.require_body_length(len(body))
         return self.check_alphabet.text(self.compute_values(self.alphabet.values(body)))
 
     def append(self, body: str) -> str:
@@ -70,18 +109,22 @@ class Scheme(ABC):
     def split(self, code: str) -> tuple[str, str]:
         """A canonical code split into (body, check)."""
         if len(code) <= self.check_length:
+            if self.check_length == 0:
+                raise InvalidLength("the code is empty")
             raise InvalidLength(f"a code needs more than {self.check_length} character(s)")
         cut = len(code) - self.check_length
         return code[:cut], code[cut:]
 
     def validate(self, code: str) -> str:
-        """Return ``code`` when its check character(s) match; raise otherwise."""
+        """Return ``code`` in canonical form when its check character(s) match; raise
+        otherwise. Case and the alphabets' folding rules apply (``u`` reads as ``U``)."""
         body, check = self.split(code)
-        self.alphabet.canonical(body)
-        self.check_alphabet.canonical(check)
-        if self.compute(body) != check:
+        body = self.alphabet.canonical(body)
+        check = self.check_alphabet.canonical(check)
+        self.require_body_length(len(body))
+        if not self.verify_values(self.alphabet.values(body), self.check_alphabet.values(check)):
             raise InvalidCheck(f"the check character of {code} does not match")
-        return code
+        return body + check
 
     def is_valid(self, code: str) -> bool:
         try:
@@ -99,6 +142,7 @@ class Scheme(ABC):
         """
         import numpy as np
 
+        self.require_body_length(bodies.shape[1])
         out = np.empty((bodies.shape[0], self.check_length), dtype=np.int64)
         for i, row in enumerate(bodies.tolist()):
             out[i] = self.compute_values(row)
@@ -113,10 +157,12 @@ class Scheme(ABC):
         import numpy as np
 
         cut = codes.shape[1] - self.check_length
+        self.require_body_length(cut)
         ok = (codes >= 0).all(axis=1)
         bodies = np.where(codes[:, :cut] < 0, 0, codes[:, :cut]).astype(np.int64)
         checks = self.compute_bulk(bodies)
-        return ok & (checks == codes[:, cut:]).all(axis=1)
+        valid: npt.NDArray[np.bool_] = ok & (checks == codes[:, cut:]).all(axis=1)
+        return valid
 
     def code_matrix(self, codes: Sequence[str] | npt.NDArray[np.bytes_], width: int) -> IntMatrix:
         """Equal-width canonical code texts as values, body and check columns each in
@@ -131,3 +177,22 @@ class Scheme(ABC):
 
     def __repr__(self) -> str:
         return f"<scheme {self.name} over {self.alphabet.name}>"
+
+
+def _suggestion(alphabet: Alphabet, refused: str) -> str:
+    """What would serve ``alphabet`` instead, as a clause for a one-line refusal."""
+    from issuer.schemes import SCHEMES  # the registry sits above this module
+
+    serving = [
+        name
+        for name, cls in SCHEMES.items()
+        if name not in (refused, "none", "luhn") and cls.unsupported_reason(alphabet) is None
+    ]
+    # name the full-strength choices first; the weaker ones only when nothing else serves
+    strong = [n for n in serving if {"single", "adjacent"} <= SCHEMES[n].guaranteed]
+    serving = strong or serving
+    if not serving:
+        return f"for {alphabet.size} symbols only luhn (Luhn mod {alphabet.size}) serves here"
+    if len(serving) == 1:
+        return f"use {serving[0]} for {alphabet.size} symbols"
+    return f"for {alphabet.size} symbols use {', '.join(serving[:-1])} or {serving[-1]}"

@@ -11,7 +11,8 @@ and sums the base-N digits of each doubled value.
 
 from __future__ import annotations
 
-from typing import TYPE_CHECKING, Sequence
+from collections.abc import Sequence
+from typing import TYPE_CHECKING
 
 from issuer.schemes.base import Scheme
 
@@ -24,6 +25,10 @@ class LuhnScheme(Scheme):
     title = "Luhn (mod 10), Luhn mod N on other alphabets"
     source = "ISO/IEC 7812-1 Annex B; Luhn mod N generalisation"
     natural_alphabet = "digits"
+
+    def guarantees(self) -> frozenset[str]:
+        # doubling with base-N digit sums permutes the values only when N is even
+        return frozenset({"single"}) if self.alphabet.size % 2 == 0 else frozenset()
 
     def compute_values(self, body: Sequence[int]) -> tuple[int, ...]:
         n = self.alphabet.size
@@ -46,4 +51,5 @@ class LuhnScheme(Scheme):
         work = bodies.astype(np.int64)
         doubled = work[:, doubled_columns] * 2
         total = (doubled // n + doubled % n).sum(axis=1) + work[:, ~doubled_columns].sum(axis=1)
-        return ((n - total % n) % n).reshape(-1, 1)
+        checks: IntMatrix = ((n - total % n) % n).reshape(-1, 1)
+        return checks
