@@ -223,7 +223,7 @@ class _Shape:
     is ``CIPH(last[i] XOR NUM(half))``: one block per string instead of the whole chain.
     """
 
-    __slots__ = ("b", "d", "last", "length", "mod_u", "mod_v", "u", "v", "vector")
+    __slots__ = ("b", "d", "domain", "last", "length", "mod_u", "mod_v", "u", "v", "vector")
 
     length: int
     u: int
@@ -232,6 +232,7 @@ class _Shape:
     d: int
     mod_u: int
     mod_v: int
+    domain: int
     last: list[int] | None
     vector: bool
 
@@ -243,6 +244,7 @@ class _Shape:
         self.d = 4 * -(-self.b // 4) + 4
         self.mod_u = int(radix**self.u)
         self.mod_v = int(radix**self.v)
+        self.domain = self.mod_u * self.mod_v
         self.last = None
         if self.b <= BLOCK:
             p = _p_block(radix, self.u, length, len(tweak))
@@ -295,6 +297,12 @@ class FF1:
 
     # one value: the string of `length` numerals whose NUM_radix is x
 
+    def _value_shape(self, length: int, x: int) -> _Shape:
+        shape = self.shape(length)
+        if not 0 <= x < shape.domain:
+            raise ValueError(f"{x} has no {length}-numeral string in radix {self.radix}")
+        return shape
+
     def _y(self, shape: _Shape, i: int, feed: int) -> int:
         assert shape.last is not None
         r = bytes(self._ciph.update((shape.last[i] ^ feed).to_bytes(BLOCK, "big")))
@@ -304,7 +312,7 @@ class FF1:
 
     def encrypt_int(self, length: int, x: int) -> int:
         """NUM_radix(FF1.Encrypt(STR^length_radix(x))), without building the string."""
-        shape = self.shape(length)
+        shape = self._value_shape(length, x)
         if shape.last is None:
             return num_radix(self.encrypt(str_radix(x, self.radix, length)), self.radix)
         a, b = divmod(x, shape.mod_v)
@@ -314,7 +322,7 @@ class FF1:
 
     def decrypt_int(self, length: int, x: int) -> int:
         """The inverse of :meth:`encrypt_int`."""
-        shape = self.shape(length)
+        shape = self._value_shape(length, x)
         if shape.last is None:
             return num_radix(self.decrypt(str_radix(x, self.radix, length)), self.radix)
         a, b = divmod(x, shape.mod_v)

@@ -138,6 +138,14 @@ def test_bad_input_is_refused() -> None:
     assert min_length(2) == 7 and min_length(10) == 2 and min_length(36) == 2
 
 
+def test_value_outside_the_domain_is_refused() -> None:
+    ff1 = FF1(bytes(16), 10)
+    with pytest.raises(ValueError):
+        ff1.encrypt_int(4, 10_000)
+    with pytest.raises(ValueError):
+        ff1.decrypt_int(4, -1)
+
+
 def test_engine_repr_hides_the_key() -> None:
     key = bytes(range(16))
     assert key.hex() not in repr(FF1(key, 10)) and repr(key) not in repr(FF1(key, 10))
