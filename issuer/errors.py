@@ -69,3 +69,16 @@ class Exhausted(RegisterError):
 
 class PermissionDenied(RegisterError):
     default_message = "the database refused this act for the connected role"
+
+
+class LabelError(IssuerError, ValueError):
+    """A label job that cannot be printed as asked (nothing to print, a code too long
+    for the label at the smallest printable module, a bad start position)."""
+
+    default_message = "the labels cannot be printed as asked"
+
+
+class LayoutError(LabelError):
+    """A label layout that is badly described or does not fit its page."""
+
+    default_message = "the label layout is not valid"

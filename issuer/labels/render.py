@@ -1,0 +1,415 @@
+"""Render labels: a PDF sheet (many pages), or one label as PNG or SVG.
+
+Everything is checked before a file is touched (an empty selection, a bad start
+position, a code that cannot be a barcode, a label too small for its content). The
+output is written to a temporary file in the target folder and moved into place at the
+end, so a failure never leaves a half-written file behind.
+
+Printing: the PDF's page is the layout's page and nothing is scaled; print it at 100 %
+(actual size), never "fit to page". The PDF's metadata says so and gives the layout's
+dimensions.
+"""
+
+from __future__ import annotations
+
+import io
+import os
+import re
+import tempfile
+from collections.abc import Callable, Iterator, Sequence
+from contextlib import contextmanager
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from issuer.errors import LabelError
+from issuer.labels.barcodes import Symbol, check_symbology, encode, gs1_giai
+from issuer.labels.layouts import Box, Layout
+from issuer.labels.painters import DrawingPainter, Painter, PdfPainter, draw_label
+from issuer.labels.plan import PT_PER_MM, CellPlan, plan_cell
+
+FORMATS = ("pdf", "png", "svg")
+PRINT_NOTE = "Print at 100 % scale (actual size); do not fit to page."
+_PROGRESS_EVERY = 100
+
+
+@dataclass(frozen=True)
+class LabelContent:
+    """What one label shows: the canonical ``code`` (what the barcode carries), its grouped
+    ``display`` form, optional caption ``lines`` (series title, holder, a short caption)
+    and whether it is marked VOID."""
+
+    code: str
+    display: str
+    lines: tuple[str, ...] = ()
+    void: bool = False
+
+
+@dataclass(frozen=True)
+class Placement:
+    """Where label ``index`` of the job went: page and cell (0-based), the cell, the
+    symbol's dark part and the symbol with its quiet zone, in mm from the page's top-left."""
+
+    index: int
+    page: int
+    row: int
+    column: int
+    cell: Box
+    symbol: Box
+    quiet: Box
+
+
+@dataclass(frozen=True)
+class RenderResult:
+    path: Path
+    format: str
+    layout: Layout  # for PNG/SVG: the one-label page
+    symbology: str
+    labels: int
+    pages: int
+    skip: int
+    module_mm: float
+    dpi: int | None
+    placements: tuple[Placement, ...] = field(repr=False)
+
+
+@dataclass(frozen=True)
+class _Job:
+    labels: tuple[LabelContent, ...]
+    symbols: tuple[Symbol, ...]
+    lines: tuple[tuple[str, ...], ...]
+    plan: CellPlan
+
+
+def output_format(out: str | os.PathLike[str]) -> str:
+    suffix = Path(out).suffix.lower().lstrip(".")
+    if suffix not in FORMATS:
+        raise LabelError(
+            f"cannot tell the format of {os.fspath(out)!r}: end it in .pdf, .png or .svg"
+        )
+    return suffix
+
+
+def _printable(text: str, what: str) -> str:
+    # the built-in PDF fonts cover the Windows-1252 character set
+    try:
+        text.encode("cp1252")
+    except UnicodeEncodeError as exc:
+        raise LabelError(
+            f"{what} {text!r}: character {text[exc.start]!r} cannot be printed with the "
+            "built-in fonts"
+        ) from None
+    return text
+
+
+def prepare(
+    labels: Sequence[LabelContent],
+    layout: Layout,
+    symbology: str,
+    gs1_company_prefix: str | None = None,
+) -> _Job:
+    """Encode every symbol and fit one arrangement for all labels; raises before any
+    output exists."""
+    if not labels:
+        raise LabelError("nothing to print: the selection is empty")
+    symbology = check_symbology(symbology)
+    symbols: list[Symbol] = []
+    all_lines: list[tuple[str, ...]] = []
+    gs1 = gs1_company_prefix is not None
+    for label in labels:
+        if gs1:
+            data = gs1_giai(str(gs1_company_prefix), label.code)
+            lines = (f"({data[:4]}) {data[4:]}", *label.lines)
+        else:
+            data, lines = label.code, tuple(label.lines)
+        symbols.append(encode(symbology, data, gs1=gs1))
+        _printable(label.display, "code")
+        for line in lines:
+            _printable(line, "line")
+        all_lines.append(lines)
+    plan = plan_cell(
+        layout,
+        symbology,
+        columns=max(s.columns for s in symbols),
+        rows=max(s.rows for s in symbols),
+        code_chars=max(len(label.display) for label in labels),
+        lines=max(len(lines) for lines in all_lines),
+        void=any(label.void for label in labels),
+    )
+    return _Job(tuple(labels), tuple(symbols), tuple(all_lines), plan)
+
+
+@contextmanager
+def _atomic(out: str | os.PathLike[str]) -> Iterator[Path]:
+    """A temporary path beside ``out``, moved onto ``out`` only when the block succeeds."""
+    target = Path(out)
+    folder = target.parent if str(target.parent) else Path(".")
+    if not folder.is_dir():
+        raise LabelError(f"folder {os.fspath(folder)!r} does not exist")
+    if target.is_dir():
+        raise LabelError(f"{os.fspath(target)!r} is a folder")
+    fd, name = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".part", dir=folder)
+    os.close(fd)
+    temp = Path(name)
+    try:
+        yield temp
+        os.replace(temp, target)
+    finally:
+        if temp.exists():
+            temp.unlink()
+
+
+def _shift(box: Box, dx: float, dy: float) -> Box:
+    return Box(box.x + dx, box.y + dy, box.width, box.height)
+
+
+def _draw_job(
+    painter: Painter,
+    job: _Job,
+    layout: Layout,
+    skip: int,
+    new_page: Callable[[], None] | None,
+    progress: Callable[[int], None] | None,
+    outlines: bool = False,
+) -> tuple[int, tuple[Placement, ...]]:
+    """Draw every label; return (pages used, placements)."""
+    plan = job.plan
+    placements: list[Placement] = []
+    page = 0
+    if outlines:
+        _outline(painter, layout)
+    for index, (label, symbol, lines) in enumerate(zip(job.labels, job.symbols, job.lines)):
+        on_page, row, column = layout.position(skip + index)
+        if on_page != page:
+            if new_page is not None:
+                new_page()
+            page = on_page
+            if outlines:
+                _outline(painter, layout)
+        cell = layout.cell(row, column)
+        symbol_box = _shift(plan.symbol_box(symbol.columns, symbol.rows), cell.x, cell.y)
+        draw_label(painter, plan, cell, symbol, symbol_box, label.display, lines, label.void)
+        quiet = _shift(plan.quiet_box(symbol.columns, symbol.rows), cell.x, cell.y)
+        placements.append(Placement(index, on_page, row, column, cell, symbol_box, quiet))
+        if progress is not None and (index + 1) % _PROGRESS_EVERY == 0:
+            progress(index + 1)
+    if progress is not None and len(job.labels) % _PROGRESS_EVERY:
+        progress(len(job.labels))
+    return page + 1, tuple(placements)
+
+
+OUTLINE_MM = 0.1
+OUTLINE_GREY = 0.6
+
+
+def _outline(painter: Painter, layout: Layout) -> None:
+    """Thin grey outlines of every cell of the page: a test print on plain paper, held
+    against a label sheet, shows whether the printer keeps to the layout."""
+    for row in range(layout.rows):
+        for column in range(layout.columns):
+            painter.frame(layout.cell(row, column), OUTLINE_MM, OUTLINE_GREY)
+
+
+def _pdf(
+    target: Any,
+    job: _Job,
+    layout: Layout,
+    skip: int,
+    title: str | None,
+    progress: Callable[[int], None] | None,
+    outlines: bool = False,
+) -> tuple[int, tuple[Placement, ...]]:
+    from reportlab.pdfgen.canvas import Canvas
+
+    canvas = Canvas(
+        target, pagesize=(layout.page_width * PT_PER_MM, layout.page_height * PT_PER_MM)
+    )
+    canvas.setTitle(title or f"issuer labels ({layout.name})")
+    canvas.setSubject(f"{PRINT_NOTE} Layout {layout.name}: {layout.summary()}.")
+    canvas.setKeywords(
+        f"labels, {job.plan.symbology}, layout {layout.name}, print at 100 % scale, actual size, "
+        f"page {layout.page_width:g} x {layout.page_height:g} mm, "
+        f"label {layout.label_width:g} x {layout.label_height:g} mm"
+    )
+    canvas.setCreator("issuer")
+    painter = PdfPainter(canvas, layout.page_height)
+    pages, placements = _draw_job(painter, job, layout, skip, painter.new_page, progress, outlines)
+    canvas.showPage()
+    canvas.save()
+    return pages, placements
+
+
+def render_sheet(
+    labels: Sequence[LabelContent],
+    layout: Layout,
+    out: str | os.PathLike[str],
+    *,
+    symbology: str = "code128",
+    skip: int = 0,
+    gs1_company_prefix: str | None = None,
+    title: str | None = None,
+    outlines: bool = False,
+    progress: Callable[[int], None] | None = None,
+) -> RenderResult:
+    """Render ``labels`` in order onto sheets of ``layout`` as one PDF at ``out``.
+
+    ``skip`` leaves that many cells of the first page empty (a partly used sheet),
+    counted row by row from the top-left. ``outlines`` adds thin grey cell outlines (for a
+    test print on plain paper). ``progress`` is called with the number of labels drawn
+    so far (every 100 labels and at the end).
+    """
+    if not 0 <= skip < layout.per_page:
+        raise LabelError(
+            f"--skip must be 0 to {layout.per_page - 1} for layout {layout.name!r} "
+            f"({layout.per_page} labels a sheet)"
+        )
+    job = prepare(labels, layout, symbology, gs1_company_prefix)
+    with _atomic(out) as temp:
+        pages, placements = _pdf(str(temp), job, layout, skip, title, progress, outlines)
+    return RenderResult(
+        Path(out),
+        "pdf",
+        layout,
+        job.plan.symbology,
+        len(labels),
+        pages,
+        skip,
+        job.plan.module,
+        None,
+        placements,
+    )
+
+
+def _single(
+    label: LabelContent, layout: Layout, symbology: str, gs1: str | None
+) -> tuple[_Job, Layout]:
+    single = layout.single()
+    return prepare([label], single, symbology, gs1), single
+
+
+def render_png(
+    label: LabelContent,
+    layout: Layout,
+    out: str | os.PathLike[str],
+    *,
+    symbology: str = "code128",
+    dpi: int = 300,
+    gs1_company_prefix: str | None = None,
+) -> RenderResult:
+    """One label of ``layout``'s label size as a PNG at ``dpi`` (the file records its dpi,
+    so it prints at the label's size): the label is drawn as a one-page PDF and rasterised
+    with pdfium."""
+    if not 72 <= dpi <= 2400:
+        raise LabelError("dpi must be between 72 and 2400")
+    job, single = _single(label, layout, symbology, gs1_company_prefix)
+    import pypdfium2 as pdfium
+
+    buffer = io.BytesIO()
+    _, placements = _pdf(buffer, job, single, 0, None, None)
+    with _atomic(out) as temp:
+        document = pdfium.PdfDocument(buffer.getvalue())
+        try:
+            bitmap = document[0].render(scale=dpi / 72.0, grayscale=True)
+            bitmap.to_pil().save(temp, format="PNG", dpi=(dpi, dpi))
+        finally:
+            document.close()
+    return RenderResult(
+        Path(out), "png", single, job.plan.symbology, 1, 1, 0, job.plan.module, dpi, placements
+    )
+
+
+def render_svg(
+    label: LabelContent,
+    layout: Layout,
+    out: str | os.PathLike[str],
+    *,
+    symbology: str = "code128",
+    gs1_company_prefix: str | None = None,
+) -> RenderResult:
+    """One label as SVG (reportlab's SVG renderer), sized in millimetres."""
+    job, single = _single(label, layout, symbology, gs1_company_prefix)
+    from reportlab.graphics import renderSVG
+
+    painter = DrawingPainter(single.page_width, single.page_height)
+    _, placements = _draw_job(painter, job, single, 0, None, None)
+    text = renderSVG.drawToString(painter.drawing)
+    text = _svg_physical_size(text, single)
+    with _atomic(out) as temp:
+        temp.write_text(text, encoding="utf-8")
+    return RenderResult(
+        Path(out), "svg", single, job.plan.symbology, 1, 1, 0, job.plan.module, None, placements
+    )
+
+
+def _svg_physical_size(text: str, layout: Layout) -> str:
+    """Give the SVG's width and height in mm (the viewBox stays in points), and name
+    real font families for the built-in PDF font names."""
+    head, sep, rest = text.partition("<svg ")
+    tag, close, body = rest.partition(">")
+    tag = re.sub(r'\bwidth="[^"]*"', f'width="{layout.page_width:g}mm"', tag, count=1)
+    tag = re.sub(r'\bheight="[^"]*"', f'height="{layout.page_height:g}mm"', tag, count=1)
+    for name, family in _SVG_FONTS.items():
+        body = body.replace(f"font-family: {name};", family)
+    return head + sep + tag + close + body
+
+
+_SVG_FONTS = {
+    "Courier-Bold": "font-family: Courier, monospace; font-weight: bold;",
+    "Helvetica-Bold": "font-family: Helvetica, Arial, sans-serif; font-weight: bold;",
+    "Helvetica": "font-family: Helvetica, Arial, sans-serif;",
+}
+
+
+def render_labels(
+    labels: Sequence[LabelContent],
+    layout: Layout,
+    out: str | os.PathLike[str],
+    *,
+    symbology: str = "code128",
+    skip: int = 0,
+    gs1_company_prefix: str | None = None,
+    dpi: int = 300,
+    title: str | None = None,
+    outlines: bool = False,
+    progress: Callable[[int], None] | None = None,
+) -> RenderResult:
+    """Render to ``out`` in the format its suffix names: ``.pdf`` a sheet of any number of
+    labels; ``.png`` or ``.svg`` exactly one label."""
+    kind = output_format(out)
+    if kind == "pdf":
+        return render_sheet(
+            labels,
+            layout,
+            out,
+            symbology=symbology,
+            skip=skip,
+            gs1_company_prefix=gs1_company_prefix,
+            title=title,
+            outlines=outlines,
+            progress=progress,
+        )
+    if not labels:
+        raise LabelError("nothing to print: the selection is empty")
+    if len(labels) != 1:
+        raise LabelError(
+            f"a {kind.upper()} holds one label and {len(labels)} were selected; "
+            "write a .pdf instead"
+        )
+    if skip:
+        raise LabelError("--skip applies to PDF sheets only")
+    if kind == "png":
+        result = render_png(
+            labels[0],
+            layout,
+            out,
+            symbology=symbology,
+            dpi=dpi,
+            gs1_company_prefix=gs1_company_prefix,
+        )
+    else:
+        result = render_svg(
+            labels[0], layout, out, symbology=symbology, gs1_company_prefix=gs1_company_prefix
+        )
+    if progress is not None:
+        progress(1)
+    return result
