@@ -96,21 +96,25 @@ def plan_cell(
     code_chars: int,
     lines: int,
     void: bool,
+    beside: bool = False,
 ) -> CellPlan:
     """Fit the job's widest symbol (``columns`` x ``rows`` modules), its longest
     human-readable code and its most lines into one label of ``layout``.
+
+    The code goes beneath the symbol; with ``beside`` a 2D symbol goes at the left and
+    the text at its right when the label is wide enough for both.
 
     Raises :class:`LabelError` when the label is too small for the symbol at the
     symbology's smallest module, for legible type, or for a usable bar height.
     """
     content = Box(0.0, 0.0, layout.label_width, layout.label_height).inset(layout.padding)
     quiet = QUIET_ZONE[symbology]
-    if symbology != "code128":
-        beside = _plan_beside(
+    if beside and symbology != "code128":
+        plan = _plan_beside(
             layout, content, symbology, columns, rows, quiet, code_chars, lines, void
         )
-        if beside is not None:
-            return beside
+        if plan is not None:
+            return plan
     return _plan_stacked(layout, content, symbology, columns, rows, quiet, code_chars, lines, void)
 
 

@@ -107,6 +107,7 @@ def prepare(
     layout: Layout,
     symbology: str,
     gs1_company_prefix: str | None = None,
+    text_beside: bool = False,
 ) -> _Job:
     """Encode every symbol and fit one arrangement for all labels; raises before any
     output exists."""
@@ -135,6 +136,7 @@ def prepare(
         code_chars=max(len(label.display) for label in labels),
         lines=max(len(lines) for lines in all_lines),
         void=any(label.void for label in labels),
+        beside=text_beside,
     )
     return _Job(tuple(labels), tuple(symbols), tuple(all_lines), plan)
 
@@ -249,21 +251,23 @@ def render_sheet(
     gs1_company_prefix: str | None = None,
     title: str | None = None,
     outlines: bool = False,
+    text_beside: bool = False,
     progress: Callable[[int], None] | None = None,
 ) -> RenderResult:
     """Render ``labels`` in order onto sheets of ``layout`` as one PDF at ``out``.
 
     ``skip`` leaves that many cells of the first page empty (a partly used sheet),
-    counted row by row from the top-left. ``outlines`` adds thin grey cell outlines (for a
+    counted row by row from the top-left. ``text_beside`` puts the text at the right of
+    a 2D symbol on wide labels (default: beneath it). ``outlines`` adds thin grey cell outlines (for a
     test print on plain paper). ``progress`` is called with the number of labels drawn
     so far (every 100 labels and at the end).
     """
     if not 0 <= skip < layout.per_page:
         raise LabelError(
-            f"--skip must be 0 to {layout.per_page - 1} for layout {layout.name!r} "
-            f"({layout.per_page} labels a sheet)"
+            f"the start position (skip) must be 0 to {layout.per_page - 1} for layout "
+            f"{layout.name!r} ({layout.per_page} labels a sheet)"
         )
-    job = prepare(labels, layout, symbology, gs1_company_prefix)
+    job = prepare(labels, layout, symbology, gs1_company_prefix, text_beside)
     with _atomic(out) as temp:
         pages, placements = _pdf(str(temp), job, layout, skip, title, progress, outlines)
     return RenderResult(
@@ -281,10 +285,10 @@ def render_sheet(
 
 
 def _single(
-    label: LabelContent, layout: Layout, symbology: str, gs1: str | None
+    label: LabelContent, layout: Layout, symbology: str, gs1: str | None, beside: bool
 ) -> tuple[_Job, Layout]:
     single = layout.single()
-    return prepare([label], single, symbology, gs1), single
+    return prepare([label], single, symbology, gs1, beside), single
 
 
 def render_png(
@@ -295,13 +299,14 @@ def render_png(
     symbology: str = "code128",
     dpi: int = 300,
     gs1_company_prefix: str | None = None,
+    text_beside: bool = False,
 ) -> RenderResult:
     """One label of ``layout``'s label size as a PNG at ``dpi`` (the file records its dpi,
     so it prints at the label's size): the label is drawn as a one-page PDF and rasterised
     with pdfium."""
     if not 72 <= dpi <= 2400:
         raise LabelError("dpi must be between 72 and 2400")
-    job, single = _single(label, layout, symbology, gs1_company_prefix)
+    job, single = _single(label, layout, symbology, gs1_company_prefix, text_beside)
     import pypdfium2 as pdfium
 
     buffer = io.BytesIO()
@@ -325,9 +330,10 @@ def render_svg(
     *,
     symbology: str = "code128",
     gs1_company_prefix: str | None = None,
+    text_beside: bool = False,
 ) -> RenderResult:
     """One label as SVG (reportlab's SVG renderer), sized in millimetres."""
-    job, single = _single(label, layout, symbology, gs1_company_prefix)
+    job, single = _single(label, layout, symbology, gs1_company_prefix, text_beside)
     from reportlab.graphics import renderSVG
 
     painter = DrawingPainter(single.page_width, single.page_height)
@@ -371,6 +377,7 @@ def render_labels(
     dpi: int = 300,
     title: str | None = None,
     outlines: bool = False,
+    text_beside: bool = False,
     progress: Callable[[int], None] | None = None,
 ) -> RenderResult:
     """Render to ``out`` in the format its suffix names: ``.pdf`` a sheet of any number of
@@ -386,6 +393,7 @@ def render_labels(
             gs1_company_prefix=gs1_company_prefix,
             title=title,
             outlines=outlines,
+            text_beside=text_beside,
             progress=progress,
         )
     if not labels:
@@ -396,7 +404,7 @@ def render_labels(
             "write a .pdf instead"
         )
     if skip:
-        raise LabelError("--skip applies to PDF sheets only")
+        raise LabelError("a start position (skip) applies to PDF sheets only")
     if kind == "png":
         result = render_png(
             labels[0],
@@ -405,10 +413,16 @@ def render_labels(
             symbology=symbology,
             dpi=dpi,
             gs1_company_prefix=gs1_company_prefix,
+            text_beside=text_beside,
         )
     else:
         result = render_svg(
-            labels[0], layout, out, symbology=symbology, gs1_company_prefix=gs1_company_prefix
+            labels[0],
+            layout,
+            out,
+            symbology=symbology,
+            gs1_company_prefix=gs1_company_prefix,
+            text_beside=text_beside,
         )
     if progress is not None:
         progress(1)

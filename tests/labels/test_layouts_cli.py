@@ -53,8 +53,10 @@ def test_layout_clash_or_misfit_is_one_line(
     for table, message in (
         ("[layouts.a4-3x8]\nrows = 1\n", "preset's name"),
         (
-            '[layouts.big]\npage = "a4"\nrows = 3\ncolumns = 3\n'
-            "label_width = 80\nlabel_height = 20\n",
+            (
+                '[layouts.big]\npage = "a4"\nrows = 3\ncolumns = 3\n'
+                "label_width = 80\nlabel_height = 20\n"
+            ),
             "does not fit the page",
         ),
     ):

@@ -177,3 +177,29 @@ def test_long_caption_is_shrunk_or_cut_to_fit(tmp_path: Path) -> None:
     text = page_text(out)[0]
     assert tag.display in text
     assert "Quillmere Tool" in text
+
+
+@pytest.mark.parametrize("symbology", ["qr", "datamatrix"])
+def test_text_beside_a_2d_symbol(tmp_path: Path, symbology: str) -> None:
+    import pypdfium2 as pdfium
+    from pypdfium2 import raw
+
+    labels = tool_tags(4)
+    out = tmp_path / "beside.pdf"
+    layout = get_layout("a4-3x8")
+    result = render_sheet(labels, layout, out, symbology=symbology, text_beside=True)
+    _assert_every_label_decodes_in_its_cell(result, labels)
+    document = pdfium.PdfDocument(str(out))
+    texts = [o for o in document[0].get_objects() if o.type == raw.FPDF_PAGEOBJ_TEXT]
+    for spot in result.placements:
+        here = [
+            o.get_bounds()
+            for o in texts
+            if spot.cell.contains(
+                o.get_bounds()[0] * MM_PER_PT, layout.page_height - o.get_bounds()[3] * MM_PER_PT
+            )
+        ]
+        assert here
+        # every text line starts right of the symbol's quiet zone
+        assert all(b[0] * MM_PER_PT >= spot.quiet.right for b in here)
+    document.close()
