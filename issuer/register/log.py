@@ -17,7 +17,7 @@ from dataclasses import dataclass
 from datetime import datetime
 from typing import Any
 
-from sqlalchemy import insert, select
+from sqlalchemy import bindparam, select, update
 from sqlalchemy.orm import Session
 
 from issuer.register.models import LogEntry, LogHead
@@ -72,14 +72,16 @@ def detail_text(detail: Mapping[str, Any] | None) -> str:
     return json.dumps(dict(detail or {}), sort_keys=True, ensure_ascii=False, default=str)
 
 
-def _lock_head(session: Session) -> LogHead:
-    statement = (
-        select(LogHead)
-        .where(LogHead.id == 1)
-        .with_for_update()
-        .execution_options(populate_existing=True)
-    )
-    return session.execute(statement).scalar_one()
+_HEAD = LogHead.__table__
+_ENTRY = LogEntry.__table__
+# Core statements built once: appending runs on every act, so it stays lean
+_LOCK_HEAD = select(_HEAD.c.last_id, _HEAD.c.last_hash).where(_HEAD.c.id == 1).with_for_update()
+_INSERT_ENTRY = _ENTRY.insert()
+_MOVE_HEAD = (
+    update(_HEAD)
+    .where(_HEAD.c.id == 1)
+    .values(last_id=bindparam("new_id"), last_hash=bindparam("new_hash"))
+)
 
 
 def append_entries(
@@ -88,9 +90,11 @@ def append_entries(
     """Append entries to the chain inside the caller's transaction; returns how many.
 
     The head row is locked first, so concurrent writers append one after another.
+    Writes go straight to the session's connection: an ORM object that the caller
+    loaded from these tables would not see them.
     """
-    head = _lock_head(session)
-    last_id, last_hash = head.last_id, head.last_hash
+    connection = session.connection()
+    last_id, last_hash = connection.execute(_LOCK_HEAD).one()
     rows: list[dict[str, Any]] = []
     for entry in entries:
         last_id += 1
@@ -122,9 +126,8 @@ def append_entries(
         )
         last_hash = digest
     if rows:
-        session.execute(insert(LogEntry), rows)
-        head.last_id, head.last_hash = last_id, last_hash
-        session.flush()
+        connection.execute(_INSERT_ENTRY, rows)
+        connection.execute(_MOVE_HEAD, {"new_id": last_id, "new_hash": last_hash})
     return len(rows)
 
 

@@ -171,16 +171,17 @@ def test_a_failed_batch_leaves_no_gap(register: Any, monkeypatch: pytest.MonkeyP
 
     add_series(register, TOOLS)
     issue_codes(register, "tools", 2)
-    real_store = issuing.store_codes
 
     def broken(*args: Any, **kwargs: Any) -> Any:
-        real_store(*args, **kwargs)
-        raise RuntimeError("power cut")
+        raise RuntimeError("power cut after the codes were written")
 
-    monkeypatch.setattr(issuing, "store_codes", broken)
-    with pytest.raises(RuntimeError):
-        issue_codes(register, "tools", 100)
-    monkeypatch.setattr(issuing, "store_codes", real_store)
+    # the log entry is written after the codes: failing there must undo the codes too
+    with monkeypatch.context() as patch:
+        patch.setattr(issuing, "append_entry", broken)
+        with pytest.raises(RuntimeError):
+            issue_codes(register, "tools", 100)
+        with pytest.raises(RuntimeError):
+            issue_codes(register, "tools", 1)
     after = issue_codes(register, "tools", 1).codes[0]
     assert after.base == 3
     with register.reading() as session:

@@ -1,0 +1,154 @@
+"""Register speed, as ratios against baselines run side by side in one run.
+
+1. One code at a time, one durable commit each: issuer's issue_codes vs a raw sqlite3
+   loop doing one insert per transaction into one indexed table (same WAL and
+   synchronous=FULL settings). Target: issuer at least half the raw rate.
+2. Scattered issuance at 99 % full vs empty: per-code cost ratio. Target: <= 1.2.
+3. ``issuer check CODE`` as a whole process vs a minimal Typer app that imports
+   SQLAlchemy's ORM and Rich and answers one command with one query on the same file.
+   Target: within 1.3x.
+
+Run: .venv/bin/python tests/benchmarks/bench_register.py
+"""
+
+from __future__ import annotations
+
+import os
+import sqlite3
+import statistics
+import subprocess
+import sys
+import tempfile
+import textwrap
+import time
+from pathlib import Path
+
+from issuer.register.issuing import issue_codes
+from issuer.register.series import SeriesSpec, add_series
+from issuer.register.store import open_register
+
+ROUNDS = 5
+
+
+def per_code_rates(folder: Path, per_round: int = 100) -> tuple[float, float]:
+    register = open_register(str(folder / "per-code.sqlite"), actor="bench")
+    add_series(register, SeriesSpec(key="tools", scheme="damm", length=9, prefix="QTL"))
+    raw = sqlite3.connect(folder / "raw.sqlite", isolation_level=None)
+    raw.execute("PRAGMA journal_mode=WAL")
+    raw.execute("PRAGMA synchronous=FULL")
+    raw.execute("CREATE TABLE issued (id INTEGER PRIMARY KEY, code TEXT NOT NULL, base INTEGER, issued_at TEXT)")
+    raw.execute("CREATE UNIQUE INDEX ix_code ON issued(code)")
+    ours, theirs = [], []
+    counter = 0
+    for _ in range(ROUNDS):
+        start = time.perf_counter()
+        for _ in range(per_round):
+            issue_codes(register, "tools", 1)
+        ours.append(per_round / (time.perf_counter() - start))
+        start = time.perf_counter()
+        for _ in range(per_round):
+            counter += 1
+            raw.execute("BEGIN IMMEDIATE")
+            raw.execute("INSERT INTO issued (code, base, issued_at) VALUES (?, ?, ?)",
+                        (f"QTL{counter:010d}", counter, "2026-01-01T00:00:00"))
+            raw.execute("COMMIT")
+        theirs.append(per_round / (time.perf_counter() - start))
+    register.close()
+    return statistics.median(ours), statistics.median(theirs)
+
+
+def scattered_fill_ratio(folder: Path, size: int = 200_000, sample: int = 200) -> tuple[float, float]:
+    register = open_register(str(folder / "scatter.sqlite"), actor="bench")
+    add_series(register, SeriesSpec(key="empty", scheme="luhn", length=6, prefix="E", start=0,
+                                    end=size - 1, mode="scattered"))
+    add_series(register, SeriesSpec(key="full", scheme="luhn", length=6, prefix="F", start=0,
+                                    end=size - 1, mode="scattered"))
+    issue_codes(register, "full", size * 99 // 100 - sample * ROUNDS)
+    empty_times, full_times = [], []
+    for _ in range(ROUNDS):
+        start = time.perf_counter()
+        for _ in range(sample):
+            issue_codes(register, "empty", 1)
+        empty_times.append((time.perf_counter() - start) / sample)
+        start = time.perf_counter()
+        for _ in range(sample):
+            issue_codes(register, "full", 1)
+        full_times.append((time.perf_counter() - start) / sample)
+    register.close()
+    return statistics.median(empty_times), statistics.median(full_times)
+
+
+BASELINE_APP = textwrap.dedent(
+    """
+    import sys
+    import typer
+    from rich.console import Console
+    from rich.table import Table
+    from sqlalchemy import String, create_engine, select
+    from sqlalchemy.orm import DeclarativeBase, Mapped, Session, mapped_column
+
+    class Base(DeclarativeBase):
+        pass
+
+    class IssuedCode(Base):
+        __tablename__ = "issued_code"
+        id: Mapped[int] = mapped_column(primary_key=True)
+        code: Mapped[str] = mapped_column(String(100))
+        status: Mapped[str] = mapped_column(String(16))
+
+    app = typer.Typer()
+
+    @app.command()
+    def check(code: str, db: str) -> None:
+        engine = create_engine(f"sqlite:///{db}")
+        with Session(engine) as session:
+            row = session.scalar(select(IssuedCode).where(IssuedCode.code == code))
+        table = Table()
+        table.add_column("code")
+        table.add_column("status")
+        table.add_row(code, row.status if row else "unknown")
+        Console().print(table)
+
+    app()
+    """
+)
+
+
+def startup_ratio(folder: Path, runs: int = 15) -> tuple[float, float]:
+    db = folder / "desk.sqlite"
+    register = open_register(str(db), actor="bench")
+    add_series(register, SeriesSpec(key="tools", scheme="damm", length=7, prefix="QTL", group=(4, 4)))
+    code = issue_codes(register, "tools", 50).codes[10].code
+    register.close()
+    script = folder / "baseline_app.py"
+    script.write_text(BASELINE_APP)
+    env = dict(os.environ, ISSUER_DB=str(db), COLUMNS="100")
+    ours_cmd = [sys.executable, "-m", "issuer", "check", code]
+    base_cmd = [sys.executable, str(script), code, str(db)]
+    for command in (ours_cmd, base_cmd):  # warm the file cache
+        subprocess.run(command, env=env, check=True, capture_output=True)
+    ours, theirs = [], []
+    for _ in range(runs):
+        for command, sink in ((ours_cmd, ours), (base_cmd, theirs)):
+            start = time.perf_counter()
+            subprocess.run(command, env=env, check=True, capture_output=True)
+            sink.append(time.perf_counter() - start)
+    return statistics.median(ours), statistics.median(theirs)
+
+
+def main() -> None:
+    with tempfile.TemporaryDirectory() as name:
+        folder = Path(name)
+        ours, raw = per_code_rates(folder)
+        print(f"one durable code per transaction: issuer {ours:,.0f}/s, raw sqlite3 {raw:,.0f}/s, "
+              f"ratio {ours / raw:.2f} (target >= 0.5)")
+        empty, full = scattered_fill_ratio(folder)
+        print(f"scattered issue, per code: empty {empty * 1000:.2f} ms, 99% full {full * 1000:.2f} ms, "
+              f"ratio {full / empty:.2f} (target <= 1.2)")
+        mine, base = startup_ratio(folder)
+        print(f"'issuer check CODE' process: {mine * 1000:.0f} ms, minimal Typer+ORM+Rich app "
+              f"{base * 1000:.0f} ms, ratio {mine / base:.2f} (target <= 1.3)")
+
+
+if __name__ == "__main__":
+    main()
