@@ -48,7 +48,10 @@ def find_code(session: Session, text: str, *, lock: bool = False) -> IssuedCode:
         raise InvalidFormat(f"{text.strip()!r} does not have the shape of any series' codes")
     statement = select(IssuedCode).where(IssuedCode.code.in_([code for _, code in candidates]))
     if lock:
-        statement = statement.with_for_update().execution_options(populate_existing=True)
+        # NO KEY UPDATE, like the series lock: rows referring to this one must not wait
+        statement = statement.with_for_update(key_share=True).execution_options(
+            populate_existing=True
+        )
     row = session.scalars(statement).first()
     if row is None:
         if not any(code_format(series).scheme.is_valid(code[len(series.prefix): len(code) - len(series.suffix)])
@@ -160,7 +163,7 @@ def replace_code(register: Register, text: str, *, reason: str) -> Replacement:
         series = session.scalar(
             select(Series)
             .where(Series.id == old.series_id)
-            .with_for_update()
+            .with_for_update(key_share=True)
             .execution_options(populate_existing=True)
         )
         assert series is not None

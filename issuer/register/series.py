@@ -206,7 +206,12 @@ def add_series(register: Register, spec: SeriesSpec) -> Series:
 def get_series(session: Session, key: str, *, lock: bool = False) -> Series:
     statement = select(Series).where(Series.key == key)
     if lock:
-        statement = statement.with_for_update().execution_options(populate_existing=True)
+        # FOR NO KEY UPDATE: a plain FOR UPDATE would also block the key-share locks
+        # that inserting a log entry (foreign key to series) takes, and a desk holding
+        # the log head while another holds the series would deadlock (PostgreSQL)
+        statement = statement.with_for_update(key_share=True).execution_options(
+            populate_existing=True
+        )
     series = session.scalar(statement)
     if series is None:
         raise NotFound(f"no series {key!r} in this register")
