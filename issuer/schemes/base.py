@@ -17,7 +17,7 @@ from __future__ import annotations
 
 from abc import ABC, abstractmethod
 from collections.abc import Sequence
-from typing import TYPE_CHECKING, ClassVar
+from typing import TYPE_CHECKING, Any, ClassVar
 
 from issuer.alphabets import Alphabet
 from issuer.errors import InvalidCheck, InvalidLength, UnsupportedAlphabet
@@ -26,7 +26,10 @@ if TYPE_CHECKING:
     import numpy as np
     import numpy.typing as npt
 
+    #: what the bulk methods return: check values as int64
     IntMatrix = npt.NDArray[np.int64]
+    #: what they take: symbol values in any signed integer type (code_matrix gives int8)
+    ValueMatrix = npt.NDArray[np.signedinteger[Any]]
 
 
 class Scheme(ABC):
@@ -134,7 +137,7 @@ class Scheme(ABC):
         return True
 
     # -- bulk (numpy) ----------------------------------------------------------
-    def compute_bulk(self, bodies: IntMatrix) -> IntMatrix:
+    def compute_bulk(self, bodies: ValueMatrix) -> IntMatrix:
         """Check values for an ``(n, length)`` matrix of body values: ``(n, check_length)``.
 
         The default calls :meth:`compute_values` per row; fast schemes override it with
@@ -148,7 +151,7 @@ class Scheme(ABC):
             out[i] = self.compute_values(row)
         return out
 
-    def verify_bulk(self, codes: IntMatrix) -> npt.NDArray[np.bool_]:
+    def verify_bulk(self, codes: ValueMatrix) -> npt.NDArray[np.bool_]:
         """For an ``(n, length + check_length)`` matrix of values, which rows are valid.
 
         Body columns hold body-alphabet values and check columns check-alphabet values;
@@ -158,25 +161,69 @@ class Scheme(ABC):
 
         cut = codes.shape[1] - self.check_length
         self.require_body_length(cut)
-        ok = (codes >= 0).all(axis=1)
-        bodies = np.where(codes[:, :cut] < 0, 0, codes[:, :cut]).astype(np.int64)
+        ok = codes.min(axis=1) >= 0
+        bodies = codes[:, :cut]
+        if not ok.all():
+            bodies = np.where(bodies < 0, 0, bodies)
         checks = self.compute_bulk(bodies)
-        valid: npt.NDArray[np.bool_] = ok & (checks == codes[:, cut:]).all(axis=1)
+        if self.check_length == 1:
+            valid: npt.NDArray[np.bool_] = ok & (checks[:, 0] == codes[:, cut])
+        else:
+            valid = ok & (checks == codes[:, cut:]).all(axis=1)
         return valid
 
-    def code_matrix(self, codes: Sequence[str] | npt.NDArray[np.bytes_], width: int) -> IntMatrix:
-        """Equal-width canonical code texts as values, body and check columns each in
-        their own alphabet; -1 marks a symbol outside it."""
+    def code_matrix(
+        self, codes: Sequence[str] | npt.NDArray[np.bytes_], width: int
+    ) -> npt.NDArray[np.int8]:
+        """Canonical code texts as an ``(n, width)`` matrix of symbol values, body and
+        check columns each in their own alphabet; -1 marks a symbol outside it, and every
+        position of a code whose length is not ``width``.
+
+        The matrix is int8 and column-major, so that the column-at-a-time bulk methods
+        read each column as one contiguous run.
+        """
         import numpy as np
 
-        raw = np.asarray(codes, dtype=f"S{width}").view(np.uint8).reshape(-1, width)
+        raw = _byte_matrix(codes, width)
+        body_table = self.alphabet.lookup_table().astype(np.int8)
+        out = np.empty(raw.shape, dtype=np.int8, order="F")
+        if self.check_alphabet.symbols == self.alphabet.symbols:
+            out[:] = body_table.take(raw)
+            return out
         cut = width - self.check_length
-        body = self.alphabet.lookup_table()[raw[:, :cut]]
-        check = self.check_alphabet.lookup_table()[raw[:, cut:]]
-        return np.concatenate([body, check], axis=1).astype(np.int64)
+        out[:, :cut] = body_table.take(raw[:, :cut])
+        out[:, cut:] = self.check_alphabet.lookup_table().astype(np.int8).take(raw[:, cut:])
+        return out
 
     def __repr__(self) -> str:
         return f"<scheme {self.name} over {self.alphabet.name}>"
+
+
+def _byte_matrix(
+    codes: Sequence[str] | npt.NDArray[np.bytes_], width: int
+) -> npt.NDArray[np.uint8]:
+    """Codes as an ``(n, width)`` byte matrix; a code of another length becomes all NUL
+    (no alphabet holds NUL, so its row reads as invalid), a non-ASCII character ``?``."""
+    import numpy as np
+
+    items: list[Any] = codes.tolist() if isinstance(codes, np.ndarray) else list(codes)
+    n = len(items)
+    if n and isinstance(items[0], bytes):
+        joined = b"\n".join(items) + b"\n"
+    else:
+        joined = ("\n".join(items) + "\n").encode("ascii", "replace")
+    if n and len(joined) == n * (width + 1) and joined.count(b"\n") == n:
+        # the common case in one pass: n codes of exactly `width` bytes, each followed
+        # by a newline
+        framed = np.frombuffer(joined, dtype=np.uint8).reshape(n, width + 1)
+        if (framed[:, width] == 0x0A).all():
+            return framed[:, :width]
+    # some code has another length: short ones pad with NUL, long ones are blanked
+    texts = [c if isinstance(c, bytes) else str(c).encode("ascii", "replace") for c in items]
+    padded = np.asarray(texts, dtype=f"S{width + 1}").view(np.uint8).reshape(n, width + 1)
+    raw = padded[:, :width].copy()
+    raw[padded[:, width] != 0] = 0
+    return raw
 
 
 def _suggestion(alphabet: Alphabet, refused: str) -> str:

@@ -22,7 +22,7 @@ from issuer.alphabets import CROCKFORD32, Alphabet
 from issuer.schemes.base import Scheme
 
 if TYPE_CHECKING:
-    from issuer.schemes.base import IntMatrix
+    from issuer.schemes.base import IntMatrix, ValueMatrix
 
 CHECK_SYMBOLS = CROCKFORD32.symbols + "*~$=U"
 CROCKFORD37 = Alphabet(
@@ -55,7 +55,7 @@ class Crockford37Scheme(Scheme):
             remainder = (remainder * 32 + value) % 37
         return (remainder,)
 
-    def compute_bulk(self, bodies: IntMatrix) -> IntMatrix:
+    def compute_bulk(self, bodies: ValueMatrix) -> IntMatrix:
         import numpy as np
 
         remainder = np.zeros(bodies.shape[0], dtype=np.int64)

@@ -28,7 +28,7 @@ if TYPE_CHECKING:
     import numpy as np
     import numpy.typing as npt
 
-    from issuer.schemes.base import IntMatrix
+    from issuer.schemes.base import IntMatrix, ValueMatrix
 
 #: Damm 2004, order 10; row = interim digit, column = next digit.
 PUBLISHED_TABLE: tuple[tuple[int, ...], ...] = (
@@ -89,7 +89,7 @@ class DammScheme(Scheme):
     def verify_values(self, body: Sequence[int], check: Sequence[int]) -> bool:
         return len(check) == 1 and self.interim([*body, *check]) == 0
 
-    def compute_bulk(self, bodies: IntMatrix) -> IntMatrix:
+    def compute_bulk(self, bodies: ValueMatrix) -> IntMatrix:
         import numpy as np
 
         from issuer.schemes.tables import fold_columns

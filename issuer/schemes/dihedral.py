@@ -41,7 +41,7 @@ if TYPE_CHECKING:
     import numpy as np
     import numpy.typing as npt
 
-    from issuer.schemes.base import IntMatrix
+    from issuer.schemes.base import IntMatrix, ValueMatrix
 
 Table = tuple[tuple[int, ...], ...]
 
@@ -106,7 +106,7 @@ class GroupPowerScheme(Scheme):
     def verify_values(self, body: Sequence[int], check: Sequence[int]) -> bool:
         return len(check) == 1 and self.product([*body, *check], 0) == 0
 
-    def compute_bulk(self, bodies: IntMatrix) -> IntMatrix:
+    def compute_bulk(self, bodies: ValueMatrix) -> IntMatrix:
         import numpy as np
 
         from issuer.schemes.tables import fold_columns

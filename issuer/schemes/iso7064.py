@@ -37,7 +37,7 @@ if TYPE_CHECKING:
     import numpy as np
     import numpy.typing as npt
 
-    from issuer.schemes.base import IntMatrix
+    from issuer.schemes.base import IntMatrix, ValueMatrix
 
 DIGITS_X = Alphabet(name="digits+X", symbols="0123456789X", title="digits and X (value 10)")
 ALNUM_STAR = Alphabet(
@@ -109,7 +109,7 @@ class PureSystem(_Iso7064):
     def verify_values(self, body: Sequence[int], check: Sequence[int]) -> bool:
         return len(check) == self.check_length and self.remainder([*body, *check]) == 1
 
-    def compute_bulk(self, bodies: IntMatrix) -> IntMatrix:
+    def compute_bulk(self, bodies: ValueMatrix) -> IntMatrix:
         import numpy as np
 
         self.require_body_length(bodies.shape[1])
@@ -125,7 +125,7 @@ class PureSystem(_Iso7064):
         high, low = np.divmod(value, self.radix)
         return np.stack([high, low], axis=1)
 
-    def verify_bulk(self, codes: IntMatrix) -> npt.NDArray[np.bool_]:
+    def verify_bulk(self, codes: ValueMatrix) -> npt.NDArray[np.bool_]:
         import numpy as np
 
         self.require_body_length(codes.shape[1] - self.check_length)
@@ -135,7 +135,7 @@ class PureSystem(_Iso7064):
         )
         return valid
 
-    def _bulk_remainder(self, matrix: IntMatrix) -> npt.NDArray[np.int64]:
+    def _bulk_remainder(self, matrix: ValueMatrix) -> npt.NDArray[np.int64]:
         import numpy as np
 
         total = np.zeros(matrix.shape[0], dtype=np.int64)
@@ -164,7 +164,7 @@ class HybridSystem(_Iso7064):
     def compute_values(self, body: Sequence[int]) -> tuple[int, ...]:
         return ((1 - self.last_s(body)[1]) % self.alphabet.size,)
 
-    def compute_bulk(self, bodies: IntMatrix) -> IntMatrix:
+    def compute_bulk(self, bodies: ValueMatrix) -> IntMatrix:
         import numpy as np
 
         m = self.alphabet.size

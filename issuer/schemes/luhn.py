@@ -17,7 +17,7 @@ from typing import TYPE_CHECKING
 from issuer.schemes.base import Scheme
 
 if TYPE_CHECKING:
-    from issuer.schemes.base import IntMatrix
+    from issuer.schemes.base import IntMatrix, ValueMatrix
 
 
 class LuhnScheme(Scheme):
@@ -42,14 +42,16 @@ class LuhnScheme(Scheme):
                 total += value
         return ((n - total % n) % n,)
 
-    def compute_bulk(self, bodies: IntMatrix) -> IntMatrix:
+    def compute_bulk(self, bodies: ValueMatrix) -> IntMatrix:
         import numpy as np
 
         n = self.alphabet.size
+        # the doubled value's base-N digit sum, looked up instead of computed per code
+        doubled_sum = np.asarray([(2 * v) // n + (2 * v) % n for v in range(n)], dtype=np.int64)
+        total = np.zeros(bodies.shape[0], dtype=np.int64)
         length = bodies.shape[1]
-        doubled_columns = np.arange(length)[::-1] % 2 == 0
-        work = bodies.astype(np.int64)
-        doubled = work[:, doubled_columns] * 2
-        total = (doubled // n + doubled % n).sum(axis=1) + work[:, ~doubled_columns].sum(axis=1)
+        for position in range(length):  # from the right: 0 is the rightmost body symbol
+            column = bodies[:, length - 1 - position]
+            total += doubled_sum.take(column) if position % 2 == 0 else column
         checks: IntMatrix = ((n - total % n) % n).reshape(-1, 1)
         return checks

@@ -16,7 +16,7 @@ from typing import TYPE_CHECKING
 from issuer.schemes.base import Scheme
 
 if TYPE_CHECKING:
-    from issuer.schemes.base import IntMatrix
+    from issuer.schemes.base import IntMatrix, ValueMatrix
 
 
 class NoCheckScheme(Scheme):
@@ -29,7 +29,7 @@ class NoCheckScheme(Scheme):
     def compute_values(self, body: Sequence[int]) -> tuple[int, ...]:
         return ()
 
-    def compute_bulk(self, bodies: IntMatrix) -> IntMatrix:
+    def compute_bulk(self, bodies: ValueMatrix) -> IntMatrix:
         import numpy as np
 
         return np.zeros((bodies.shape[0], 0), dtype=np.int64)

@@ -13,7 +13,7 @@ if TYPE_CHECKING:
     import numpy as np
     import numpy.typing as npt
 
-    from issuer.schemes.base import IntMatrix
+    from issuer.schemes.base import ValueMatrix
 
 
 def flat_tables(tables: Sequence[Sequence[Sequence[int]]]) -> npt.NDArray[np.int64]:
@@ -24,7 +24,7 @@ def flat_tables(tables: Sequence[Sequence[Sequence[int]]]) -> npt.NDArray[np.int
 
 
 def fold_columns(
-    bodies: IntMatrix,
+    bodies: ValueMatrix,
     flat: npt.NDArray[np.int64],
     symbols: int,
     schedule: Sequence[tuple[int, int]],

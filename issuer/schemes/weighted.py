@@ -28,7 +28,7 @@ from issuer.schemes.base import Scheme
 from issuer.schemes.iso7064 import DIGITS_X
 
 if TYPE_CHECKING:
-    from issuer.schemes.base import IntMatrix
+    from issuer.schemes.base import IntMatrix, ValueMatrix
 
 
 def _decimal_only(name: str, alphabet: Alphabet) -> str | None:
@@ -52,7 +52,7 @@ class Gs1Scheme(Scheme):
         total = sum(value * (3 if i % 2 == 0 else 1) for i, value in enumerate(reversed(body)))
         return ((10 - total % 10) % 10,)
 
-    def compute_bulk(self, bodies: IntMatrix) -> IntMatrix:
+    def compute_bulk(self, bodies: ValueMatrix) -> IntMatrix:
         import numpy as np
 
         length = bodies.shape[1]
@@ -82,7 +82,7 @@ class Mod11Scheme(Scheme):
         total = sum(value * weight for weight, value in enumerate(reversed(body), start=2))
         return ((-total) % 11,)
 
-    def compute_bulk(self, bodies: IntMatrix) -> IntMatrix:
+    def compute_bulk(self, bodies: ValueMatrix) -> IntMatrix:
         import numpy as np
 
         length = bodies.shape[1]
