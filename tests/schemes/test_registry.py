@@ -205,3 +205,15 @@ def test_damm_table_source_is_recorded() -> None:
     assert "published" in get_scheme("damm").table_source  # type: ignore[attr-defined]
     assert "GF(4)" in get_scheme("damm", "alnum").table_source  # type: ignore[attr-defined]
     assert get_alphabet("alnum").size == 36
+
+
+def test_code_matrix_reads_odd_lengths_and_odd_characters_as_invalid() -> None:
+    scheme = get_scheme("damm")
+    good = scheme.append("57201")
+    texts = [good, good[:-1], good + "0", "５" + good[1:], good.replace("5", "\n"), good]
+    matrix = scheme.code_matrix(texts, 6)
+    assert matrix.shape == (6, 6) and matrix.dtype == np.int8
+    assert scheme.verify_bulk(matrix).tolist() == [True, False, False, False, False, True]
+    as_bytes = np.asarray([good.encode(), b"000000"])
+    assert scheme.verify_bulk(scheme.code_matrix(as_bytes, 6)).tolist() == [True, True]
+    assert scheme.code_matrix([], 6).shape == (0, 6)
