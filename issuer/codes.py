@@ -149,9 +149,23 @@ class CodeFormat:
     def validate(self, text: str) -> ParsedCode:
         """Parse and verify the check character(s)."""
         parsed = self.parse(text)
-        if self.scheme.compute(parsed.body) != parsed.check:
+        if not self.check_matches(parsed):
             raise InvalidCheck(f"the check character of {self.display(parsed.canonical)} does not match")
         return parsed
+
+    def check_matches(self, parsed: ParsedCode) -> bool:
+        """Whether the check character(s) satisfy the method's published condition."""
+        scheme = self.scheme
+        return scheme.verify_values(
+            scheme.alphabet.values(parsed.body), scheme.check_alphabet.values(parsed.check)
+        )
+
+    def matches_check(self, text: str) -> bool:
+        """Whether ``text`` parses and its check character(s) match."""
+        try:
+            return self.check_matches(self.parse(text))
+        except InvalidFormat:
+            return False
 
     def matches_shape(self, text: str) -> bool:
         try:

@@ -84,7 +84,7 @@ def _readings(shapes: Sequence[tuple[Series, CodeFormat]], text: str) -> tuple[l
             affixes_fit = cleaned.startswith(shape.prefix) and cleaned.endswith(shape.suffix)
             problems.append((affixes_fit, f"{series.key}: {exc.message}" if len(shapes) > 1 else exc.message))
             continue
-        valid = shape.scheme.compute(parsed.body) == parsed.check
+        valid = shape.check_matches(parsed)
         readings.append(_Reading(series, shape, parsed.canonical, valid))
     closest = [message for fits, message in problems if fits] or [message for _, message in problems]
     return readings, closest

@@ -54,8 +54,7 @@ def find_code(session: Session, text: str, *, lock: bool = False) -> IssuedCode:
         )
     row = session.scalars(statement).first()
     if row is None:
-        if not any(code_format(series).scheme.is_valid(code[len(series.prefix): len(code) - len(series.suffix)])
-                   for series, code in candidates):
+        if not any(code_format(series).matches_check(code) for series, code in candidates):
             raise InvalidCheck(f"{normalise_text(text)}: the check character does not match (a typo?)")
         raise NotFound(f"{normalise_text(text)} was never issued by this register")
     return row
