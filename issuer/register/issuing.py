@@ -20,15 +20,14 @@ from sqlalchemy.exc import IntegrityError
 from sqlalchemy.orm import Session
 
 from issuer.errors import Conflict, Exhausted, InvalidFormat
+from issuer.register.bulk import CHUNK, CodeSink, IssuedChunk, check_room, store_bulk
 from issuer.register.log import NewEntry, append_entry
 from issuer.register.models import ISSUED, SCATTERED, Batch, IssuedCode, Series
 from issuer.register.series import capacity, code_format, get_series, permutation
 from issuer.register.store import Register
 
-#: batches at least this large take the numpy path
+#: batches at least this large take the bulk path (:mod:`issuer.register.bulk`)
 BULK_FROM = 64
-#: rows per INSERT round trip in bulk issuance
-CHUNK = 50_000
 
 Progress = Callable[[int], None]
 
@@ -46,20 +45,26 @@ class IssuedInfo:
 
 @dataclass(frozen=True)
 class IssueResult:
+    """A batch. ``codes`` lists every code unless the caller asked not to collect them
+    (a million :class:`IssuedInfo` are rarely wanted); ``first`` and ``last`` are
+    always there."""
+
     batch: int
     series: str
     count: int
     codes: list[IssuedInfo] = field(repr=False)
     replayed: bool = False
     protected: bool | None = None
+    head: IssuedInfo | None = None
+    tail: IssuedInfo | None = None
 
     @property
     def first(self) -> IssuedInfo | None:
-        return self.codes[0] if self.codes else None
+        return self.codes[0] if self.codes else self.head
 
     @property
     def last(self) -> IssuedInfo | None:
-        return self.codes[-1] if self.codes else None
+        return self.codes[-1] if self.codes else self.tail
 
 
 def _bases_for(series: Series, counters: Sequence[int] | Any) -> list[int]:
@@ -173,7 +178,15 @@ def store_codes(
     return codes
 
 
-def _replay(session: Session, request_id: str, key: str, count: int) -> IssueResult | None:
+def _replay(
+    session: Session,
+    request_id: str,
+    key: str,
+    count: int,
+    *,
+    collect: bool = True,
+    sink: CodeSink | None = None,
+) -> IssueResult | None:
     batch = session.scalar(select(Batch).where(Batch.request_id == request_id))
     if batch is None:
         return None
@@ -189,9 +202,26 @@ def _replay(session: Session, request_id: str, key: str, count: int) -> IssueRes
         select(IssuedCode.code, IssuedCode.base, IssuedCode.holder)
         .where(IssuedCode.batch_id == batch.id)
         .order_by(IssuedCode.id)
+        .execution_options(yield_per=CHUNK)
     )
-    codes = [IssuedInfo(code, shape.display(code), base, holder) for code, base, holder in rows]
-    return IssueResult(batch.id, series.key, len(codes), codes, replayed=True)
+    codes: list[IssuedInfo] = []
+    head = tail = None
+    for part in rows.partitions():
+        chunk = IssuedChunk(
+            series.key, batch.id, shape, [r[0] for r in part], [r[1] for r in part], part[0][2]
+        )
+        displays = chunk.displays()
+        if head is None:
+            head = IssuedInfo(chunk.codes[0], displays[0], chunk.bases[0], part[0][2])
+        tail = IssuedInfo(chunk.codes[-1], displays[-1], chunk.bases[-1], part[-1][2])
+        if collect:
+            codes.extend(
+                IssuedInfo(code, display, base, row[2])
+                for code, display, base, row in zip(chunk.codes, displays, chunk.bases, part)
+            )
+        if sink is not None:
+            sink.write(chunk)
+    return IssueResult(batch.id, series.key, batch.count, codes, replayed=True, head=head, tail=tail)
 
 
 def issue_codes(
@@ -203,11 +233,16 @@ def issue_codes(
     note: str | None = None,
     request_id: str | None = None,
     progress: Progress | None = None,
+    collect: bool = True,
+    sink: CodeSink | None = None,
 ) -> IssueResult:
     """Issue ``count`` codes from series ``key`` in one transaction.
 
     With ``request_id``, a retry of the same request returns the codes issued the
-    first time instead of issuing new ones.
+    first time instead of issuing new ones. Batches of :data:`BULK_FROM` codes or more
+    go straight to the driver in chunks (:mod:`issuer.register.bulk`); with
+    ``collect=False`` the result carries only the first and last code, and ``sink``
+    (e.g. :class:`~issuer.register.bulk.CodesCsv`) receives every code as it is made.
     """
     if count < 1:
         raise InvalidFormat("the count must be at least 1")
@@ -215,13 +250,18 @@ def issue_codes(
         raise InvalidFormat("a request id cannot be empty")
 
     def work(session: Session) -> IssueResult:
+        if sink is not None:
+            sink.restart()
         if request_id is not None:
-            replay = _replay(session, request_id, key, count)
+            replay = _replay(session, request_id, key, count, collect=collect, sink=sink)
             if replay is not None:
                 return replay
         series = get_series(session, key, lock=True)
-        bases = allocate(session, series, count)
         at = register.clock()
+        if count < BULK_FROM:
+            bases = allocate(session, series, count)
+        else:
+            check_room(series, count)  # before the batch row exists, like allocate()
         batch = Batch(
             series_id=series.id,
             kind="issue",
@@ -232,14 +272,33 @@ def issue_codes(
         )
         session.add(batch)
         session.flush()
-        codes = store_codes(
-            session, register, series, batch, bases, holder=holder, note=note, progress=progress
-        )
+        shape = code_format(series)
+        if count < BULK_FROM:
+            codes = store_codes(
+                session, register, series, batch, bases, holder=holder, note=note, progress=progress
+            )
+            digest = codes_digest(codes)
+            infos = [IssuedInfo(code, shape.display(code), base, holder) for code, base in zip(codes, bases)]
+            if sink is not None:
+                sink.write(IssuedChunk(series.key, batch.id, shape, codes, list(bases), holder))
+            head, tail = infos[0], infos[-1]
+            first_code, last_code = codes[0], codes[-1]
+        else:
+            outcome = store_bulk(
+                session, series=series, batch=batch, count=count, holder=holder, note=note,
+                at=at, actor=register.actor, collect=collect, sink=sink, progress=progress,
+            )  # fmt: skip
+            assert outcome.first is not None and outcome.last is not None
+            digest = outcome.digest.hexdigest()
+            infos = [IssuedInfo(code, display, base, holder) for code, display, base in outcome.collected]
+            first_code, last_code = outcome.first[0], outcome.last[0]
+            head = IssuedInfo(first_code, shape.display(first_code), outcome.first[1], holder)
+            tail = IssuedInfo(last_code, shape.display(last_code), outcome.last[1], holder)
         detail: dict[str, Any] = {
             "count": count,
-            "first": codes[0],
-            "last": codes[-1],
-            "codes_sha256": codes_digest(codes),
+            "first": first_code,
+            "last": last_code,
+            "codes_sha256": digest,
         }
         if request_id is not None:
             detail["request_id"] = request_id
@@ -248,17 +307,18 @@ def issue_codes(
             NewEntry(
                 action="issue",
                 series_id=series.id,
-                code=codes[0] if count == 1 else None,
+                code=first_code if count == 1 else None,
                 batch_id=batch.id,
                 detail=detail,
             ),
             actor=register.actor,
             at=at,
         )
-        shape = code_format(series)
-        infos = [IssuedInfo(code, shape.display(code), base, holder) for code, base in zip(codes, bases)]
         protected = permutation(series).is_protected if series.mode == SCATTERED else None
-        return IssueResult(batch.id, series.key, count, infos, protected=protected)
+        return IssueResult(
+            batch.id, series.key, count, infos if collect else [], protected=protected,
+            head=head, tail=tail,
+        )  # fmt: skip
 
     try:
         return register.write(work)
@@ -267,7 +327,9 @@ def issue_codes(
         if request_id is None:
             raise
         with register.reading() as session:
-            replay = _replay(session, request_id, key, count)
+            if sink is not None:
+                sink.restart()
+            replay = _replay(session, request_id, key, count, collect=collect, sink=sink)
         if replay is None:
             raise
         return replay

@@ -1,0 +1,161 @@
+"""``issuer reconcile``: a stocktake scan against the register."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import TYPE_CHECKING, Annotated, Any
+
+import typer
+
+from issuer.cli.app import app
+from issuer.cli.common import (
+    ActorOption,
+    DbOption,
+    JsonOption,
+    console,
+    err_console,
+    open_register_from_options,
+    print_json,
+    progress_bar,
+)
+
+if TYPE_CHECKING:
+    from issuer.reconcile import Reconciliation
+
+#: lines listed per class in the terminal before "and N more"
+SHOW_LINES = 10
+
+MEANINGS = (
+    ("issued", "issued", "in use, and found"),
+    ("voided", "voided", "voided: should have been pulled"),
+    ("bad_check", "bad check", "check character wrong: misread or mistyped"),
+    ("not_issued", "not issued", "a valid code this register never issued"),
+    ("malformed", "malformed", "not a code of this series"),
+    ("duplicates", "duplicates", "codes scanned more than once"),
+    ("missing", "missing", "issued, but not scanned"),
+)
+
+
+@app.command(
+    "reconcile",
+    epilog="Exit status: 0 when every scan is an issued code, scanned once, and nothing is "
+    "missing; 1 when the stocktake found something to look at; 2 on bad input.",
+)
+def reconcile_command(
+    key: Annotated[str, typer.Argument(help="The series the stocktake covers.")],
+    scanfile: Annotated[
+        Path,
+        typer.Argument(
+            help="The scan: one code per line, or a CSV with a header (comma, semicolon, tab "
+            "or bar separated) with a code column and perhaps time and location columns.",
+            dir_okay=False,
+        ),
+    ],
+    *,
+    column: Annotated[
+        str | None, typer.Option("--column", help="The CSV column holding the codes (default: code, barcode, tag, ...).")
+    ] = None,
+    time_column: Annotated[
+        str | None, typer.Option("--time-column", help="The column with each scan's time (default: timestamp, scanned_at, time, ...).")
+    ] = None,
+    where_column: Annotated[
+        str | None, typer.Option("--where-column", help="The column with each scan's place (default: location, shelf, room, ...).")
+    ] = None,
+    out: Annotated[
+        Path | None,
+        typer.Option("--out", help="Write the full report (every scanned line, then every missing code) to this CSV.", dir_okay=False),
+    ] = None,
+    record: Annotated[
+        bool,
+        typer.Option("--record", help="Log a 'seen' event for every scanned code the register holds, with the scan's time "
+                     "and place ('issuer history' then shows when a tag was last seen)."),
+    ] = False,
+    db: DbOption = None,
+    actor: ActorOption = None,
+    as_json: JsonOption = False,
+) -> None:
+    """Reconcile a stocktake scan against the register.
+
+    Sorts every scanned line: issued, voided (should have been pulled), bad check (a typo, with the issued code probably meant), not issued, malformed; then lists the codes scanned more than once and the issued codes nobody scanned (missing).
+    """
+    from issuer.reconcile import read_scans, reconcile, record_seen, sightings
+    from issuer.reconcile_report import as_json as report_json
+    from issuer.reconcile_report import write_report
+
+    register = open_register_from_options(db, actor)
+    with err_console().status("Reading the scans and comparing them with the register..."):
+        table = read_scans(scanfile, column=column, time_column=time_column, where_column=where_column)
+        recon = reconcile(register, key, table)
+    found = sightings(recon) if record else None  # a bad scan time stops us before any write
+    if out is not None:
+        from issuer.cli.transfer import atomic_output
+
+        with atomic_output(out) as stream:
+            write_report(recon, stream)
+    recorded = None
+    if found is not None:
+        with progress_bar(len(found), f"Recording {len(found):,} sightings") as advance:
+            recorded = record_seen(register, recon, found=found, progress=advance)
+    if as_json:
+        data = report_json(recon)
+        data["recorded"] = recorded
+        data["report"] = str(out) if out is not None else None
+        print_json(data)
+    else:
+        _render(recon, out, recorded)
+    raise typer.Exit(0 if recon.clean else 1)
+
+
+def _render(recon: Reconciliation, out: Path | None, recorded: int | None) -> None:
+    from rich.table import Table
+
+    terminal = console()
+    summary = Table(title=f"Stocktake of series {recon.series}: {recon.scans:,} scans from {Path(recon.source).name}")
+    summary.add_column("result")
+    summary.add_column("count", justify="right")
+    summary.add_column("meaning")
+    styles = {"issued": "green", "missing": "yellow", "duplicates": "yellow"}
+    for key, label, meaning in MEANINGS:
+        count = recon.counts[key]
+        style = styles.get(key, "red") if count else "dim"
+        summary.add_row(f"[{style}]{label}[/{style}]", f"{count:,}", meaning)
+    terminal.print(summary)
+    problems = [line for line in recon.lines() if line.status != "issued"]
+    if problems:
+        table = Table(title="Scans to look at")
+        for name in ("line", "scanned", "result", "detail", "probably meant"):
+            table.add_column(name)
+        for line in problems[:SHOW_LINES]:
+            likely = line.likely[0] if line.likely else None
+            table.add_row(
+                str(line.line), line.scanned, line.status.replace("_", " "), line.detail,
+                f"{likely.display} ({likely.description})" if likely else "",
+            )  # fmt: skip
+        terminal.print(table)
+        if len(problems) > SHOW_LINES:
+            terminal.print(f"... and {len(problems) - SHOW_LINES:,} more lines")
+    _render_duplicates(terminal, recon)
+    if recon.counts["missing"]:
+        shown = [item for _, item in zip(range(SHOW_LINES), recon.missing_codes())]
+        terminal.print(
+            "Missing: " + ", ".join(item.display for item in shown)
+            + (f" ... and {recon.counts['missing'] - len(shown):,} more" if recon.counts["missing"] > len(shown) else "")
+        )
+    if out is not None:
+        terminal.print(f"Full report written to {out}")
+    elif not recon.clean:
+        terminal.print("Write every line to a CSV with --out REPORT.csv", style="dim")
+    if recorded is not None:
+        terminal.print(f"Recorded {recorded:,} sightings in the log")
+
+
+def _render_duplicates(terminal: Any, recon: Reconciliation) -> None:
+    repeated = recon.duplicates()
+    if not repeated:
+        return
+    listed = []
+    for code, times, lines, places in repeated[:SHOW_LINES]:
+        where = f" at {', '.join(places)}" if places else ""
+        listed.append(f"{recon.shape.display(code)} x{times} (lines {', '.join(map(str, lines))}{where})")
+    more = f" ... and {len(repeated) - SHOW_LINES:,} more" if len(repeated) > SHOW_LINES else ""
+    terminal.print("Scanned more than once: " + "; ".join(listed) + more)

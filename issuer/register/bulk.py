@@ -1,0 +1,426 @@
+"""Issuing a large batch at the speed of the storage.
+
+A million codes go through no ORM object and no per-row Python work: counters are
+mapped to base numbers a chunk at a time (the scattered permutation's FF1 rounds run
+across the whole chunk), check characters are computed column-wise by the scheme's
+bulk method, the code texts are assembled as one byte matrix, and the rows reach the
+driver's ``executemany`` as an iterator of tuples inside the caller's transaction.
+Nothing holds the whole batch: each chunk is inserted, handed to an optional sink
+(a CSV file, say) and dropped.
+
+The rows are the same as the ones :func:`issuer.register.issuing.store_codes` writes;
+only the road to the database is shorter.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import os
+from collections.abc import Callable, Iterable, Iterator, Sequence
+from dataclasses import dataclass, field
+from datetime import datetime
+from itertools import repeat
+from pathlib import Path
+from typing import TYPE_CHECKING, Any, Protocol, Self
+
+from sqlalchemy import Column, select
+from sqlalchemy.exc import DBAPIError
+from sqlalchemy.orm import Session
+
+from issuer.codes import CodeFormat
+from issuer.errors import Exhausted, RegisterError
+from issuer.register.models import ISSUED, SCATTERED, Batch, IssuedCode, Series
+from issuer.register.series import capacity, code_format, permutation
+
+if TYPE_CHECKING:
+    import numpy as np
+    import numpy.typing as npt
+
+#: counters mapped, checked, inserted and handed on per round
+CHUNK = 50_000
+
+#: the columns a newly issued row fills, in the order of the tuples handed to the driver
+ISSUE_COLUMNS = (
+    "series_id", "code", "base", "status", "batch_id", "holder", "note",
+    "issued_at", "issued_by", "replaces_id", "print_count",
+)  # fmt: skip
+
+
+# --- texts in bulk -----------------------------------------------------------------------
+
+
+def _split_fixed(matrix: npt.NDArray[np.uint8]) -> list[str]:
+    """Rows of an ASCII byte matrix as str, via one decode and one split (no per-row
+    Python work)."""
+    import numpy as np
+
+    if matrix.shape[0] == 0:
+        return []
+    lines = np.empty((matrix.shape[0], matrix.shape[1] + 1), dtype=np.uint8)
+    lines[:, :-1] = matrix
+    lines[:, -1] = ord("\n")
+    return lines.tobytes().decode("ascii").split("\n")[:-1]
+
+
+def code_matrix(shape: CodeFormat, bases: npt.NDArray[np.int64]) -> npt.NDArray[np.uint8]:
+    """The canonical codes of ``bases`` as an ``(n, total_width)`` ASCII byte matrix."""
+    import numpy as np
+
+    scheme = shape.scheme
+    bodies = shape.bodies_for_bases(bases)
+    prefix, suffix = shape.prefix.encode("ascii"), shape.suffix.encode("ascii")
+    matrix = np.empty((bodies.shape[0], shape.total_width), dtype=np.uint8)
+    at = len(prefix)
+    if prefix:
+        matrix[:, :at] = np.frombuffer(prefix, dtype=np.uint8)
+    body_symbols = np.frombuffer(scheme.alphabet.symbols.encode("ascii"), dtype=np.uint8)
+    matrix[:, at: at + shape.length] = body_symbols[bodies]
+    at += shape.length
+    if scheme.check_length:
+        checks = scheme.compute_bulk(bodies)
+        check_symbols = np.frombuffer(scheme.check_alphabet.symbols.encode("ascii"), dtype=np.uint8)
+        matrix[:, at: at + scheme.check_length] = check_symbols[checks]
+        at += scheme.check_length
+    if suffix:
+        matrix[:, at:] = np.frombuffer(suffix, dtype=np.uint8)
+    return matrix
+
+
+def code_texts(shape: CodeFormat, bases: npt.NDArray[np.int64]) -> list[str]:
+    """Canonical codes for many base numbers; equal to ``shape.code_for_base`` each."""
+    return _split_fixed(code_matrix(shape, bases))
+
+
+def _display_columns(shape: CodeFormat) -> list[int]:
+    """For each character of the display form, the code column it copies (or -k-1 for
+    the k-th separator character)."""
+    sep = list(range(-1, -len(shape.sep) - 1, -1))
+    columns: list[int] = []
+    parts: list[list[int]] = []
+    at = 0
+    if shape.prefix:
+        parts.append(list(range(len(shape.prefix))))
+        at = len(shape.prefix)
+    sizes = shape.group or (shape.width,)
+    for size in sizes:
+        parts.append(list(range(at, at + size)))
+        at += size
+    if shape.suffix:
+        parts.append(list(range(at, at + len(shape.suffix))))
+    for index, part in enumerate(parts):
+        if index:
+            columns.extend(sep)
+        columns.extend(part)
+    return columns
+
+
+def display_texts(shape: CodeFormat, codes: Sequence[str]) -> list[str]:
+    """The grouped display forms of canonical codes; equal to ``shape.display`` each."""
+    import numpy as np
+
+    if not codes:
+        return []
+    columns = _display_columns(shape)
+    if columns == list(range(shape.total_width)):
+        return list(codes)
+    width = shape.total_width
+    raw = np.frombuffer("".join(codes).encode("ascii"), dtype=np.uint8).reshape(-1, width)
+    sep = np.frombuffer(shape.sep.encode("ascii"), dtype=np.uint8)
+    source = np.empty((raw.shape[0], width + len(sep)), dtype=np.uint8)
+    source[:, :width] = raw
+    source[:, width:] = sep
+    index = np.array([c if c >= 0 else width + (-c - 1) for c in columns], dtype=np.intp)
+    return _split_fixed(source[:, index])
+
+
+# --- where the chunks go -------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class IssuedChunk:
+    """Consecutive codes of one batch, in issue order."""
+
+    series: str
+    batch: int
+    shape: CodeFormat = field(repr=False)
+    codes: list[str] = field(repr=False)
+    bases: list[int] = field(repr=False)
+    holder: str | None = None
+
+    def displays(self) -> list[str]:
+        return display_texts(self.shape, self.codes)
+
+
+class CodeSink(Protocol):
+    """Receives a batch's codes while it is issued (inside its transaction)."""
+
+    def restart(self) -> None:
+        """Forget everything written so far: the transaction is being tried again."""
+
+    def write(self, chunk: IssuedChunk) -> None:
+        """Take the next codes of the batch."""
+
+
+class CodesCsv:
+    """A batch's codes as a CSV file, written whole or not at all.
+
+    ``with CodesCsv(path) as sink: issue_codes(..., sink=sink)``: the rows go to a
+    hidden file beside ``path``, which replaces ``path`` only when the block ends
+    without an error; otherwise it is removed and ``path`` is left as it was.
+    """
+
+    COLUMNS = ("code", "display", "base", "series", "batch")
+
+    def __init__(self, path: Path | str) -> None:
+        self.path = Path(path)
+        self._temporary: Path | None = None
+        self._stream: Any = None
+        self._writer: Any = None
+        self.rows = 0
+
+    def __enter__(self) -> Self:
+        import tempfile
+
+        directory = self.path.expanduser().resolve().parent
+        try:
+            handle, name = tempfile.mkstemp(dir=directory, prefix=".issuer-", suffix=".csv")
+        except OSError as exc:
+            raise RegisterError(f"cannot write {self.path}: {exc.strerror}") from None
+        self._temporary = Path(name)
+        self._stream = os.fdopen(handle, "w", newline="", encoding="utf-8")
+        self.restart()
+        return self
+
+    def restart(self) -> None:
+        import csv
+
+        self._stream.seek(0)
+        self._stream.truncate()
+        self._writer = csv.writer(self._stream)
+        self._writer.writerow(self.COLUMNS)
+        self.rows = 0
+
+    def write(self, chunk: IssuedChunk) -> None:
+        self._writer.writerows(
+            zip(chunk.codes, chunk.displays(), chunk.bases, repeat(chunk.series), repeat(chunk.batch))
+        )
+        self.rows += len(chunk.codes)
+
+    def __exit__(self, exc_type: object, *_: object) -> None:
+        assert self._temporary is not None
+        self._stream.close()
+        if exc_type is None:
+            os.replace(self._temporary, self.path)
+        else:
+            self._temporary.unlink(missing_ok=True)
+
+
+# --- the database side ---------------------------------------------------------------------
+
+
+def bind_value(session: Session, column: Column[Any], value: Any) -> Any:
+    """``value`` as the driver takes it for ``column`` (what the ORM would send)."""
+    dialect = session.get_bind().dialect
+    processor = column.type.dialect_impl(dialect).bind_processor(dialect)
+    return processor(value) if processor is not None else value
+
+
+def execute_many(session: Session, sql: str, rows: Iterable[Sequence[Any]]) -> None:
+    """Run ``sql`` once per tuple of ``rows`` through the driver's ``executemany``, in
+    the session's transaction. Write ``?`` for each parameter (it becomes the driver's
+    own marker); values must already be in the driver's form (:func:`bind_value`)."""
+    connection = session.connection()
+    dialect = connection.dialect
+    if dialect.paramstyle != "qmark":
+        sql = sql.replace("?", "%s")
+    cursor = connection.connection.cursor()
+    try:
+        cursor.executemany(sql, rows)  # type: ignore[arg-type]  # both drivers take any iterable
+    except dialect.loaded_dbapi.Error as exc:
+        # the same wrapped error the ORM would raise, so retries and callers see one kind
+        raise DBAPIError.instance(sql, None, exc, dialect.loaded_dbapi.Error) from None
+    finally:
+        cursor.close()
+
+
+def insert_many(session: Session, table: str, columns: Sequence[str], rows: Iterable[Sequence[Any]]) -> None:
+    """``INSERT`` every tuple of ``rows`` into ``table`` (see :func:`execute_many`)."""
+    markers = ", ".join("?" * len(columns))
+    execute_many(session, f"INSERT INTO {table} ({', '.join(columns)}) VALUES ({markers})", rows)
+
+
+def driver_rows(session: Session, sql: str, params: Sequence[Any] = ()) -> list[tuple[Any, ...]]:
+    """Rows of a query as the driver returns them (no type processing), in the
+    session's transaction. Write ``?`` for each parameter; it becomes the driver's own
+    marker."""
+    connection = session.connection()
+    dialect = connection.dialect
+    if dialect.paramstyle != "qmark":
+        sql = sql.replace("?", "%s")
+    cursor = connection.connection.cursor()
+    try:
+        cursor.execute(sql, tuple(params))
+        return list(cursor.fetchall())
+    except dialect.loaded_dbapi.Error as exc:
+        raise DBAPIError.instance(sql, None, exc, dialect.loaded_dbapi.Error) from None
+    finally:
+        cursor.close()
+
+
+def imported_bases(session: Session, series: Series) -> npt.NDArray[np.int64]:
+    """The sorted base numbers a series holds through import (the allocator skips them)."""
+    import numpy as np
+
+    if not series.imported_count:
+        return np.empty(0, dtype=np.int64)
+    found = session.scalars(
+        select(IssuedCode.base)
+        .join(Batch, Batch.id == IssuedCode.batch_id)
+        .where(Batch.series_id == series.id, Batch.kind == "import")
+    ).all()
+    return np.sort(np.asarray(found, dtype=np.int64))
+
+
+def check_room(series: Series, count: int) -> None:
+    """Refuse, issuing nothing, a batch larger than what the series has left."""
+    left = capacity(series) - series.code_count
+    if count > left:
+        raise Exhausted(
+            f"series {series.key} has {left} number{'s' if left != 1 else ''} left; "
+            f"{count} asked for, nothing issued"
+        )
+
+
+def allocate_chunks(session: Session, series: Series, count: int) -> Iterator[npt.NDArray[np.int64]]:
+    """The next ``count`` free base numbers of a locked series, a chunk at a time, in
+    issue order; the series' counters move as the chunks are taken.
+
+    Same numbers as :func:`issuer.register.issuing.allocate`.
+    """
+    import numpy as np
+
+    check_room(series, count)
+    skip = imported_bases(session, series)
+    scatter = permutation(series) if series.mode == SCATTERED else None
+    counter, end, left = series.next_counter, capacity(series), count
+    while left:
+        stop = min(counter + min(left, CHUNK), end)
+        if stop <= counter:  # pragma: no cover - guarded by the capacity check above
+            raise Exhausted(f"series {series.key} ran out of numbers")
+        counters = np.arange(counter, stop, dtype=np.int64)
+        if scatter is not None:
+            bases = scatter.bases_for_counters(counters)
+        else:
+            bases = counters + np.int64(series.range_start)
+        if skip.size:
+            bases = bases[~np.isin(bases, skip, assume_unique=True)]
+        counter = stop
+        series.next_counter = counter
+        if bases.size:
+            left -= int(bases.size)
+            series.code_count += int(bases.size)
+            yield bases
+
+
+#: page cache per issued code for a bulk batch on SQLite, in KiB: enough to keep the
+#: pages of both unique indexes that scattered (random-order) inserts touch in memory
+CACHE_KIB_PER_CODE = 0.25
+#: the most page cache a bulk batch asks SQLite for, in KiB
+CACHE_KIB_MAX = 1 << 20
+
+
+def _roomy_cache(session: Session, count: int) -> int | None:
+    """Give SQLite's page cache room for this batch's index pages.
+
+    With the default cache (2 MiB) a million scattered inserts evict and re-read index
+    pages all the time; the cache setting lasts for this connection only and is put
+    back when the batch is stored. Returns the setting to put back, if it changed.
+    """
+    connection = session.connection()
+    if connection.dialect.name != "sqlite":
+        return None
+    wanted = min(int(count * CACHE_KIB_PER_CODE), CACHE_KIB_MAX)
+    current = connection.exec_driver_sql("PRAGMA cache_size").scalar_one()
+    current_kib = -current if current < 0 else current * 4  # pages of (at most) 4 KiB
+    if wanted <= current_kib:
+        return None
+    connection.exec_driver_sql(f"PRAGMA cache_size = -{wanted}")
+    return int(current)
+
+
+def _restore_cache(session: Session, previous: int | None) -> None:
+    if previous is not None:
+        session.connection().exec_driver_sql(f"PRAGMA cache_size = {previous}")
+
+
+@dataclass
+class BulkOutcome:
+    """What a bulk issuance leaves behind besides its rows."""
+
+    count: int = 0
+    first: tuple[str, int] | None = None
+    last: tuple[str, int] | None = None
+    digest: Any = field(default_factory=hashlib.sha256)
+    collected: list[tuple[str, str, int]] = field(default_factory=list)
+
+
+def store_bulk(
+    session: Session,
+    *,
+    series: Series,
+    batch: Batch,
+    count: int,
+    holder: str | None,
+    note: str | None,
+    at: datetime,
+    actor: str,
+    collect: bool,
+    sink: CodeSink | None = None,
+    progress: Callable[[int], None] | None = None,
+) -> BulkOutcome:
+    """Allocate, make and insert ``count`` codes for ``batch``, chunk by chunk."""
+    shape = code_format(series)
+    previous_cache = _roomy_cache(session, count)
+    issued_at = bind_value(session, IssuedCode.__table__.c.issued_at, at)  # type: ignore[arg-type]
+    outcome = BulkOutcome()
+    for bases_array in allocate_chunks(session, series, count):
+        codes = code_texts(shape, bases_array)
+        bases = bases_array.tolist()
+        rows = zip(
+            repeat(series.id), codes, bases, repeat(ISSUED), repeat(batch.id), repeat(holder),
+            repeat(note), repeat(issued_at), repeat(actor), repeat(None), repeat(0),
+        )  # fmt: skip
+        insert_many(session, "issued_code", ISSUE_COLUMNS, rows)
+        outcome.digest.update(("\n".join(codes) + "\n").encode("ascii"))
+        if outcome.first is None:
+            outcome.first = (codes[0], bases[0])
+        outcome.last = (codes[-1], bases[-1])
+        outcome.count += len(codes)
+        chunk = IssuedChunk(series.key, batch.id, shape, codes, bases, holder)
+        if collect:
+            outcome.collected.extend(zip(codes, chunk.displays(), bases))
+        if sink is not None:
+            sink.write(chunk)
+        if progress is not None:
+            progress(len(codes))
+    _restore_cache(session, previous_cache)
+    return outcome
+
+
+__all__ = [
+    "CHUNK",
+    "BulkOutcome",
+    "CodeSink",
+    "CodesCsv",
+    "IssuedChunk",
+    "allocate_chunks",
+    "bind_value",
+    "check_room",
+    "code_texts",
+    "display_texts",
+    "driver_rows",
+    "execute_many",
+    "imported_bases",
+    "insert_many",
+    "store_bulk",
+]

@@ -1,0 +1,194 @@
+"""Export: a series' codes streamed out as CSV, JSON or JSON Lines.
+
+The rows come from a server-side cursor (``yield_per``) a few thousand at a time, and
+the database itself writes the display form and the UTC timestamps as text, so a
+million codes pass through Python as plain tuples and memory stays flat however large
+the series grows. The series' FF1 key is never read. Holders are personal data: the
+command that writes a file says so.
+
+The columns are the ones :mod:`issuer.register.importing` reads back, so export ->
+fresh register -> import -> export gives the same file.
+"""
+
+from __future__ import annotations
+
+import json
+from collections.abc import Callable, Sequence
+from typing import IO, Any
+
+from sqlalchemy import ColumnElement, Select, String, case, func, literal, select, type_coerce
+from sqlalchemy.orm import Session, aliased
+
+from issuer.errors import InvalidFormat
+from issuer.register.models import ISSUED, VOIDED, IssuedCode, Series
+from issuer.register.series import code_format, get_series
+from issuer.register.store import Register
+
+FORMATS = ("csv", "json", "jsonl")
+STATUS_CHOICES = ("issued", "voided", "all")
+#: rows fetched from the server per round
+FETCH_ROWS = 10_000
+
+#: what an export holds, in this order
+EXPORT_COLUMNS = (
+    "code", "display", "status", "issued_at", "issued_by", "holder", "note",
+    "voided_at", "voided_by", "void_reason", "replaces", "last_seen_at", "last_seen_where",
+)  # fmt: skip
+
+
+def _text(expression: Any) -> ColumnElement[Any]:
+    """``expression`` typed as text, so that ``+`` concatenates and nothing converts it."""
+    return type_coerce(expression, String)
+
+
+def _utc_text(column: Any, dialect: str) -> ColumnElement[Any]:
+    """A timestamp as ``2026-03-14T09:30:00Z`` (fractions only when there are any),
+    written by the database."""
+    if dialect == "sqlite":
+        # stored as 'YYYY-MM-DD HH:MM:SS.ffffff' in UTC
+        raw = _text(column)
+        return case(
+            (_text(func.substr(raw, 20)) == ".000000", _text(func.replace(func.substr(raw, 1, 19), " ", "T")) + "Z"),
+            else_=_text(func.replace(raw, " ", "T")) + "Z",
+        )
+    if dialect == "postgresql":
+        utc = func.timezone("UTC", column)
+        fraction = case((_text(func.to_char(utc, "US")) == "000000", ""), else_=_text(func.to_char(utc, ".US")))
+        return _text(_text(func.to_char(utc, 'YYYY-MM-DD"T"HH24:MI:SS')) + fraction + "Z")
+    raise InvalidFormat(f"export does not support the {dialect} backend")
+
+
+def _display(series: Series) -> ColumnElement[Any]:
+    """The grouped display form, cut from the canonical code by the database."""
+    shape = code_format(series)
+    parts: list[tuple[int, int]] = []
+    at = 1
+    if shape.prefix:
+        parts.append((at, len(shape.prefix)))
+        at += len(shape.prefix)
+    for size in shape.group or (shape.width,):
+        parts.append((at, size))
+        at += size
+    if shape.suffix:
+        parts.append((at, len(shape.suffix)))
+    if len(parts) == 1 or not shape.sep:
+        return _text(IssuedCode.code)
+    expression = _text(func.substr(IssuedCode.code, *parts[0]))
+    for start, length in parts[1:]:
+        expression = expression + literal(shape.sep, String) + _text(func.substr(IssuedCode.code, start, length))
+    return _text(expression)
+
+
+def export_statement(series: Series, status: str, dialect: str) -> Select[Any]:
+    if status not in STATUS_CHOICES:
+        raise InvalidFormat(f"--status must be one of {', '.join(STATUS_CHOICES)}, not {status!r}")
+    replaced = aliased(IssuedCode)
+    statement = (
+        select(
+            IssuedCode.code,
+            _display(series),
+            IssuedCode.status,
+            _utc_text(IssuedCode.issued_at, dialect),
+            IssuedCode.issued_by,
+            IssuedCode.holder,
+            IssuedCode.note,
+            _utc_text(IssuedCode.voided_at, dialect),
+            IssuedCode.voided_by,
+            IssuedCode.void_reason,
+            replaced.code,
+            _utc_text(IssuedCode.last_seen_at, dialect),
+            IssuedCode.last_seen_where,
+        )
+        .outerjoin(replaced, replaced.id == IssuedCode.replaces_id)
+        .where(IssuedCode.series_id == series.id)
+        .order_by(IssuedCode.id)
+    )
+    if status == "issued":
+        statement = statement.where(IssuedCode.status == ISSUED)
+    elif status == "voided":
+        statement = statement.where(IssuedCode.status == VOIDED)
+    return statement
+
+
+def count_codes(register: Register, key: str, status: str = "all") -> int:
+    """How many codes an export of ``key`` with ``status`` would hold."""
+    with register.reading() as session:
+        series = get_series(session, key)
+        statement = select(func.count()).select_from(IssuedCode).where(IssuedCode.series_id == series.id)
+        if status != "all":
+            statement = statement.where(IssuedCode.status == status)
+        return int(session.scalar(statement) or 0)
+
+
+class _Writer:
+    """Writes rows in one of the formats; ``close`` ends the document."""
+
+    def __init__(self, stream: IO[str], fmt: str) -> None:
+        if fmt not in FORMATS:
+            raise InvalidFormat(f"--format must be one of {', '.join(FORMATS)}, not {fmt!r}")
+        self.stream, self.fmt, self.first = stream, fmt, True
+        if fmt == "csv":
+            import csv
+
+            self.csv = csv.writer(stream)
+            self.csv.writerow(EXPORT_COLUMNS)
+        elif fmt == "json":
+            stream.write("[")
+
+    def rows(self, rows: Sequence[Any]) -> None:
+        if self.fmt == "csv":
+            self.csv.writerows(rows)
+            return
+        dumps, names = json.dumps, EXPORT_COLUMNS
+        lines = [dumps(dict(zip(names, row)), ensure_ascii=False) for row in rows]
+        if self.fmt == "jsonl":
+            self.stream.write("\n".join(lines) + "\n")
+        else:
+            lead = "\n" if self.first else ",\n"
+            self.stream.write(lead + ",\n".join(lines))
+        self.first = False
+
+    def close(self) -> None:
+        if self.fmt == "json":
+            self.stream.write("\n]\n" if not self.first else "]\n")
+
+
+def export_codes(
+    register: Register,
+    key: str,
+    stream: IO[str],
+    *,
+    fmt: str = "csv",
+    status: str = "all",
+    progress: Callable[[int], None] | None = None,
+) -> int:
+    """Write series ``key``'s codes to ``stream`` in issue order; returns how many."""
+    writer = _Writer(stream, fmt)
+    written = 0
+    with register.reading() as session:
+        series = get_series(session, key)
+        statement = export_statement(series, status, session.get_bind().dialect.name)
+        result = session.execute(statement.execution_options(yield_per=FETCH_ROWS))
+        for part in result.partitions():
+            writer.rows(part)
+            written += len(part)
+            if progress is not None:
+                progress(len(part))
+    writer.close()
+    return written
+
+
+def export_session_rows(session: Session, series: Series, status: str = "all") -> list[tuple[Any, ...]]:
+    """Every exported row of a series as tuples (for tests and small series)."""
+    statement = export_statement(series, status, session.get_bind().dialect.name)
+    return [tuple(row) for row in session.execute(statement)]
+
+
+__all__ = [
+    "EXPORT_COLUMNS",
+    "FORMATS",
+    "STATUS_CHOICES",
+    "count_codes",
+    "export_codes",
+    "export_session_rows",
+]
