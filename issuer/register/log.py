@@ -161,8 +161,11 @@ class ChainReport:
 
 def _stream(session: Session) -> Iterator[LogEntry]:
     statement = select(LogEntry).order_by(LogEntry.id).execution_options(yield_per=5000)
-    for entry in session.scalars(statement):
-        yield entry
+    result = session.scalars(statement)
+    try:
+        yield from result
+    finally:
+        result.close()  # PostgreSQL streams through a server-side cursor: close it early
 
 
 def verify_chain(session: Session) -> ChainReport:
@@ -170,7 +173,8 @@ def verify_chain(session: Session) -> ChainReport:
     expected_id, previous = 0, GENESIS
     count = 0
     problem: ChainProblem | None = None
-    for entry in _stream(session):
+    entries = _stream(session)
+    for entry in entries:
         count += 1
         expected_id += 1
         if entry.id != expected_id:
@@ -194,9 +198,15 @@ def verify_chain(session: Session) -> ChainReport:
             problem = ChainProblem(entry.id, "its content no longer matches its hash (altered)")
             break
         previous = entry.hash
+    entries.close()
     head_id, head_hash = head(session)
-    if problem is None and (head_id != expected_id or head_hash != previous):
+    if problem is None and expected_id > head_id:
         problem = ChainProblem(
-            head_id, "the chain's head does not match its last entry (entries removed at the end?)"
+            head_id + 1, f"lies beyond the chain's head (#{head_id}): added behind the tool's back"
         )
+    elif problem is None and expected_id < head_id:
+        missing = f"{expected_id + 1}" if expected_id + 1 == head_id else f"{expected_id + 1}-{head_id}"
+        problem = ChainProblem(expected_id + 1, f"entries {missing} are missing (removed at the end)")
+    elif problem is None and head_hash != previous:
+        problem = ChainProblem(head_id, "the chain's head does not match its last entry")
     return ChainReport(entries=count, head_id=head_id, head_hash=head_hash, problem=problem)
