@@ -45,7 +45,7 @@ def root(
 def _register_commands() -> None:
     # each module adds its commands to ``app``; imports here stay light
     from issuer.cli import admin, demo, desk, engine, issuing, labels, logcmd, series  # noqa: F401
-    from issuer.cli import stocktake, transfer  # noqa: F401
+    from issuer.cli import printing, stocktake, transfer  # noqa: F401
 
 
 _register_commands()

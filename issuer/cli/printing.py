@@ -1,0 +1,373 @@
+"""``issuer labels`` and ``issuer reprint``: print-ready labels from the register.
+
+Thin: the codes are chosen by :func:`issuer.register.printing.select_for_printing`,
+drawn and recorded by :func:`issuer.printjob.print_selection`.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Annotated, Any
+
+import typer
+
+from issuer.cli.app import app
+from issuer.cli.common import (
+    PERSONAL_DATA_CAUTION,
+    ActorOption,
+    DbOption,
+    JsonOption,
+    console,
+    open_register_from_options,
+    print_json,
+    progress_bar,
+)
+
+DEFAULT_SHEET_LAYOUT = "a4-3x8"
+DEFAULT_SINGLE_LAYOUT = "roll-50x25"
+#: jobs of at least this many labels show a progress bar (about a second of drawing)
+PROGRESS_FROM = 1000
+_SYMBOLOGY_NAMES = {"code128": "Code 128", "qr": "QR Code", "datamatrix": "Data Matrix"}
+
+SCALE_HELP = (
+    'Print at 100 % scale (actual size), never "fit to page": only then do the labels have '
+    "the layout's stated dimensions and the barcodes their module size and quiet zones."
+)
+LABELS_HELP = (
+    "Print labels for issued codes: a PDF sheet, or one label as PNG or SVG.\n\n"
+    "Choose the codes one way: name them, or --batch ID (issue order), or --series KEY, "
+    "optionally --from CODE --to CODE, both included (an in-order series runs by number, "
+    "a scattered one by issue order). Each code's print count goes up by one and a "
+    '"print" entry is logged, only once the file is complete. Voided codes are refused '
+    "unless --void-labels (printed marked VOID) or --without-void (left out).\n\n"
+    f"{SCALE_HELP}\n\n"
+    "A check character catches mistakes, not fraud; a printed scattered number is public."
+)
+REPRINT_HELP = (
+    "Print labels again for codes already issued (a damaged, faded or lost label): each "
+    'code\'s print count goes up by one and a "reprint" entry logs who reprinted and why '
+    "(--reason is required). 'issuer history CODE' shows every print.\n\n"
+    f"{SCALE_HELP}"
+)
+
+OutOption = Annotated[
+    Path,
+    typer.Option(
+        "--out",
+        "-o",
+        help="File to write: .pdf for a sheet of any number of labels, .png or .svg for "
+        "exactly one label. Written whole or not at all.",
+        show_default=False,
+    ),
+]
+BarcodeOption = Annotated[
+    str,
+    typer.Option(
+        "--barcode",
+        help="Symbology: code128 (quiet zone 10 modules each side), qr (4 modules, "
+        "ISO/IEC 18004) or datamatrix (ISO/IEC 16022).",
+    ),
+]
+LayoutOption = Annotated[
+    str | None,
+    typer.Option(
+        "--layout",
+        help=f"Label layout ('issuer layouts' lists them; default {DEFAULT_SHEET_LAYOUT} "
+        f"for a PDF, {DEFAULT_SINGLE_LAYOUT} for one PNG/SVG label).",
+        show_default=False,
+    ),
+]
+SkipOption = Annotated[
+    int,
+    typer.Option(
+        "--skip",
+        min=0,
+        help="Cells already used on the first sheet: start after this many, counted row "
+        "by row from the top-left (PDF only).",
+    ),
+]
+LinesOption = Annotated[
+    str,
+    typer.Option(
+        "--lines",
+        help="Lines beneath the code, comma-separated, from title (the series' title), "
+        "holder, note; or none. The holder is personal data: print it only where your "
+        "policy allows.",
+    ),
+]
+CaptionOption = Annotated[
+    str | None,
+    typer.Option(
+        "--caption",
+        help="A short text on every label (e.g. 'Return to the desk').",
+        show_default=False,
+    ),
+]
+VoidLabelsOption = Annotated[
+    bool,
+    typer.Option(
+        "--void-labels",
+        help="Print voided codes too, each marked VOID (without this, a selection with a "
+        "voided code is refused).",
+    ),
+]
+GS1Option = Annotated[
+    str | None,
+    typer.Option(
+        "--gs1-prefix",
+        help="Your GS1 Company Prefix (4-12 digits): encode each code as GS1 AI (8004) "
+        "GIAI, FNC1 first (code128 and datamatrix only). Use only a prefix GS1 gave you.",
+        show_default=False,
+    ),
+]
+OutlinesOption = Annotated[
+    bool,
+    typer.Option(
+        "--outlines",
+        help="Draw thin grey cell outlines: a test print on plain paper, to hold "
+        "against a label sheet.",
+    ),
+]
+BesideOption = Annotated[
+    bool,
+    typer.Option(
+        "--text-beside",
+        help="Put the text at the right of a QR/Data Matrix symbol on wide labels "
+        "(default: beneath it).",
+    ),
+]
+DpiOption = Annotated[
+    int, typer.Option("--dpi", min=72, max=2400, help="Resolution of a PNG label.")
+]
+
+
+def _run(
+    *,
+    codes: list[str] | None,
+    batch: int | None,
+    series: str | None,
+    first: str | None,
+    last: str | None,
+    out: Path,
+    barcode: str,
+    layout: str | None,
+    skip: int,
+    lines: str,
+    caption: str | None,
+    void: str,
+    gs1_prefix: str | None,
+    outlines: bool,
+    text_beside: bool,
+    dpi: int,
+    db: str | None,
+    actor: str | None,
+    as_json: bool,
+    reason: str | None = None,
+    reprint: bool = False,
+) -> None:
+    from issuer.config import load_settings
+    from issuer.labels import get_layout, output_format
+    from issuer.printjob import LabelOptions, parse_lines, print_selection
+    from issuer.register.lifecycle import require_reason
+    from issuer.register.printing import select_for_printing
+
+    # everything that needs no register is checked first
+    if reprint:
+        reason = require_reason(reason)
+    kind = output_format(out)
+    settings = load_settings(database=db, actor=actor)
+    name = layout or (DEFAULT_SHEET_LAYOUT if kind == "pdf" else DEFAULT_SINGLE_LAYOUT)
+    chosen = get_layout(name, settings.section("layouts"))
+    options = LabelOptions(
+        layout=chosen,
+        symbology=barcode,
+        skip=skip,
+        lines=parse_lines(lines),
+        caption=caption,
+        gs1_company_prefix=gs1_prefix,
+        outlines=outlines,
+        text_beside=text_beside,
+        dpi=dpi,
+    )
+    register = open_register_from_options(db, actor)
+    try:
+        selection = select_for_printing(
+            register, codes=codes or (), batch=batch, series=series, first=first, last=last,
+            void=void,
+        )  # fmt: skip
+        total = len(selection.rows)
+        with progress_bar(total, f"Drawing {total:,} labels", show_from=PROGRESS_FROM) as advance:
+            drawn = [0]
+
+            def progress(done: int) -> None:
+                advance(done - drawn[0])
+                drawn[0] = done
+
+            outcome = print_selection(
+                register, selection, out, options, reason=reason, reprint=reprint,
+                progress=progress,
+            )  # fmt: skip
+    finally:
+        register.close()
+    if as_json:
+        data = outcome.as_dict()
+        data["actor"] = register.actor
+        if reason is not None:
+            data["reason"] = reason
+        print_json(data)
+        return
+    _summary(outcome, register.actor, reason, "holder" in options.lines)
+
+
+def _summary(outcome: Any, actor: str, reason: str | None, holder: bool) -> None:
+    out = console()
+    symbology = _SYMBOLOGY_NAMES.get(outcome.symbology, outcome.symbology)
+    n = outcome.labels
+    labels = f"{n:,} label{'s' if n != 1 else ''}"
+    if outcome.format == "pdf":
+        pages = f" on {outcome.pages} page{'s' if outcome.pages != 1 else ''}"
+    else:
+        pages = ""
+    out.print(
+        f"{labels}{pages} written to {outcome.path} ({outcome.description}; layout "
+        f"{outcome.layout}, {symbology}). Print at 100 % scale (actual size).",
+        markup=False,
+        soft_wrap=True,
+    )
+    act = "reprint" if outcome.reprint else "print"
+    logged = f"Logged {outcome.logged:,} {act}{'s' if outcome.logged != 1 else ''} by {actor}"
+    out.print(
+        logged + (f": {reason}" if reason else "") + "; print counts went up by one.",
+        markup=False,
+        soft_wrap=True,
+    )
+    if outcome.void_labels:
+        out.print(f"{outcome.void_labels} label(s) are marked VOID.", markup=False, soft_wrap=True)
+    if outcome.omitted_void:
+        shown = ", ".join(outcome.omitted_void[:5])
+        more = len(outcome.omitted_void) - 5
+        out.print(
+            f"Left out {len(outcome.omitted_void)} voided code(s): {shown}"
+            + (f" and {more} more" if more > 0 else ""),
+            markup=False,
+            soft_wrap=True,
+        )
+    if holder:
+        out.print(PERSONAL_DATA_CAUTION, style="dim", markup=False)
+
+
+def _void_mode(void_labels: bool, without_void: bool) -> str:
+    from issuer.register.printing import VOID_MARK, VOID_OMIT, VOID_REFUSE
+
+    if void_labels and without_void:
+        raise typer.BadParameter("give --void-labels or --without-void, not both")
+    return VOID_MARK if void_labels else VOID_OMIT if without_void else VOID_REFUSE
+
+
+@app.command("labels", help=LABELS_HELP)
+def labels(
+    codes: Annotated[
+        list[str] | None,
+        typer.Argument(
+            help="Codes to print, as typed or scanned, in label order.", show_default=False
+        ),
+    ] = None,
+    *,
+    out: OutOption,
+    batch: Annotated[
+        int | None,
+        typer.Option(
+            "--batch", help="Print every code of this batch, in issue order.", show_default=False
+        ),
+    ] = None,
+    series: Annotated[
+        str | None,
+        typer.Option(
+            "--series",
+            help="Print the codes of this series: an in-order series by number, a "
+            "scattered series by issue order.",
+            show_default=False,
+        ),
+    ] = None,
+    first: Annotated[
+        str | None,
+        typer.Option(
+            "--from", help="With --series: start at this code (included).", show_default=False
+        ),
+    ] = None,
+    last: Annotated[
+        str | None,
+        typer.Option(
+            "--to", help="With --series: end at this code (included).", show_default=False
+        ),
+    ] = None,
+    barcode: BarcodeOption = "code128",
+    layout: LayoutOption = None,
+    skip: SkipOption = 0,
+    lines: LinesOption = "title",
+    caption: CaptionOption = None,
+    void_labels: VoidLabelsOption = False,
+    without_void: Annotated[
+        bool,
+        typer.Option(
+            "--without-void", help="Leave voided codes out of the selection instead of refusing it."
+        ),
+    ] = False,
+    gs1_prefix: GS1Option = None,
+    outlines: OutlinesOption = False,
+    text_beside: BesideOption = False,
+    dpi: DpiOption = 300,
+    db: DbOption = None,
+    actor: ActorOption = None,
+    as_json: JsonOption = False,
+) -> None:
+    """Print labels for issued codes (see LABELS_HELP)."""
+    _run(
+        codes=codes, batch=batch, series=series, first=first, last=last, out=out,
+        barcode=barcode, layout=layout, skip=skip, lines=lines, caption=caption,
+        void=_void_mode(void_labels, without_void), gs1_prefix=gs1_prefix,
+        outlines=outlines, text_beside=text_beside, dpi=dpi, db=db, actor=actor,
+        as_json=as_json,
+    )  # fmt: skip
+
+
+@app.command("reprint", help=REPRINT_HELP)
+def reprint(
+    codes: Annotated[
+        list[str],
+        typer.Argument(
+            help="Codes to print again, as typed or scanned, in label order.", show_default=False
+        ),
+    ],
+    *,
+    out: OutOption,
+    reason: Annotated[
+        str,
+        typer.Option(
+            "--reason",
+            help="Why (damaged, faded, lost label...): it goes into the log with who reprinted.",
+            show_default=False,
+        ),
+    ],
+    barcode: BarcodeOption = "code128",
+    layout: LayoutOption = None,
+    skip: SkipOption = 0,
+    lines: LinesOption = "title",
+    caption: CaptionOption = None,
+    void_labels: VoidLabelsOption = False,
+    gs1_prefix: GS1Option = None,
+    outlines: OutlinesOption = False,
+    text_beside: BesideOption = False,
+    dpi: DpiOption = 300,
+    db: DbOption = None,
+    actor: ActorOption = None,
+    as_json: JsonOption = False,
+) -> None:
+    """Print labels again (see REPRINT_HELP)."""
+    _run(
+        codes=codes, batch=None, series=None, first=None, last=None, out=out,
+        barcode=barcode, layout=layout, skip=skip, lines=lines, caption=caption,
+        void=_void_mode(void_labels, False), gs1_prefix=gs1_prefix, outlines=outlines,
+        text_beside=text_beside, dpi=dpi, db=db, actor=actor, as_json=as_json,
+        reason=reason, reprint=True,
+    )  # fmt: skip

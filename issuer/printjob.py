@@ -1,0 +1,201 @@
+"""Print jobs: register rows onto labels, and the prints recorded only once the file exists.
+
+This module joins two floors that know nothing of each other: the register
+(:mod:`issuer.register.printing` selects codes and records prints) and the label layer
+(:mod:`issuer.labels` draws them). The order is what keeps the outcome honest:
+
+1. everything is checked and every symbol encoded before any file is touched;
+2. the labels are drawn into a temporary file beside the target;
+3. the prints are counted and logged in one transaction;
+4. only then is the file moved onto the target name.
+
+A failed drawing therefore logs nothing, and a failed log leaves no new file (an older
+file of the same name is left as it was).
+"""
+
+from __future__ import annotations
+
+import os
+import secrets
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+from issuer.errors import InvalidFormat, LabelError
+from issuer.labels import LabelContent, Layout, output_format, render_labels
+from issuer.register.lifecycle import require_reason
+from issuer.register.printing import PrintRow, PrintSelection, record_prints
+from issuer.register.store import Register
+
+#: what the register can put on a label beneath the code, in the order asked for
+LINE_FIELDS = ("title", "holder", "note")
+
+
+def parse_lines(text: str | None) -> tuple[str, ...]:
+    """``"title,holder"`` -> ``("title", "holder")``; ``"none"`` or empty -> ``()``."""
+    if text is None:
+        return ()
+    parts = [part.strip().lower() for part in text.split(",") if part.strip()]
+    if parts in ([], ["none"]):
+        return ()
+    unknown = [part for part in parts if part not in LINE_FIELDS]
+    if unknown:
+        raise InvalidFormat(
+            f"unknown label line(s) {', '.join(unknown)}: choose from "
+            f"{', '.join(LINE_FIELDS)} (comma-separated), or none"
+        )
+    if len(set(parts)) != len(parts):
+        raise InvalidFormat("a label line is named twice")
+    return tuple(parts)
+
+
+def label_contents(
+    rows: Sequence[PrintRow], lines: Sequence[str] = ("title",), caption: str | None = None
+) -> list[LabelContent]:
+    """The labels for ``rows``: the canonical code in the symbol, the grouped code as
+    text, then the asked-for ``lines`` a row has (an empty one is skipped) and the
+    ``caption`` on every label. Voided rows are marked VOID."""
+    caption = (caption or "").strip() or None
+    labels = []
+    for row in rows:
+        values = {"title": row.series_title, "holder": row.holder, "note": row.note}
+        shown = [str(values[name]).strip() for name in lines if (values[name] or "").strip()]
+        if caption:
+            shown.append(caption)
+        labels.append(LabelContent(row.code, row.display, tuple(shown), row.void))
+    return labels
+
+
+@dataclass(frozen=True)
+class LabelOptions:
+    """How to draw: the layout and symbology, start position, lines and extras."""
+
+    layout: Layout
+    symbology: str = "code128"
+    skip: int = 0
+    lines: tuple[str, ...] = ("title",)
+    caption: str | None = None
+    gs1_company_prefix: str | None = None
+    outlines: bool = False
+    text_beside: bool = False
+    dpi: int = 300
+    title: str | None = None
+
+
+@dataclass(frozen=True)
+class PrintOutcome:
+    """A finished job: the file, what is on it, and how many prints were logged."""
+
+    path: Path
+    format: str
+    layout: str
+    symbology: str
+    labels: int
+    pages: int
+    skip: int
+    module_mm: float
+    logged: int
+    reprint: bool
+    void_labels: int
+    description: str
+    codes: tuple[str, ...]
+    omitted_void: tuple[str, ...] = ()
+
+    def as_dict(self) -> dict[str, Any]:
+        data = dict(self.__dict__)
+        data["path"] = str(self.path)
+        data["codes"] = list(self.codes)
+        data["omitted_void"] = list(self.omitted_void)
+        data["module_mm"] = round(self.module_mm, 4)
+        return data
+
+
+def _temporary_beside(target: Path, kind: str) -> Path:
+    folder = target.parent if str(target.parent) else Path(".")
+    if not folder.is_dir():
+        raise LabelError(f"folder {os.fspath(folder)!r} does not exist")
+    if target.is_dir():
+        raise LabelError(f"{os.fspath(target)!r} is a folder")
+    # the suffix stays, so the renderer writes the same format
+    return folder / f".{target.stem}.{secrets.token_hex(6)}.{kind}"
+
+
+def print_selection(
+    register: Register,
+    selection: PrintSelection,
+    out: str | os.PathLike[str],
+    options: LabelOptions,
+    *,
+    reason: str | None = None,
+    reprint: bool = False,
+    progress: Callable[[int], None] | None = None,
+) -> PrintOutcome:
+    """Draw ``selection`` to ``out`` (``.pdf`` sheet, or one label as ``.png``/``.svg``)
+    and record one print per code — or a reprint, which needs a ``reason``.
+
+    ``progress`` is called with the number of labels drawn so far. On any error nothing
+    is logged and no new file is left behind.
+    """
+    if reprint:
+        reason = require_reason(reason)
+    kind = output_format(out)
+    target = Path(out)
+    labels = label_contents(selection.rows, options.lines, options.caption)
+    temp = _temporary_beside(target, kind)
+    keep = False
+    try:
+        result = render_labels(
+            labels,
+            options.layout,
+            temp,
+            symbology=options.symbology,
+            skip=options.skip,
+            gs1_company_prefix=options.gs1_company_prefix,
+            dpi=options.dpi,
+            title=options.title,
+            outlines=options.outlines,
+            text_beside=options.text_beside,
+            progress=progress,
+        )
+        extra: dict[str, Any] = {}
+        if options.gs1_company_prefix is not None:
+            extra["gs1_company_prefix"] = options.gs1_company_prefix
+        logged = record_prints(
+            register,
+            selection.codes,
+            reason=reason,
+            reprint=reprint,
+            layout=options.layout.name,
+            symbology=result.symbology,
+            file=target.name,
+            void_labels=[row.code for row in selection.rows if row.void],
+            extra=extra,
+        )
+        try:
+            os.replace(temp, target)
+        except OSError as exc:
+            keep = True
+            raise LabelError(
+                f"the labels were drawn and recorded as printed, but could not be moved to "
+                f"{os.fspath(target)!r} ({exc.strerror}); they are in {os.fspath(temp)!r}"
+            ) from None
+    finally:
+        if not keep:
+            temp.unlink(missing_ok=True)
+    return PrintOutcome(
+        path=target,
+        format=kind,
+        layout=options.layout.name,
+        symbology=result.symbology,
+        labels=result.labels,
+        pages=result.pages,
+        skip=result.skip,
+        module_mm=result.module_mm,
+        logged=logged,
+        reprint=reprint,
+        void_labels=sum(1 for row in selection.rows if row.void),
+        description=selection.description,
+        codes=tuple(selection.codes),
+        omitted_void=selection.omitted_void,
+    )
