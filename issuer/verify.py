@@ -134,6 +134,52 @@ def _line_bounds(raw: npt.NDArray[np.uint8]) -> tuple[Any, Any]:
     return starts, ends - has_cr
 
 
+def _regular_block(raw: Any, starts: Any, width: int) -> Any:
+    """The lines as an ``(n, width)`` view without copying, when they sit at equal
+    strides in the file (every line the same length, the usual case); else ``None``."""
+    import numpy as np
+
+    if starts.size < 2:
+        return None
+    stride = int(starts[1] - starts[0])
+    if stride < width or not (np.diff(starts) == stride).all():
+        return None
+    return np.lib.stride_tricks.as_strided(
+        raw[int(starts[0]) :], shape=(starts.size, width), strides=(stride, 1), writeable=False
+    )
+
+
+def _verify_chunk(scheme: Scheme, rows: Any, chars: Any) -> tuple[Any, Any, Any]:
+    """Rows made only of alphabet symbols, their values, and which of them verify."""
+    import numpy as np
+
+    c = scheme.check_length
+    width = chars.shape[1]
+    body_table = scheme.alphabet.lookup_table()
+    if scheme.check_alphabet is scheme.alphabet:
+        values = body_table[chars]
+    else:
+        check_table = scheme.check_alphabet.lookup_table()
+        values = np.concatenate(
+            [body_table[chars[:, : width - c]], check_table[chars[:, width - c :]]], axis=1
+        )
+    clean = (values >= 0).all(axis=1)
+    if not clean.all():
+        rows, values = rows[clean], values[clean]
+    return rows, values, scheme.verify_bulk(values.astype(np.int64))
+
+
+def _canonical_symbols(scheme: Scheme, values: Any) -> Any:
+    """Canonical text bytes of a value matrix, body and check each in their alphabet."""
+    import numpy as np
+
+    c = scheme.check_length
+    width = values.shape[1]
+    body = np.frombuffer(scheme.alphabet.symbols.encode("ascii", "replace"), np.uint8)
+    check = np.frombuffer(scheme.check_alphabet.symbols.encode("ascii", "replace"), np.uint8)
+    return np.concatenate([body[values[:, : width - c]], check[values[:, width - c :]]], axis=1)
+
+
 def check_lines(scheme: Scheme, data: bytes, *, keep_results: bool = False) -> LinesCheck:
     """Verify every non-blank line of ``data`` (UTF-8 text, one code a line).
 
@@ -154,36 +200,25 @@ def check_lines(scheme: Scheme, data: bytes, *, keep_results: bool = False) -> L
         )
     status = np.zeros(starts.size, dtype=np.int8)  # 0 slow path, 1 valid, 2 bad check, 3 blank
     status[lengths == 0] = 3
-    canonical: dict[int, Any] = {}
-    body_table = scheme.alphabet.lookup_table()
-    check_table = scheme.check_alphabet.lookup_table()
-    body_symbols = np.frombuffer(scheme.alphabet.symbols.encode("ascii", "replace"), np.uint8)
-    check_symbols = np.frombuffer(
-        scheme.check_alphabet.symbols.encode("ascii", "replace"), np.uint8
-    )
+    canonical: list[tuple[Any, Any]] = []
     c = scheme.check_length
     longest = scheme.max_body_length
-    for width in np.unique(lengths[lengths > c]).tolist():
-        if longest is not None and width - c > longest:
+    per_width = np.bincount(lengths)
+    for width in np.flatnonzero(per_width).tolist():
+        if width <= c or (longest is not None and width - c > longest):
             continue  # the one-text path says why, line by line
         rows_all = np.flatnonzero(lengths == width)
+        block = _regular_block(raw, starts[rows_all], width)
         for at in range(0, rows_all.size, _CHUNK):
             rows = rows_all[at : at + _CHUNK]
-            chars = raw[starts[rows, None] + np.arange(width)]
-            values = np.concatenate(
-                [body_table[chars[:, : width - c]], check_table[chars[:, width - c :]]], axis=1
-            )
-            clean = (values >= 0).all(axis=1)
-            fast = rows[clean]
-            ok = scheme.verify_bulk(values[clean].astype(np.int64))
+            if block is not None:
+                chars = block[at : at + _CHUNK]
+            else:
+                chars = raw[starts[rows, None] + np.arange(width)]
+            fast, values, ok = _verify_chunk(scheme, rows, chars)
             status[fast] = np.where(ok, 1, 2)
             if keep_results:
-                good = values[clean]
-                symbols = np.concatenate(
-                    [body_symbols[good[:, : width - c]], check_symbols[good[:, width - c :]]],
-                    axis=1,
-                )
-                canonical[width] = (fast, symbols)
+                canonical.append((fast, _canonical_symbols(scheme, values)))
     result = LinesCheck(results=[] if keep_results else None)
     result.valid = int(np.count_nonzero(status == 1))
     result.kinds["check"] = int(np.count_nonzero(status == 2))
@@ -212,16 +247,20 @@ def _in_order(
     starts: Any,
     ends: Any,
     status: Any,
-    canonical: dict[int, Any],
+    canonical: list[tuple[Any, Any]],
     slow_answers: dict[int, CodeCheck],
 ) -> list[CodeCheck]:
     """Answers in the file's line order, blank lines left out."""
-    texts: dict[int, str] = {}
-    for fast, matrix in canonical.values():
+    import numpy as np
+
+    first, last = starts.tolist(), ends.tolist()
+    texts: list[str] = [""] * len(first)
+    for fast, matrix in canonical:
         width = matrix.shape[1]
-        joined = matrix.tobytes()
-        for i, line in enumerate(fast.tolist()):
-            texts[line] = joined[i * width : (i + 1) * width].decode("ascii")
+        words = np.ascontiguousarray(matrix, dtype=np.uint8).view(f"S{width}").ravel().tolist()
+        for line, word in zip(fast.tolist(), words):
+            texts[line] = word.decode("ascii")
+    mismatch = "the check character does not match"
     out: list[CodeCheck] = []
     for line, kind in enumerate(status.tolist()):
         if kind == 3:
@@ -229,15 +268,11 @@ def _in_order(
         if kind == 0:
             out.append(slow_answers[line])
             continue
-        original = data[int(starts[line]) : int(ends[line])].decode("ascii")
+        original = data[first[line] : last[line]].decode("ascii")
         if kind == 1:
             out.append(CodeCheck(original, True, texts[line]))
         else:
-            out.append(
-                CodeCheck(
-                    original, False, texts[line], "the check character does not match", "check"
-                )
-            )
+            out.append(CodeCheck(original, False, texts[line], mismatch, "check"))
     return out
 
 
