@@ -12,6 +12,7 @@ from issuer.cli.app import app
 from issuer.cli.common import (
     DbOption,
     JsonOption,
+    close_with_command,
     console,
     err_console,
     print_json,
@@ -38,7 +39,9 @@ def _open_existing(db: str | None) -> Any:
 
     settings = load_settings(database=db)
     timeout = int(settings.section("register").get("busy_timeout_ms", 15000))
-    return open_existing(settings.database, actor=settings.actor, busy_timeout_ms=timeout)
+    register = open_existing(settings.database, actor=settings.actor, busy_timeout_ms=timeout)
+    close_with_command(register)
+    return register
 
 
 # --- issuer db ----------------------------------------------------------------------
@@ -84,6 +87,7 @@ def db_upgrade(db: DbOption = None, as_json: JsonOption = False) -> None:
 
     settings = load_settings(database=db)
     register = Register(engine=make_engine(database_url(settings.database)), actor=settings.actor)
+    close_with_command(register)
     before, after = upgrade_register(register)
     register.close()
     if as_json:

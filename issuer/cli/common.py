@@ -133,7 +133,21 @@ def open_register_from_options(db: str | None, actor: str | None) -> Any:
 
     settings = load_settings(database=db, actor=actor)
     timeout = int(settings.section("register").get("busy_timeout_ms", 15000))
-    return open_register(settings.database, actor=settings.actor, busy_timeout_ms=timeout)
+    register = open_register(settings.database, actor=settings.actor, busy_timeout_ms=timeout)
+    close_with_command(register)
+    return register
+
+
+def close_with_command(register: Any) -> None:
+    """Close the register's connections when the command ends: a PostgreSQL session
+    should end with a goodbye, not when the process or the garbage collector drops it."""
+    try:
+        from typer._click.globals import get_current_context
+    except ImportError:  # pragma: no cover - older Typer uses the click package
+        from click import get_current_context  # type: ignore[no-redef]
+    context = get_current_context(silent=True)
+    if context is not None:
+        context.call_on_close(register.close)
 
 
 class progress_bar:  # noqa: N801 - used as a context manager like a function

@@ -16,7 +16,7 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
-from sqlalchemy import func, inspect, select, text
+from sqlalchemy import func, select, text
 from sqlalchemy.engine import make_url
 from sqlalchemy.exc import DBAPIError
 from sqlalchemy.orm import Session
@@ -155,11 +155,17 @@ def roles_script(register: Register, *, clerk: str, admin: str) -> list[str]:
             "roles are a PostgreSQL feature; a SQLite register is guarded by its file's "
             "permissions (issuer creates it owner-only)"
         )
-    with register.engine.connect() as connection:
-        database, schema = connection.execute(
-            text("SELECT current_database(), current_schema()")
-        ).one()
-        tables = sorted(inspect(connection).get_table_names(schema=schema))
+    try:
+        with register.engine.connect() as connection:
+            database, schema = connection.execute(
+                text("SELECT current_database(), current_schema()")
+            ).one()
+            tables = sorted(connection.execute(
+                text("SELECT tablename FROM pg_catalog.pg_tables WHERE schemaname = :s"),
+                {"s": schema},
+            ).scalars())
+    except DBAPIError as exc:
+        raise RegisterError(f"cannot read the register: {str(exc.orig).splitlines()[0]}") from None
     if "log_entry" not in tables:
         raise RegisterError("this database holds no register yet: run 'issuer db upgrade' first")
     return roles_statements(
@@ -177,9 +183,11 @@ def apply_statements(register: Register, statements: list[str]) -> None:
                 if not statement.startswith("--"):
                     cursor.execute(statement)
             cursor.close()
-    except DBAPIError as exc:
-        message = str(exc.orig).splitlines()[0]
-        if getattr(exc.orig, "sqlstate", None) == "42501":
+    except (DBAPIError, register.engine.dialect.loaded_dbapi.Error) as exc:
+        # the driver's own cursor raises the driver's errors, unwrapped
+        original = exc.orig if isinstance(exc, DBAPIError) else exc
+        message = str(original).splitlines()[0]
+        if getattr(original, "sqlstate", None) == "42501":
             raise PermissionDenied(
                 f"the connected role may not set up roles ({message}); connect as the "
                 "register's owner or a superuser"

@@ -71,7 +71,7 @@ ADMIN_POLICY: dict[str, TableGrants] = {
         insert=True,
         update=(
             "status", "holder", "note", "void_reason", "voided_at", "voided_by",
-            "replaced_by_id", "print_count", "last_seen_at", "last_seen_where",
+            "replaces_id", "replaced_by_id", "print_count", "last_seen_at", "last_seen_where",
         ),
     ),
     "log_entry": TableGrants(insert=True),
