@@ -189,8 +189,8 @@ def check(
     actor: ActorOption = None,
 ) -> None:
     """Verify codes. With --scheme, by the check character alone; without it, against
-    the register (issued, voided, or a typo of which issued code). Exit 0 when every
-    code is valid, 1 otherwise."""
+    the register (in use, voided, never issued, or a typo of which issued code). Exit 0
+    when every code passes (valid; in use, for the register), 1 otherwise."""
     inputs = read_inputs(codes, file)
     if scheme is None:
         if alphabet is not None:

@@ -56,12 +56,16 @@ class LazyProgress:
             from rich.console import Console
             from rich.progress import BarColumn, Progress, TextColumn, TimeElapsedColumn
 
+            console = Console(stderr=True)
+            if not console.is_terminal:  # a log file or a pipe gets no bar
+                self.delay = float("inf")
+                return
             self._progress = Progress(
                 TextColumn("{task.description}"),
                 BarColumn(),
                 TextColumn("{task.percentage:>3.0f}%"),
                 TimeElapsedColumn(),
-                console=Console(stderr=True),
+                console=console,
                 transient=True,
             )
             self._progress.start()

@@ -338,3 +338,22 @@ def test_unreadable_files(tmp_path: Path) -> None:
     )
     one_line_error(run("calc", "--scheme", "luhn", "--file", str(tmp_path)))
     one_line_error(run("check", "-s", "luhn", "--file", str(tmp_path), "79927398713"))
+
+
+def test_checking_a_few_codes_never_loads_numpy() -> None:
+    import subprocess
+    import sys
+
+    code = (
+        "import sys\n"
+        "from issuer.cli.app import app\n"
+        "try:\n"
+        "    app(['check', '-s', 'damm', '5724'], prog_name='issuer')\n"
+        "except SystemExit as exit:\n"
+        "    assert exit.code == 0, exit.code\n"
+        "assert 'numpy' not in sys.modules\n"
+    )
+    done = subprocess.run([sys.executable, "-c", code], check=False, capture_output=True, text=True)
+    # source: H. M. Damm's worked example, body 572 -> check 4 (as widely reproduced)
+    assert done.returncode == 0, done.stderr
+    assert done.stdout.strip() == "5724  valid"
