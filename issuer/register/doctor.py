@@ -326,28 +326,36 @@ def check_guard(register: Register, session: Session) -> Finding:
 
 
 def run_doctor(register: Register, stage: Stage | None = None) -> DoctorReport:
-    """Every check, in one snapshot of the register."""
-    def say(what: str) -> None:
-        if stage is not None:
-            stage(what)
+    """Every check, in one snapshot of the register. A check the database cannot even
+    run (a damaged file, say) is itself a problem; the others still run."""
+    from sqlalchemy.exc import DBAPIError
 
     from issuer.register.admin import redacted_url
 
     findings: list[Finding] = []
-    revision = register.schema_revision()
+
+    def run(name: str, check: Callable[[], Finding], session: Session) -> None:
+        if stage is not None:
+            stage(name)
+        try:
+            findings.append(check())
+        except DBAPIError as exc:
+            session.rollback()
+            reason = str(exc.orig).splitlines()[0] if str(exc.orig) else type(exc.orig).__name__
+            findings.append(Finding(name, PROBLEM, f"the check could not run: {reason}"))
+
+    try:
+        revision = register.schema_revision()
+    except DBAPIError as exc:
+        revision = None
+        findings.append(Finding("schema", PROBLEM, f"cannot read the schema level: {str(exc.orig).splitlines()[0]}"))
     with snapshot(register) as session:
-        say("integrity check")
-        findings.append(check_integrity(register, session))
+        run("integrity", lambda: check_integrity(register, session), session)
         findings.append(check_schema(revision))
         if revision == SCHEMA_HEAD:
-            say("log chain")
-            findings.append(check_log(session))
-            say("counters")
-            findings.append(check_counters(session))
-            say("batches")
-            findings.append(check_batches(session))
-            say("log against codes")
-            findings.append(check_log_agrees(session))
-        say("access")
-        findings.append(check_guard(register, session))
+            run("log chain", lambda: check_log(session), session)
+            run("counters", lambda: check_counters(session), session)
+            run("batches", lambda: check_batches(session), session)
+            run("log and codes", lambda: check_log_agrees(session), session)
+        run("access", lambda: check_guard(register, session), session)
     return DoctorReport(redacted_url(register), register.backend, findings)
