@@ -1,0 +1,123 @@
+"""Many desks, one register: aggregate issuance rate with 1, 2, 4 and 8 desks issuing at
+once (separate processes, one durable transaction per code, all in the same in-order
+series), on SQLite and on PostgreSQL, each as a ratio against a raw single-connection
+insert loop (one durable transaction per row into one table with a unique index) on
+the same backend in the same run.
+
+Every code of an in-order series passes through one counter, so desks queue for it:
+the curve shows how much of the single-desk rate survives the queue, not a speed-up.
+
+Run from the repository root: .venv/bin/python tests/benchmarks/bench_desks.py [codes]
+(PostgreSQL on 127.0.0.1:5432 as user postgres, or ISSUER_TEST_PG; skipped if down).
+"""
+
+from __future__ import annotations
+
+import os
+import sqlite3
+import sys
+import tempfile
+import time
+from collections.abc import Callable
+from pathlib import Path
+
+sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
+
+from tests.register.desks import DeskRoom  # noqa: E402
+from tests.register.pg import database_url, server_problem, temporary_database  # noqa: E402
+
+DESKS = (1, 2, 4, 8)
+ROUNDS = int(os.environ.get("BENCH_ROUNDS", "3"))
+
+
+def raw_sqlite(folder: Path, count: int) -> float:
+    path = folder / "raw.sqlite"
+    connection = sqlite3.connect(path, isolation_level=None)
+    connection.execute("PRAGMA journal_mode=WAL")
+    connection.execute("PRAGMA synchronous=FULL")
+    connection.execute("CREATE TABLE IF NOT EXISTS issued (id INTEGER PRIMARY KEY, code TEXT NOT NULL)")
+    connection.execute("CREATE UNIQUE INDEX IF NOT EXISTS ix_code ON issued(code)")
+    start = time.perf_counter()
+    for n in range(count):
+        connection.execute("BEGIN IMMEDIATE")
+        connection.execute("INSERT INTO issued (code) VALUES (?)", (f"R{time.time_ns()}-{n}",))
+        connection.execute("COMMIT")
+    elapsed = time.perf_counter() - start
+    connection.close()
+    return count / elapsed
+
+
+def raw_postgres(database: str, count: int) -> float:
+    import psycopg
+
+    url = database_url(database).replace("postgresql+psycopg://", "postgresql://")
+    with psycopg.connect(url, autocommit=True) as connection:
+        connection.execute(
+            "CREATE TABLE IF NOT EXISTS raw_issued (id bigserial PRIMARY KEY, code text NOT NULL UNIQUE)"
+        )
+        start = time.perf_counter()
+        for n in range(count):
+            # autocommit: each INSERT is its own durable transaction (synchronous_commit on)
+            connection.execute("INSERT INTO raw_issued (code) VALUES (%s)", (f"R{time.time_ns()}-{n}",))
+        return count / (time.perf_counter() - start)
+
+
+def desks_rate(url: str, desks: int, count: int, key: str) -> float:
+    from issuer.register.series import SeriesSpec, add_series
+    from issuer.register.store import open_register
+
+    register = open_register(url, actor="bench")
+    prefix = "Q" + "".join(chr(ord("A") + int(d)) for d in key[-3:])
+    add_series(register, SeriesSpec(key=key, scheme="luhn", length=7, prefix=prefix))
+    register.close()
+    each = count // desks
+    room = DeskRoom([
+        {"mode": "issue", "db": url, "series": key, "count": each, "seed": n} for n in range(desks)
+    ])
+    try:
+        room.ready()
+        start = time.perf_counter()
+        room.go()
+        reports, exits = room.finish(3600)
+        elapsed = time.perf_counter() - start
+    finally:
+        room.close()
+    assert all(record["status"] == 0 for record in exits.values()), room.stderr[-2000:]
+    assert sum(len(r) for r in reports.values()) == each * desks
+    return each * desks / elapsed
+
+
+def curve(backend: str, url: str, raw: Callable[[int], float], count: int) -> None:
+    print(f"\n{backend}: {count} codes per measurement, best of {ROUNDS}; "
+          f"load average {os.getloadavg()[0]:.1f}")
+    print(f"{'desks':>6} {'codes/s':>9} {'raw codes/s':>12} {'ratio':>7} {'vs 1 desk':>10}")
+    single = None
+    serial = 0
+    for desks in DESKS:
+        best_rate, best_raw = 0.0, 0.0
+        for _ in range(ROUNDS):
+            serial += 1
+            best_rate = max(best_rate, desks_rate(url, desks, count, f"s{serial:03d}"))
+            best_raw = max(best_raw, raw(count))
+        single = single or best_rate
+        print(f"{desks:>6} {best_rate:>9.1f} {best_raw:>12.1f} {best_rate / best_raw:>7.2f} "
+              f"{best_rate / single:>10.2f}")
+
+
+def main() -> None:
+    count = int(sys.argv[1]) if len(sys.argv) > 1 else 240
+    with tempfile.TemporaryDirectory() as folder:
+        path = Path(folder)
+        curve("SQLite (WAL, synchronous=FULL)", str(path / "desks.sqlite"),
+              lambda n: raw_sqlite(path, n), count)  # fmt: skip
+    problem = server_problem()
+    if problem is not None:
+        print(f"\nPostgreSQL skipped: {problem}")
+        return
+    with temporary_database("bench") as database:
+        curve("PostgreSQL (synchronous_commit on)", database_url(database),
+              lambda n: raw_postgres(database, n), count)  # fmt: skip
+
+
+if __name__ == "__main__":
+    main()
