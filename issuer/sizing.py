@@ -34,8 +34,9 @@ from collections.abc import Callable
 from dataclasses import dataclass
 from typing import TYPE_CHECKING, Any
 
-from issuer.assess import DEFAULT_SEED, SymbolSpace, compares_with_computed
+from issuer.assess import DEFAULT_SEED
 from issuer.errors import InvalidLength, IssuerError
+from issuer.errorspace import SymbolSpace, compares_with_computed
 from issuer.neighbours import ERROR_WEIGHTS
 from issuer.schemes.base import Scheme
 

@@ -61,7 +61,8 @@ _BULK_CALC = 2_000
 def schemes(as_json: JsonOption = False) -> None:
     """List the check-character schemes, their alphabets and what each measurably
     detects (single substitutions, adjacent transpositions) on a short series."""
-    from issuer.assess import assess, compares_with_computed
+    from issuer.assess import assess
+    from issuer.errorspace import compares_with_computed
     from issuer.schemes import SCHEMES, get_scheme
 
     rows = []
@@ -285,7 +286,8 @@ def assess_command(
         typer.Option(
             "--samples",
             min=1,
-            help="Error instances drawn per class when the shape is too big for every code.",
+            help="Error instances drawn per class when the shape is too big for every code "
+            "(sizing draws its own 5,000 per length).",
         ),
     ] = 50_000,
     seed: Annotated[
