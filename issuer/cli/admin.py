@@ -271,7 +271,11 @@ def log_verify(
 
     anchors = [parse_anchor(value) for value in anchor or []]
     register = _open_existing(db)
-    report, checks = verify_log(register, anchors)
+    if as_json:
+        report, checks = verify_log(register, anchors)
+    else:
+        with err_console().status("Recomputing the log's hash chain"):
+            report, checks = verify_log(register, anchors)
     register.close()
     broken = report.problem is not None or any(not check.holds for check in checks)
     if as_json:

@@ -23,8 +23,8 @@ from pathlib import Path
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
 
-from tests.register.desks import DeskRoom  # noqa: E402
-from tests.register.pg import database_url, server_problem, temporary_database  # noqa: E402
+from tests.register.desks import DeskRoom
+from tests.register.pg import database_url, server_problem, temporary_database
 
 DESKS = (1, 2, 4, 8)
 ROUNDS = int(os.environ.get("BENCH_ROUNDS", "3"))

@@ -241,3 +241,20 @@ def test_doctor_on_a_missing_register_creates_nothing(cli: Any, tmp_path: Path) 
     assert result.exit_code == 2 and result.stderr.count("\n") == 1
     assert "no register at" in result.stderr
     assert not missing.exists()
+
+
+def test_a_register_made_under_a_careless_umask_is_owner_only(tmp_path: Path) -> None:
+    path = tmp_path / "shared-folder" / "register.sqlite"
+    old_umask = os.umask(0)
+    try:
+        register = open_register(str(path), actor="quartermaster")
+        add_series(register, SeriesSpec(key="tools", scheme="luhn", length=6, prefix="T"))
+        issue_codes(register, "tools", 3)
+        # while it is open, SQLite's WAL and shared-memory files sit beside it
+        companions = [Path(f"{path}-wal"), Path(f"{path}-shm")]
+        modes = {p.name: stat.S_IMODE(p.stat().st_mode) for p in [path, *companions] if p.exists()}
+        register.close()
+    finally:
+        os.umask(old_umask)
+    assert modes[path.name] == 0o600
+    assert len(modes) == 3 and set(modes.values()) == {0o600}
