@@ -265,3 +265,12 @@ def test_bad_lengths() -> None:
         assess(get_scheme("luhn"), 0)
     with pytest.raises(InvalidLength):
         assess(get_scheme("luhn"), 3, samples=0)
+
+
+@pytest.mark.parametrize("module", ["issuer.assess", "issuer.neighbours", "issuer.verify"])
+def test_docstring_examples(module: str) -> None:
+    import doctest
+    import importlib
+
+    outcome = doctest.testmod(importlib.import_module(module))
+    assert outcome.attempted > 0 and outcome.failed == 0
