@@ -210,8 +210,11 @@ _STATUS_STYLE = {"ok": "green", "warn": "yellow", "problem": "bold red", "skippe
 
 @app.command("doctor")
 def doctor(db: DbOption = None, as_json: JsonOption = False) -> None:
-    """Check the register is whole: integrity, schema level, log chain, counters against
-    codes, batches. Exit 1 when anything disagrees."""
+    """Check the register is whole; exit 1 when anything disagrees.
+
+    Integrity, schema level, log chain, counters against the codes held, batches whole
+    and logged, file permissions or the log's append-only trigger. --json for scripts.
+    """
     from issuer.register.doctor import run_doctor
 
     register = _open_existing(db)
@@ -265,8 +268,12 @@ def log_verify(
     db: DbOption = None,
     as_json: JsonOption = False,
 ) -> None:
-    """Recompute the log's hash chain; name the first entry altered, deleted or inserted
-    behind issuer's back. Exit 1 when the chain or an anchor does not hold."""
+    """Recompute the log's hash chain and name the first entry edited behind issuer's back.
+
+    Reports the first entry altered, deleted or inserted. Exit 1 when the chain or an
+    anchor does not hold. Someone able to rewrite the whole chain and its head can hide
+    an edit: check against an anchor written down elsewhere ('issuer log anchor').
+    """
     from issuer.register.admin import parse_anchor, verify_log
 
     anchors = [parse_anchor(value) for value in anchor or []]
@@ -314,8 +321,10 @@ def log_verify(
 
 @log_app.command("anchor")
 def log_anchor(db: DbOption = None, as_json: JsonOption = False) -> None:
-    """Print the log's newest entry as ID:HASH, to write down or publish elsewhere;
-    'issuer log verify --anchor ID:HASH' later shows whether the log up to it changed."""
+    """Print the log's newest entry as ID:HASH, to write down or publish elsewhere.
+
+    Later, 'issuer log verify --anchor ID:HASH' shows whether the log up to it changed.
+    """
     from issuer.register.admin import current_anchor
 
     register = _open_existing(db)
