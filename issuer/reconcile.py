@@ -43,9 +43,9 @@ from issuer.register.stocktake import (
     LastSeen,
     Sighting,
     VoidDetail,
+    held_codes,
     last_seen,
     record_sightings,
-    series_codes,
     void_details,
 )
 from issuer.register.store import Register
@@ -224,11 +224,11 @@ def read_scans(
 
 
 def _likely(
-    shape: CodeFormat, candidates: Sequence[Any], known: dict[str, str], scanned: Counter[str]
+    shape: CodeFormat, candidates: Sequence[Any], issued: set[str], scanned: Counter[str]
 ) -> tuple[Likely, ...]:
     found = []
     for candidate in candidates:
-        if known.get(candidate.code) == ISSUED:
+        if candidate.code in issued:
             found.append(
                 Likely(candidate.code, shape.display(candidate.code), candidate.error,
                        candidate.description, candidate.code not in scanned)
@@ -246,37 +246,38 @@ def reconcile(register: Register, key: str, table: Table) -> Reconciliation:
     with register.reading() as session:
         series = get_series(session, key)
         shape = code_format(series)
-        known = series_codes(session, series)
+        held = held_codes(session, series)
+        issued, voided = held.issued, held.voided
         read = read_codes(shape, table.codes)
         states = read.state.tolist()
         canonical = read.canonical
         statuses = [
             "malformed" if state == MALFORMED else "bad_check" if state == BAD_CHECK
-            else known.get(code, "not_issued")  # type: ignore[arg-type]
+            else ISSUED if code in issued else VOIDED if code in voided else "not_issued"
             for state, code in zip(states, canonical)
         ]  # fmt: skip
-        times: Counter[str] = Counter(code for code in canonical if code is not None)
+        times: Counter[str] = Counter(canonical)  # type: ignore[arg-type]
+        times.pop(None, None)  # type: ignore[call-overload]
         by_code = dict(zip(canonical, statuses))
         by_code.pop(None, None)
         status_of = cast(dict[str, str], by_code)
-        voided = [code for code, status in status_of.items() if status == VOIDED]
-        voids = void_details(session, voided)
-        missing = sorted(code for code, status in known.items() if status == ISSUED and code not in times)
+        voids = void_details(session, voided.intersection(times))
+        missing = sorted(issued.difference(times))
         seen_before = last_seen(session, series) if missing else {}
+    unknown = set(times).difference(issued, voided)  # bad check or never issued
+    first_line: dict[str, int] = {}
+    if unknown:
+        for number, scanned in zip(table.lines, canonical):
+            if scanned in unknown and scanned not in first_line:
+                first_line[scanned] = number
     likely: dict[str, tuple[Likely, ...]] = {}
-    for code, status in status_of.items():
-        if status in ("bad_check", "not_issued"):
-            likely[code] = _likely(shape, neighbours(shape, code), known, times)
+    for code in sorted(unknown, key=first_line.__getitem__):  # in file order
+        likely[code] = _likely(shape, neighbours(shape, code), issued, times)
     likely_by_line: dict[int, tuple[Likely, ...]] = {}
     for index in read.reasons:
         candidates = omission_insertion_candidates(shape, table.codes[index])
         if candidates:
-            likely_by_line[index] = _likely(shape, candidates, known, times)
-    first_line: dict[str, int] = {}
-    if likely:
-        for number, scanned in zip(table.lines, canonical):
-            if scanned in likely and scanned not in first_line:
-                first_line[scanned] = number
+            likely_by_line[index] = _likely(shape, candidates, issued, times)
     perhaps: dict[str, int] = {}
     for code, options in likely.items():
         if options and options[0].missing:

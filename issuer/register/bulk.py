@@ -2,7 +2,8 @@
 
 A million codes go through no ORM object and no per-row Python work: counters are
 mapped to base numbers a chunk at a time (the scattered permutation's FF1 rounds run
-across the whole chunk), check characters are computed column-wise by the scheme's
+across the whole chunk; a scattered batch is then put in number order so that the
+unique indexes are filled in order rather than at random), check characters are computed column-wise by the scheme's
 bulk method, the code texts are assembled as one byte matrix, and the rows reach the
 driver's ``executemany`` as an iterator of tuples inside the caller's transaction.
 Nothing holds the whole batch: each chunk is inserted, handed to an optional sink
@@ -291,21 +292,17 @@ def check_room(series: Series, count: int) -> None:
         )
 
 
-def allocate_chunks(session: Session, series: Series, count: int) -> Iterator[npt.NDArray[np.int64]]:
-    """The next ``count`` free base numbers of a locked series, a chunk at a time, in
-    issue order; the series' counters move as the chunks are taken.
-
-    Same numbers as :func:`issuer.register.issuing.allocate`.
-    """
+def _drawn(session: Session, series: Series, count: int) -> Iterator[npt.NDArray[np.int64]]:
+    """The next ``count`` free base numbers in counter order, a chunk at a time; the
+    series' counters move as the chunks are drawn."""
     import numpy as np
 
-    check_room(series, count)
     skip = imported_bases(session, series)
     scatter = permutation(series) if series.mode == SCATTERED else None
     counter, end, left = series.next_counter, capacity(series), count
     while left:
         stop = min(counter + min(left, CHUNK), end)
-        if stop <= counter:  # pragma: no cover - guarded by the capacity check above
+        if stop <= counter:  # pragma: no cover - guarded by the capacity check
             raise Exhausted(f"series {series.key} ran out of numbers")
         counters = np.arange(counter, stop, dtype=np.int64)
         if scatter is not None:
@@ -320,6 +317,29 @@ def allocate_chunks(session: Session, series: Series, count: int) -> Iterator[np
             left -= int(bases.size)
             series.code_count += int(bases.size)
             yield bases
+
+
+def allocate_chunks(session: Session, series: Series, count: int) -> Iterator[npt.NDArray[np.int64]]:
+    """The next ``count`` free base numbers of a locked series, a chunk at a time; the
+    series' counters move as they are drawn. The numbers are the ones
+    :func:`issuer.register.issuing.allocate` draws.
+
+    An in-order series yields them in counter order, which is number order. A
+    scattered series yields the whole batch in number order: every code of a batch is
+    issued at the same instant, and inserting a million scattered numbers in counter
+    (random) order would cost each unique index a random page per row — nearly twice
+    the time of the same rows in order. The batch's codes, log digest, result and CSV
+    all follow this order.
+    """
+    import numpy as np
+
+    check_room(series, count)
+    if series.mode != SCATTERED:
+        yield from _drawn(session, series, count)
+        return
+    drawn = np.sort(np.concatenate(list(_drawn(session, series, count))))  # 8 bytes a number
+    for at in range(0, drawn.size, CHUNK):
+        yield drawn[at: at + CHUNK]
 
 
 #: page cache per issued code for a bulk batch on SQLite, in KiB: enough to keep the

@@ -243,6 +243,8 @@ def issue_codes(
     go straight to the driver in chunks (:mod:`issuer.register.bulk`); with
     ``collect=False`` the result carries only the first and last code, and ``sink``
     (e.g. :class:`~issuer.register.bulk.CodesCsv`) receives every code as it is made.
+    A bulk batch of a scattered series lists its codes in number order (they are all
+    issued at one instant; see :func:`~issuer.register.bulk.allocate_chunks`).
     """
     if count < 1:
         raise InvalidFormat("the count must be at least 1")

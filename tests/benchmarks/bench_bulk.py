@@ -15,16 +15,21 @@
 Rounds alternate issuer and baseline so that both see the same machine load; the
 figure of each side is its best round.
 
-Run: .venv/bin/python tests/benchmarks/bench_bulk.py [N] [ROUNDS]   (default 1,000,000 and 2)
+Run: .venv/bin/python tests/benchmarks/bench_bulk.py [N] [ROUNDS] [issue,reconcile,export]
+(default 1,000,000, 2 rounds, all three)
 
 The codes are invented Quillmere tool tags (QTL...) and member cards (QM...).
 """
 
 from __future__ import annotations
 
+import csv
+import random
 import sqlite3
+import subprocess
 import sys
 import tempfile
+import textwrap
 import time
 from collections.abc import Callable
 from pathlib import Path
@@ -128,12 +133,174 @@ def bench_issue(folder: Path, count: int, rounds: int) -> dict[str, float]:
     return best
 
 
+# --- 3: reconcile ----------------------------------------------------------------------------
+
+
+def scan_file(folder: Path, count: int) -> tuple[Path, int]:
+    """A stocktake of the tools register: 99 % of the tags once, 0.1 % twice, 0.1 % with a
+    mistyped check digit, a few unreadable lines; codes as the scanner reads them."""
+    connection = sqlite3.connect(folder / "tools.sqlite")
+    codes = [row[0] for row in connection.execute("SELECT code FROM issued_code ORDER BY id")]
+    connection.close()
+    rng = random.Random(2026)
+    scans = codes[: count * 99 // 100]
+    scans += rng.sample(scans, count // 1000)  # duplicates
+    typos = rng.sample(codes[count * 99 // 100:], count // 1000)
+    scans += [code[:-1] + str((int(code[-1]) + 1) % 10) for code in typos]
+    scans += ["QTL-??", "QTL12345"] * (count // 20_000 + 1)
+    rng.shuffle(scans)
+    path = folder / "stocktake.txt"
+    path.write_text("\n".join(scans) + "\n")
+    return path, len(scans)
+
+
+def reconcile_round(folder: Path, path: Path) -> tuple[float, dict[str, int]]:
+    from issuer.reconcile import read_scans, reconcile
+
+    register = open_register(str(folder / "tools.sqlite"), actor="bench")
+    found: dict[str, int] = {}
+
+    def work() -> None:
+        found.update(reconcile(register, "tools", read_scans(path)).counts)
+
+    seconds = timed(work)
+    register.close()
+    return seconds, found
+
+
+def raw_reconcile_round(folder: Path, path: Path) -> tuple[float, int]:
+    """What someone would write by hand: scans into a temporary table, joined."""
+    connection = sqlite3.connect(folder / "tools.sqlite", isolation_level=None)
+    answers = 0
+
+    def work() -> None:
+        nonlocal answers
+        with path.open(encoding="utf-8") as stream:
+            lines = [(number, text.strip()) for number, text in enumerate(stream, start=1) if text.strip()]
+        connection.execute("CREATE TEMP TABLE scan (line INTEGER, code TEXT)")
+        connection.executemany("INSERT INTO scan VALUES (?, ?)", lines)
+        connection.execute("CREATE INDEX temp.ix_scan_code ON scan (code)")
+        found = connection.execute(
+            "SELECT s.line, s.code, i.status FROM scan s LEFT JOIN issued_code i ON i.code = s.code"
+        ).fetchall()
+        repeated = connection.execute("SELECT code, count(*) FROM scan GROUP BY code HAVING count(*) > 1").fetchall()
+        missing = connection.execute(
+            "SELECT code FROM issued_code i WHERE series_id = 1 AND status = 'issued' "
+            "AND NOT EXISTS (SELECT 1 FROM scan s WHERE s.code = i.code) ORDER BY code"
+        ).fetchall()
+        answers = len(found) + len(repeated) + len(missing)
+        connection.execute("DROP TABLE scan")
+
+    seconds = timed(work)
+    connection.close()
+    return seconds, answers
+
+
+def bench_reconcile(folder: Path, count: int, rounds: int) -> None:
+    path, scans = scan_file(folder, count)
+    ours, raw = [], []
+    counts: dict[str, int] = {}
+    for _ in range(rounds):
+        seconds, counts = reconcile_round(folder, path)
+        ours.append(seconds)
+        raw.append(raw_reconcile_round(folder, path)[0])
+    print(f"reconcile {scans:,} scans against {count:,} codes: issuer {min(ours):.2f} s, raw temp table + join "
+          f"{min(raw):.2f} s, ratio {min(ours) / min(raw):.2f} (target <= 2)")
+    print(f"  counts {counts}")
+
+
+# --- 4: export ---------------------------------------------------------------------------------
+
+
+def export_round(folder: Path, name: str) -> float:
+    from issuer.register.transfer import export_codes
+
+    register = open_register(str(folder / name), actor="bench")
+    target = folder / "export.csv"
+
+    def work() -> None:
+        with target.open("w", newline="", encoding="utf-8") as stream:
+            export_codes(register, "tools", stream, fmt="csv")
+
+    seconds = timed(work)
+    register.close()
+    return seconds
+
+
+def raw_export_round(folder: Path, name: str) -> float:
+    connection = sqlite3.connect(folder / name)
+    target = folder / "raw-export.csv"
+
+    def work() -> None:
+        with target.open("w", newline="", encoding="utf-8") as stream:
+            writer = csv.writer(stream)
+            writer.writerow(["code", "display", "status", "issued_at", "issued_by", "holder", "note", "voided_at",
+                             "voided_by", "void_reason", "replaces_id", "last_seen_at", "last_seen_where"])
+            writer.writerows(connection.execute(
+                "SELECT code, code, status, issued_at, issued_by, holder, note, voided_at, voided_by, "
+                "void_reason, replaces_id, last_seen_at, last_seen_where FROM issued_code "
+                "WHERE series_id = 1 ORDER BY id"))
+
+    seconds = timed(work)
+    connection.close()
+    return seconds
+
+
+# VmHWM, not getrusage: ru_maxrss carries the forking parent's peak across exec
+PEAK_SCRIPT = textwrap.dedent("""
+    import sys
+    from issuer.register.store import open_register
+    from issuer.register.transfer import export_codes
+    register = open_register(sys.argv[1], actor="bench")
+    with open(sys.argv[2], "w", newline="", encoding="utf-8") as stream:
+        written = export_codes(register, "tools", stream, fmt=sys.argv[3])
+    with open("/proc/self/status") as status:
+        peak = next(line.split()[1] for line in status if line.startswith("VmHWM:"))
+    print(written, peak)
+""")
+
+
+def export_peak_kib(database: Path, target: Path, fmt: str = "csv") -> tuple[int, int]:
+    done = subprocess.run([sys.executable, "-c", PEAK_SCRIPT, str(database), str(target), fmt],
+                          capture_output=True, text=True, check=True)
+    written, peak = done.stdout.split()
+    return int(written), int(peak)
+
+
+def bench_export(folder: Path, count: int, rounds: int) -> None:
+    ours, raw = [], []
+    for _ in range(rounds):
+        ours.append(export_round(folder, "tools.sqlite"))
+        raw.append(raw_export_round(folder, "tools.sqlite"))
+    same = (folder / "export.csv").stat().st_size
+    print(f"export {count:,} codes to CSV: issuer {min(ours):.2f} s, raw sqlite3 + csv {min(raw):.2f} s, "
+          f"ratio {min(ours) / min(raw):.2f} (target <= 2); {same / 1e6:.0f} MB written")
+    small = folder / "small.sqlite"
+    register = open_register(str(fresh(folder, "small.sqlite")), actor="bench")
+    add_series(register, TOOLS)
+    issue_codes(register, "tools", count // 10, collect=False)
+    register.close()
+    for fmt in ("csv", "jsonl"):
+        few, few_peak = export_peak_kib(small, folder / "peak.out", fmt)
+        many, many_peak = export_peak_kib(folder / "tools.sqlite", folder / "peak.out", fmt)
+        print(f"export peak RSS ({fmt}): {few:,} codes {few_peak / 1024:.0f} MiB, {many:,} codes "
+              f"{many_peak / 1024:.0f} MiB (ratio {many_peak / few_peak:.2f}; flat is about 1)")
+
+
 def main() -> None:
     count = int(sys.argv[1]) if len(sys.argv) > 1 else 1_000_000
     rounds = int(sys.argv[2]) if len(sys.argv) > 2 else 2
+    only = set(sys.argv[3].split(",")) if len(sys.argv) > 3 else {"issue", "reconcile", "export"}
     with tempfile.TemporaryDirectory(prefix="issuer-bench-") as name:
         folder = Path(name)
-        bench_issue(folder, count, rounds)
+        if "issue" in only:
+            bench_issue(folder, count, rounds)
+        else:
+            issue_round(folder, TOOLS, count)
+        if "reconcile" in only:
+            bench_reconcile(folder, count, rounds)
+        if "export" in only:
+            bench_export(folder, count, rounds)
 
 
 if __name__ == "__main__":
