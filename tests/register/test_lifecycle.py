@@ -194,7 +194,10 @@ def test_scattered_series_spread_numbers_without_collisions(register: Any) -> No
     result = issue_codes(register, "cards", 500)
     bases = [info.base for info in result.codes]
     assert len(set(bases)) == 500
-    assert bases != sorted(bases)  # not handed out in order
+    ordered = sorted(bases)
+    # not a run of neighbours: scattered over the range
+    assert ordered[-1] - ordered[0] > 1000 * len(bases)
+    assert max(b - a for a, b in zip(ordered, ordered[1:])) > 1000
     assert all(1 <= base <= 99_999_999 for base in bases)
     assert result.protected is True
     with register.reading() as session:
