@@ -26,6 +26,9 @@ if TYPE_CHECKING:
 #: what a text is, read under a shape
 MALFORMED, BAD_CHECK, VALID = 0, 1, 2
 
+#: rows checked per numpy pass: bounds the temporary matrices (a row costs ~100 bytes)
+BLOCK_ROWS = 1 << 16
+
 _DROP_SEPARATORS = str.maketrans("", "", "".join(SEPARATORS))
 
 
@@ -62,6 +65,40 @@ def _rows_as_text(matrix: npt.NDArray[np.uint8]) -> list[str]:
     return lines.tobytes().decode("ascii").split("\n")[:-1]
 
 
+def _read_block(
+    shape: CodeFormat, raw: npt.NDArray[np.uint8]
+) -> tuple[npt.NDArray[np.bool_], npt.NDArray[np.bool_], npt.NDArray[np.uint8]]:
+    """For equal-width ASCII texts: which fit the shape, which of those pass the check,
+    and the fitting ones' canonical bytes."""
+    import numpy as np
+
+    scheme = shape.scheme
+    start, body_end = len(shape.prefix), len(shape.prefix) + shape.length
+    check_end = body_end + scheme.check_length
+    fits = np.ones(raw.shape[0], dtype=bool)
+    if shape.prefix:
+        prefix = np.frombuffer(shape.prefix.encode("ascii"), dtype=np.uint8)
+        fits &= (raw[:, :start] == prefix).all(axis=1)
+    if shape.suffix:
+        suffix = np.frombuffer(shape.suffix.encode("ascii"), dtype=np.uint8)
+        fits &= (raw[:, check_end:] == suffix).all(axis=1)
+    body = scheme.alphabet.lookup_table()[raw[:, start:body_end]]
+    check = scheme.check_alphabet.lookup_table()[raw[:, body_end:check_end]]
+    fits &= (body >= 0).all(axis=1) & (check >= 0).all(axis=1)
+    values = np.concatenate([body, check], axis=1)[fits].astype(np.int64)
+    if scheme.check_length:
+        valid = scheme.verify_bulk(values)
+    else:
+        valid = np.ones(values.shape[0], dtype=bool)
+    # the canonical text: prefix, folded symbols, suffix
+    out = raw[fits].copy()
+    body_symbols = np.frombuffer(scheme.alphabet.symbols.encode("ascii"), dtype=np.uint8)
+    check_symbols = np.frombuffer(scheme.check_alphabet.symbols.encode("ascii"), dtype=np.uint8)
+    out[:, start:body_end] = body_symbols[values[:, : shape.length]]
+    out[:, body_end:check_end] = check_symbols[values[:, shape.length:]]
+    return fits, valid, out
+
+
 def read_codes(shape: CodeFormat, texts: Sequence[str]) -> ReadCodes:
     """Read every text as a code of ``shape``; see :class:`ReadCodes`."""
     import numpy as np
@@ -78,28 +115,10 @@ def read_codes(shape: CodeFormat, texts: Sequence[str]) -> ReadCodes:
     if fast.size:
         chosen = [cleaned[i] for i in fast.tolist()] if fast.size < count else cleaned
         raw = np.frombuffer("".join(chosen).encode("ascii"), dtype=np.uint8).reshape(-1, width)
-        start, body_end = len(shape.prefix), len(shape.prefix) + shape.length
-        check_end = body_end + scheme.check_length
-        fits = np.ones(raw.shape[0], dtype=bool)
-        if shape.prefix:
-            prefix = np.frombuffer(shape.prefix.encode("ascii"), dtype=np.uint8)
-            fits &= (raw[:, :start] == prefix).all(axis=1)
-        if shape.suffix:
-            suffix = np.frombuffer(shape.suffix.encode("ascii"), dtype=np.uint8)
-            fits &= (raw[:, check_end:] == suffix).all(axis=1)
-        body = scheme.alphabet.lookup_table()[raw[:, start:body_end]].astype(np.int64)
-        check = scheme.check_alphabet.lookup_table()[raw[:, body_end:check_end]].astype(np.int64)
-        fits &= (body >= 0).all(axis=1) & (check >= 0).all(axis=1)
-        values = np.concatenate([body, check], axis=1)[fits]
-        valid = (
-            scheme.verify_bulk(values) if scheme.check_length else np.ones(values.shape[0], dtype=bool)
-        )
-        # the canonical text: prefix, folded symbols, suffix
-        out = raw[fits].copy()
-        body_symbols = np.frombuffer(scheme.alphabet.symbols.encode("ascii"), dtype=np.uint8)
-        check_symbols = np.frombuffer(scheme.check_alphabet.symbols.encode("ascii"), dtype=np.uint8)
-        out[:, start:body_end] = body_symbols[values[:, : shape.length]]
-        out[:, body_end:check_end] = check_symbols[values[:, shape.length:]]
+        parts = [_read_block(shape, raw[at: at + BLOCK_ROWS]) for at in range(0, raw.shape[0], BLOCK_ROWS)]
+        fits = np.concatenate([part[0] for part in parts])
+        valid = np.concatenate([part[1] for part in parts])
+        out = np.concatenate([part[2] for part in parts])
         where = fast[fits]
         state[where] = np.where(valid, VALID, BAD_CHECK).astype(np.int8)
         if where.size == count:

@@ -32,7 +32,7 @@ from collections.abc import Callable, Iterator, Sequence
 from dataclasses import dataclass, field
 from datetime import UTC, datetime
 from pathlib import Path
-from typing import Any, cast
+from typing import Any
 
 from issuer.bulkread import BAD_CHECK, MALFORMED, read_codes
 from issuer.codes import CodeFormat
@@ -141,7 +141,8 @@ class Reconciliation:
         """Every scan an issued code, each once, and nothing missing."""
         return all(self.counts[key] == 0 for key in COUNT_KEYS if key != "issued")
 
-    def _detail(self, index: int, code: str | None, status: str) -> str:
+    def detail(self, index: int, code: str | None, status: str) -> str:
+        """What the report says about line ``index`` beside its status."""
         if status == "malformed":
             return self.reasons.get(index, "")
         if status == "voided" and code is not None:
@@ -156,28 +157,35 @@ class Reconciliation:
             return "a valid code this register never issued"
         return ""
 
-    def lines(self) -> Iterator[ScanLine]:
-        """Every scanned line, in file order."""
-        table, shape = self.table, self.shape
-        extras = list(table.columns.items())
-        for index, (number, text, code, status) in enumerate(
-            zip(table.lines, table.codes, self.canonical, self.statuses)
-        ):
-            if code is not None:
-                likely = self.likely.get(code, ())
-            else:
-                likely = self.likely_by_line.get(index, ())
-            yield ScanLine(
-                line=number,
-                scanned=text,
-                code=code,
-                display=shape.display(code) if code is not None else None,
-                status=status,
-                times=self.times[code] if code is not None else 1,
-                detail=self._detail(index, code, status),
-                likely=likely,
-                extra={header: values[index] for header, values in extras},
-            )
+    def line(self, index: int) -> ScanLine:
+        """The ``index``-th scanned line (counting from 0, blank lines left out)."""
+        table = self.table
+        code, status = self.canonical[index], self.statuses[index]
+        if code is not None:
+            likely = self.likely.get(code, ())
+        else:
+            likely = self.likely_by_line.get(index, ())
+        return ScanLine(
+            line=table.lines[index],
+            scanned=table.codes[index],
+            code=code,
+            display=self.shape.display(code) if code is not None else None,
+            status=status,
+            times=self.times[code] if code is not None else 1,
+            detail=self.detail(index, code, status),
+            likely=likely,
+            extra={header: values[index] for header, values in table.columns.items()},
+        )
+
+    def lines(self, *, skip_issued: bool = False) -> Iterator[ScanLine]:
+        """Every scanned line in file order (only those not simply issued, if asked)."""
+        if skip_issued:
+            for index, status in enumerate(self.statuses):
+                if status != ISSUED:
+                    yield self.line(index)
+            return
+        for index in range(len(self.statuses)):
+            yield self.line(index)
 
     def missing_codes(self) -> Iterator[MissingCode]:
         """The issued codes nobody scanned, in code order."""
@@ -241,6 +249,8 @@ def _likely(
 
 def reconcile(register: Register, key: str, table: Table) -> Reconciliation:
     """Reconcile the scans in ``table`` against series ``key``."""
+    import numpy as np
+
     from issuer.neighbours import neighbours, omission_insertion_candidates
 
     with register.reading() as session:
@@ -258,10 +268,8 @@ def reconcile(register: Register, key: str, table: Table) -> Reconciliation:
         ]  # fmt: skip
         times: Counter[str] = Counter(canonical)  # type: ignore[arg-type]
         times.pop(None, None)  # type: ignore[call-overload]
-        by_code = dict(zip(canonical, statuses))
-        by_code.pop(None, None)
-        status_of = cast(dict[str, str], by_code)
-        voids = void_details(session, voided.intersection(times))
+        voided_seen = voided.intersection(times)
+        voids = void_details(session, voided_seen)
         missing = sorted(issued.difference(times))
         seen_before = last_seen(session, series) if missing else {}
     unknown = set(times).difference(issued, voided)  # bad check or never issued
@@ -285,12 +293,12 @@ def reconcile(register: Register, key: str, table: Table) -> Reconciliation:
     for index, options in likely_by_line.items():
         if options and options[0].missing:
             perhaps.setdefault(options[0].code, table.lines[index])
-    distinct = Counter(status_of.values())
+    bad = {canonical[index] for index in np.flatnonzero(read.state == BAD_CHECK).tolist()}
     counts = {
-        "issued": distinct["issued"],
-        "voided": distinct["voided"],
-        "bad_check": distinct["bad_check"],
-        "not_issued": distinct["not_issued"],
+        "issued": len(times) - len(unknown) - len(voided_seen),
+        "voided": len(voided_seen),
+        "bad_check": len(bad),
+        "not_issued": len(unknown) - len(bad),
         "malformed": len(read.reasons),
         "duplicates": sum(1 for n in times.values() if n > 1),
         "missing": len(missing),

@@ -35,14 +35,24 @@ def extra_headers(recon: Reconciliation) -> list[str]:
 
 def report_rows(recon: Reconciliation) -> Iterator[list[Any]]:
     """The report's rows, header first."""
-    extras = list(recon.table.columns)
     yield [*REPORT_COLUMNS, *extra_headers(recon)]
-    for line in recon.lines():
-        first = line.likely[0] if line.likely else None
+    # straight from the columns: a million lines make no ScanLine objects
+    extras = list(recon.table.columns.values())
+    times = recon.times
+    table = recon.table
+    for index, (number, text, code, status) in enumerate(
+        zip(table.lines, table.codes, recon.canonical, recon.statuses)
+    ):
+        cells = [values[index] for values in extras]
+        if status == "issued":
+            yield [number, text, code, status, times[code], "", "", "", "", "", *cells]  # type: ignore[index]
+            continue
+        likely = recon.likely.get(code, ()) if code is not None else recon.likely_by_line.get(index, ())
+        first = likely[0] if likely else None
         yield [
-            line.line, line.scanned, line.code or "", line.status, line.times, line.detail,
-            first.code if first else "", first.description if first else "", "", "",
-            *(line.extra[name] for name in extras),
+            number, text, code or "", status, times[code] if code is not None else 1,
+            recon.detail(index, code, status), first.code if first else "",
+            first.description if first else "", "", "", *cells,
         ]  # fmt: skip
     blanks = [""] * len(extras)
     for missing in recon.missing_codes():
@@ -60,11 +70,8 @@ def write_report(recon: Reconciliation, stream: IO[str]) -> int:
     writer = csv.writer(stream)
     rows = report_rows(recon)
     writer.writerow(next(rows))
-    count = 0
-    for row in rows:
-        writer.writerow(row)
-        count += 1
-    return count
+    writer.writerows(rows)
+    return recon.scans + len(recon.missing)
 
 
 def _scan_fields(recon: Reconciliation, line: ScanLine) -> dict[str, Any]:
@@ -80,10 +87,29 @@ def as_json(recon: Reconciliation) -> dict[str, Any]:
     """Counts under ``counts``, and beside them the list of each class: present codes
     once each (at their first line), malformed lines each, duplicates with their lines
     and places, missing codes with when and where they were last seen."""
-    lists: dict[str, list[dict[str, Any]]] = {key: [] for key in
-                                             ("issued", "voided", "bad_check", "not_issued", "malformed")}
+    from issuer.register.bulk import display_texts
+
+    lists: dict[str, list[dict[str, Any]]] = {
+        key: [] for key in ("issued", "voided", "bad_check", "not_issued", "malformed")
+    }
+    # issued codes straight from the columns (there may be a million), the rest line by line
+    first_index: dict[str, int] = {}
+    for index, (code, status) in enumerate(zip(recon.canonical, recon.statuses)):
+        if status == "issued" and code not in first_index:
+            first_index[code] = index  # type: ignore[index]
+    codes = list(first_index)
+    times, lines = recon.times, recon.table.lines
+    when, where = recon.table.role("time"), recon.table.role("where")
+    for code, display in zip(codes, display_texts(recon.shape, codes)):
+        index = first_index[code]
+        entry: dict[str, Any] = {"code": code, "display": display, "line": lines[index], "times": times[code]}
+        if when is not None:
+            entry["scanned_at"] = when[index] or None
+        if where is not None:
+            entry["location"] = where[index] or None
+        lists["issued"].append(entry)
     listed: set[str] = set()
-    for line in recon.lines():
+    for line in recon.lines(skip_issued=True):
         if line.status == "malformed":
             lists["malformed"].append({
                 "line": line.line, "scanned": line.scanned, "reason": line.detail,
@@ -94,7 +120,7 @@ def as_json(recon: Reconciliation) -> dict[str, Any]:
         if line.code in listed:
             continue
         listed.add(line.code)
-        entry: dict[str, Any] = {
+        entry = {
             "code": line.code, "display": line.display, "line": line.line, "times": line.times,
             **_scan_fields(recon, line),
         }  # fmt: skip
@@ -102,7 +128,7 @@ def as_json(recon: Reconciliation) -> dict[str, Any]:
             void = recon.voids.get(line.code)
             entry["reason"] = void.reason if void else None
             entry["replacement"] = void.replacement if void else None
-        elif line.status in ("bad_check", "not_issued"):
+        else:
             entry["scanned"] = line.scanned
             entry["likely"] = [item.as_dict() for item in line.likely]
         lists[line.status].append(entry)

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from itertools import islice
 from pathlib import Path
 from typing import TYPE_CHECKING, Annotated, Any
 
@@ -120,7 +121,7 @@ def _render(recon: Reconciliation, out: Path | None, recorded: int | None) -> No
         style = styles.get(key, "red") if count else "dim"
         summary.add_row(f"[{style}]{label}[/{style}]", f"{count:,}", meaning)
     terminal.print(summary)
-    problems = [line for line in recon.lines() if line.status != "issued"]
+    problems = list(islice(recon.lines(skip_issued=True), SHOW_LINES + 1))
     if problems:
         table = Table(title="Scans to look at")
         for name in ("line", "scanned", "result", "detail", "probably meant"):
@@ -132,8 +133,9 @@ def _render(recon: Reconciliation, out: Path | None, recorded: int | None) -> No
                 f"{likely.display} ({likely.description})" if likely else "",
             )  # fmt: skip
         terminal.print(table)
-        if len(problems) > SHOW_LINES:
-            terminal.print(f"... and {len(problems) - SHOW_LINES:,} more lines")
+        more = len(recon.statuses) - recon.statuses.count("issued") - SHOW_LINES
+        if more > 0:
+            terminal.print(f"... and {more:,} more lines")
     _render_duplicates(terminal, recon)
     if recon.counts["missing"]:
         shown = [item for _, item in zip(range(SHOW_LINES), recon.missing_codes())]

@@ -133,8 +133,9 @@ def import_(
     if rejects is not None and not skip_bad:
         fail("--rejects lists skipped rows: give it with --skip-bad")
     register = open_register_from_options(db, actor)
-    table = read_table(file, column=column, roles=IMPORT_ROLES)
-    plan = plan_import(register, key, table)
+    with err_console().status("Reading and checking every row..."):
+        table = read_table(file, column=column, roles=IMPORT_ROLES)
+        plan = plan_import(register, key, table)
     if plan.rejected and not skip_bad:
         fail(plan.refusal())
     result = None

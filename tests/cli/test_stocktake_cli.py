@@ -145,3 +145,15 @@ def test_a_real_process(db_path: Path, tags: list[str], tmp_path: Path) -> None:
     assert done.returncode == 1, done.stderr
     data = json.loads(done.stdout)
     assert data["counts"]["duplicates"] == 1 and data["counts"]["missing"] == 6
+
+
+def test_an_overlong_line_is_one_clear_line(cli: Any, tags: list[str], tmp_path: Path,
+                                             monkeypatch: pytest.MonkeyPatch) -> None:
+    from issuer import scanfile
+
+    # a 2 GB line, scaled down: the limit and the block size lowered, the file small
+    monkeypatch.setattr(scanfile, "MAX_LINE_BYTES", 1_000)
+    monkeypatch.setattr(scanfile, "BLOCK_BYTES", 256)
+    path = tmp_path / "scan.txt"
+    path.write_bytes(tags[0].encode() + b"\n" + tags[1].encode() + b"\n" + b"QTL" * 2_000 + b"\n")
+    assert "line 3 is longer than 1,000 bytes" in one_error_line(cli("reconcile", "tools", str(path)))
