@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import re
+import threading
 from dataclasses import dataclass
 from functools import lru_cache
 from typing import TYPE_CHECKING
@@ -65,18 +66,35 @@ def code_format(series: Series) -> CodeFormat:
     )
 
 
+_permutations = threading.local()
+
+
 def permutation(series: Series) -> ScatterPermutation:
-    """The keyed permutation of a scattered series' range."""
+    """The keyed permutation of a scattered series' range.
+
+    Built once per thread and series (setting up FF1 costs a few AES chains, and a
+    permutation keeps scratch buffers, so threads never share one).
+    """
     from issuer.scatter import ScatterPermutation
 
     assert series.scatter_key is not None
-    return ScatterPermutation(
-        key=series.scatter_key,
-        radix=code_format(series).alphabet_size,
-        start=series.range_start,
-        end=series.range_end,
-        tweak=series.key.encode("utf-8"),
-    )
+    radix = code_format(series).alphabet_size
+    ident = (bytes(series.scatter_key), radix, series.range_start, series.range_end, series.key)
+    cache: dict[tuple[object, ...], ScatterPermutation] | None = getattr(_permutations, "cache", None)
+    if cache is None:
+        cache = _permutations.cache = {}
+    found = cache.get(ident)
+    if found is None:
+        if len(cache) >= 64:
+            cache.clear()
+        found = cache[ident] = ScatterPermutation(
+            key=ident[0],
+            radix=radix,
+            start=series.range_start,
+            end=series.range_end,
+            tweak=series.key.encode("utf-8"),
+        )
+    return found
 
 
 def capacity(series: Series) -> int:
