@@ -1,5 +1,5 @@
 """``python -m issuer`` runs the command line."""
 
-from issuer.cli.app import main
+from issuer.cli.main import main
 
 main()

@@ -6,6 +6,7 @@ from typing import Annotated
 
 import typer
 
+from issuer.cli import _launch
 from issuer.cli.common import IssuerGroup
 
 app = typer.Typer(
@@ -42,13 +43,31 @@ def root(
     """Run registers of identifier series. A check character catches mistakes, not fraud."""
 
 
-def _register_commands() -> None:
-    # each module adds its commands to ``app``; imports here stay light
-    from issuer.cli import admin, demo, desk, engine, issuing, labels, logcmd, series  # noqa: F401
-    from issuer.cli import printing, stocktake, transfer  # noqa: F401
+#: which module defines each top-level command; a process that runs one command
+#: imports only that module (start-up time matters at a counter)
+COMMAND_MODULES: dict[str, tuple[str, ...]] = {
+    "schemes": ("engine",), "calc": ("engine",), "check": ("engine",), "assess": ("engine",),
+    "series": ("series",),
+    "issue": ("issuing",), "void": ("issuing",), "replace": ("issuing",),
+    "restore": ("issuing",), "history": ("issuing",),
+    "log": ("logcmd", "admin"), "db": ("admin",), "backup": ("admin",), "doctor": ("admin",),
+    "desk": ("desk",), "demo": ("demo",),
+    "layouts": ("labels",), "labels": ("printing",), "reprint": ("printing",),
+    "reconcile": ("stocktake",), "import": ("transfer",), "export": ("transfer",),
+}  # fmt: skip
 
 
-_register_commands()
+def register_commands(only: str | None = None) -> None:
+    """Import the command modules (each adds its commands to ``app``): all of them, or
+    just the one that defines the command ``only``."""
+    import importlib
+
+    names = COMMAND_MODULES.get(only or "") or sorted({m for ms in COMMAND_MODULES.values() for m in ms})
+    for name in names:
+        importlib.import_module(f"issuer.cli.{name}")
+
+
+register_commands(_launch.only_command)
 
 
 def main() -> None:
