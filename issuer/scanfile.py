@@ -1,4 +1,5 @@
-"""Reading lists of codes: a plain list (one code per line) or a CSV export with a header.
+"""Reading lists of codes: a plain list (one code per line), a CSV export with a header, or
+JSON Lines (one object per line).
 
 Scanners, spreadsheets and older registers export codes in a few common shapes: one
 code per line; or a table with a header, separated by commas, semicolons (spreadsheets
@@ -199,10 +200,14 @@ def read_table(
     delimiter = _delimiter(first)
     first_key = header_key(first)
     plain = column is None and delimiter is None and first_key not in CODE_COLUMN_NAMES
-    if plain:
+    if first.lstrip().startswith(("{", "[")):
+        header, rows = _json_rows(name, first_block, line, blocks)
+        _fill(table, header, rows, column, roles or {}, chosen or {})
+    elif plain:
         _read_plain(table, first_block, line, blocks)
     else:
-        _read_csv(table, first_block, line, blocks, delimiter or ",", column, roles or {}, chosen or {})
+        header, rows = _csv_rows(name, first_block, line, blocks, delimiter or ",")
+        _fill(table, header, rows, column, roles or {}, chosen or {})
     if not table.codes:
         raise InvalidFormat(f"{name} holds no codes")
     return table
@@ -230,22 +235,78 @@ def _chain(first_block: list[str], blocks: Iterator[list[str]]) -> Iterator[str]
         yield from block
 
 
-def _read_csv(
-    table: Table,
-    first_block: list[str],
-    line: int,
-    blocks: Iterator[list[str]],
-    delimiter: str,
-    column: str | None,
-    roles: Mapping[str, Sequence[str]],
-    chosen: Mapping[str, str | None],
-) -> None:
-    name = table.source
+def _csv_rows(
+    name: str, first_block: list[str], line: int, blocks: Iterator[list[str]], delimiter: str
+) -> tuple[list[str], Iterator[tuple[int, list[str]]]]:
     reader = csv.reader(_chain(first_block, blocks), delimiter=delimiter)
     try:
         header = next(reader)
     except csv.Error as exc:
         raise InvalidFormat(f"{name}: line {line}: {exc}") from None
+    base = line - 1  # reader.line_num counts from the first line we handed it
+
+    def rows() -> Iterator[tuple[int, list[str]]]:
+        try:
+            for row in reader:
+                yield base + reader.line_num, row
+        except csv.Error as exc:
+            raise InvalidFormat(f"{name}: line {base + reader.line_num}: {exc}") from None
+
+    return header, rows()
+
+
+def _json_rows(
+    name: str, first_block: list[str], line: int, blocks: Iterator[list[str]]
+) -> tuple[list[str], Iterator[tuple[int, list[str]]]]:
+    """JSON Lines (one object per line), or a JSON array written one object per line
+    (as ``issuer export --format json`` writes it); the first object's keys are the
+    header."""
+    import json
+
+    def objects() -> Iterator[tuple[int, dict[str, object]]]:
+        for number, text in enumerate(_chain(first_block, blocks), start=line):
+            text = text.strip()
+            if text.startswith("["):
+                text = text[1:].lstrip()
+            if text.endswith("]"):
+                text = text[:-1].rstrip()
+            text = text.rstrip(",").rstrip()
+            if not text:
+                continue
+            try:
+                value = json.loads(text)
+            except ValueError:
+                value = None
+            if not isinstance(value, dict):
+                raise InvalidFormat(f"{name}: line {number} is not one JSON object (write one object per line)")
+            yield number, value
+
+    stream = objects()
+    first = next(stream, None)
+    if first is None:
+        raise InvalidFormat(f"{name} holds no codes")
+    header = [str(key) for key in first[1]]
+
+    def cells(value: dict[str, object]) -> list[str]:
+        return ["" if value.get(key) is None else str(value.get(key)) for key in header]
+
+    def rows() -> Iterator[tuple[int, list[str]]]:
+        yield first[0], cells(first[1])
+        for number, value in stream:
+            yield number, cells(value)
+
+    return header, rows()
+
+
+def _fill(
+    table: Table,
+    header: list[str],
+    rows: Iterator[tuple[int, list[str]]],
+    column: str | None,
+    roles: Mapping[str, Sequence[str]],
+    chosen: Mapping[str, str | None],
+) -> None:
+    name = table.source
     keys = [header_key(cell) for cell in header]
     table.header = [cell.strip().strip("\ufeff").strip() for cell in header]
     shown = ", ".join(table.header)
@@ -276,17 +337,13 @@ def _read_csv(
     values: list[list[str]] = [[] for _ in others]
     codes, lines = table.codes, table.lines
     width = len(keys)
-    base = line - 1  # reader.line_num counts from the first line we handed it
-    try:
-        for row in reader:
-            if not row or not any(cell.strip() for cell in row):
-                continue
-            if len(row) < width:
-                row = row + [""] * (width - len(row))
-            codes.append(row[code_at].strip())
-            lines.append(base + reader.line_num)
-            for slot, index in zip(values, others):
-                slot.append(row[index].strip())
-    except csv.Error as exc:
-        raise InvalidFormat(f"{name}: line {base + reader.line_num}: {exc}") from None
+    for number, row in rows:
+        if not row or not any(cell.strip() for cell in row):
+            continue
+        if len(row) < width:
+            row = row + [""] * (width - len(row))
+        codes.append(row[code_at].strip())
+        lines.append(number)
+        for slot, index in zip(values, others):
+            slot.append(row[index].strip())
     table.columns = {table.header[index]: slot for slot, index in zip(values, others)}

@@ -103,9 +103,9 @@ def import_(
     file: Annotated[
         Path,
         typer.Argument(
-            help="A plain list (one code per line) or a CSV with a header: code, and optionally "
-            "issued_at, issued_by, holder, note, status, voided_at, voided_by, void_reason, "
-            "replaces, last_seen_at, last_seen_where (as 'issuer export' writes them).",
+            help="A plain list (one code per line), a CSV with a header, or JSON Lines: code, and "
+            "optionally issued_at, issued_by, holder, note, status, voided_at, voided_by, void_reason, "
+            "replaces, last_seen_at, last_seen_where (as 'issuer export' writes them, in any of its formats).",
             dir_okay=False,
         ),
     ],

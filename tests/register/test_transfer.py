@@ -267,3 +267,23 @@ def test_jsonl_and_json_exports_stream_every_row(register: Register) -> None:
     assert [json.loads(line)["code"] for line in lines[:2]] == [luhn_code("QTL", "0000001"), luhn_code("QTL", "0000002")]
     data: list[dict[str, Any]] = json.loads(export_text(register, "tools", "json"))
     assert len(data) == 2_500 and data[-1]["display"] == "QTL-" + luhn_code("", "0002500")[:4] + "-" + luhn_code("", "0002500")[4:]
+
+
+@pytest.mark.parametrize("fmt", ["jsonl", "json"])
+def test_json_exports_import_back_too(register: Register, tmp_path: Path, fmt: str) -> None:
+    populate(register)
+    for key in ("tools", "members"):
+        path = tmp_path / f"{key}.{fmt}"
+        path.write_text(export_text(register, key, fmt), encoding="utf-8")
+        target = open_register(str(tmp_path / f"{key}-{fmt}.sqlite"), actor="migration")
+        add_series(target, TOOLS if key == "tools" else MEMBERS)
+        import_codes(target, key, read_table(path, roles=IMPORT_ROLES))
+        assert export_text(target, key) == export_text(register, key)
+        target.close()
+
+
+def test_a_json_line_that_is_not_an_object_is_named(tmp_path: Path) -> None:
+    path = tmp_path / "codes.jsonl"
+    path.write_text('{"code": "QTL00000018"}\n["QTL00000026"]\n')
+    with pytest.raises(InvalidFormat, match="line 2 is not one JSON object"):
+        read_table(path, roles=IMPORT_ROLES)
