@@ -369,8 +369,12 @@ def _roomy_cache(session: Session, count: int) -> int | None:
 
 
 def _restore_cache(session: Session, previous: int | None) -> None:
-    if previous is not None:
+    if previous is None:
+        return
+    try:
         session.connection().exec_driver_sql(f"PRAGMA cache_size = {previous}")
+    except DBAPIError:  # pragma: no cover - the batch failed already; its error is the one to see
+        pass
 
 
 @dataclass
@@ -403,27 +407,29 @@ def store_bulk(
     previous_cache = _roomy_cache(session, count)
     issued_at = bind_value(session, IssuedCode.__table__.c.issued_at, at)  # type: ignore[arg-type]
     outcome = BulkOutcome()
-    for bases_array in allocate_chunks(session, series, count):
-        codes = code_texts(shape, bases_array)
-        bases = bases_array.tolist()
-        rows = zip(
-            repeat(series.id), codes, bases, repeat(ISSUED), repeat(batch.id), repeat(holder),
-            repeat(note), repeat(issued_at), repeat(actor), repeat(None), repeat(0),
-        )  # fmt: skip
-        insert_many(session, "issued_code", ISSUE_COLUMNS, rows)
-        outcome.digest.update(("\n".join(codes) + "\n").encode("ascii"))
-        if outcome.first is None:
-            outcome.first = (codes[0], bases[0])
-        outcome.last = (codes[-1], bases[-1])
-        outcome.count += len(codes)
-        chunk = IssuedChunk(series.key, batch.id, shape, codes, bases, holder)
-        if collect:
-            outcome.collected.extend(zip(codes, chunk.displays(), bases))
-        if sink is not None:
-            sink.write(chunk)
-        if progress is not None:
-            progress(len(codes))
-    _restore_cache(session, previous_cache)
+    try:
+        for bases_array in allocate_chunks(session, series, count):
+            codes = code_texts(shape, bases_array)
+            bases = bases_array.tolist()
+            rows = zip(
+                repeat(series.id), codes, bases, repeat(ISSUED), repeat(batch.id), repeat(holder),
+                repeat(note), repeat(issued_at), repeat(actor), repeat(None), repeat(0),
+            )  # fmt: skip
+            insert_many(session, "issued_code", ISSUE_COLUMNS, rows)
+            outcome.digest.update(("\n".join(codes) + "\n").encode("ascii"))
+            if outcome.first is None:
+                outcome.first = (codes[0], bases[0])
+            outcome.last = (codes[-1], bases[-1])
+            outcome.count += len(codes)
+            chunk = IssuedChunk(series.key, batch.id, shape, codes, bases, holder)
+            if collect:
+                outcome.collected.extend(zip(codes, chunk.displays(), bases))
+            if sink is not None:
+                sink.write(chunk)
+            if progress is not None:
+                progress(len(codes))
+    finally:
+        _restore_cache(session, previous_cache)
     return outcome
 
 
