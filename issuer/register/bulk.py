@@ -17,19 +17,20 @@ from __future__ import annotations
 
 import hashlib
 import os
-from collections.abc import Callable, Iterable, Iterator, Sequence
+from collections.abc import Callable, Iterator, Sequence
 from dataclasses import dataclass, field
 from datetime import datetime
 from itertools import repeat
 from pathlib import Path
 from typing import TYPE_CHECKING, Any, Protocol, Self
 
-from sqlalchemy import Column, select
+from sqlalchemy import select
 from sqlalchemy.exc import DBAPIError
 from sqlalchemy.orm import Session
 
 from issuer.codes import CodeFormat
 from issuer.errors import Exhausted, RegisterError
+from issuer.register.driver import bind_value, insert_many
 from issuer.register.models import ISSUED, SCATTERED, Batch, IssuedCode, Series
 from issuer.register.series import capacity, code_format, permutation
 
@@ -219,55 +220,6 @@ class CodesCsv:
 # --- the database side ---------------------------------------------------------------------
 
 
-def bind_value(session: Session, column: Column[Any], value: Any) -> Any:
-    """``value`` as the driver takes it for ``column`` (what the ORM would send)."""
-    dialect = session.get_bind().dialect
-    processor = column.type.dialect_impl(dialect).bind_processor(dialect)
-    return processor(value) if processor is not None else value
-
-
-def execute_many(session: Session, sql: str, rows: Iterable[Sequence[Any]]) -> None:
-    """Run ``sql`` once per tuple of ``rows`` through the driver's ``executemany``, in
-    the session's transaction. Write ``?`` for each parameter (it becomes the driver's
-    own marker); values must already be in the driver's form (:func:`bind_value`)."""
-    connection = session.connection()
-    dialect = connection.dialect
-    if dialect.paramstyle != "qmark":
-        sql = sql.replace("?", "%s")
-    cursor = connection.connection.cursor()
-    try:
-        cursor.executemany(sql, rows)  # type: ignore[arg-type]  # both drivers take any iterable
-    except dialect.loaded_dbapi.Error as exc:
-        # the same wrapped error the ORM would raise, so retries and callers see one kind
-        raise DBAPIError.instance(sql, None, exc, dialect.loaded_dbapi.Error) from None
-    finally:
-        cursor.close()
-
-
-def insert_many(session: Session, table: str, columns: Sequence[str], rows: Iterable[Sequence[Any]]) -> None:
-    """``INSERT`` every tuple of ``rows`` into ``table`` (see :func:`execute_many`)."""
-    markers = ", ".join("?" * len(columns))
-    execute_many(session, f"INSERT INTO {table} ({', '.join(columns)}) VALUES ({markers})", rows)
-
-
-def driver_rows(session: Session, sql: str, params: Sequence[Any] = ()) -> list[tuple[Any, ...]]:
-    """Rows of a query as the driver returns them (no type processing), in the
-    session's transaction. Write ``?`` for each parameter; it becomes the driver's own
-    marker."""
-    connection = session.connection()
-    dialect = connection.dialect
-    if dialect.paramstyle != "qmark":
-        sql = sql.replace("?", "%s")
-    cursor = connection.connection.cursor()
-    try:
-        cursor.execute(sql, tuple(params))
-        return list(cursor.fetchall())
-    except dialect.loaded_dbapi.Error as exc:
-        raise DBAPIError.instance(sql, None, exc, dialect.loaded_dbapi.Error) from None
-    finally:
-        cursor.close()
-
-
 def imported_bases(session: Session, series: Series) -> npt.NDArray[np.int64]:
     """The sorted base numbers a series holds through import (the allocator skips them)."""
     import numpy as np
@@ -440,13 +392,9 @@ __all__ = [
     "CodesCsv",
     "IssuedChunk",
     "allocate_chunks",
-    "bind_value",
     "check_room",
     "code_texts",
     "display_texts",
-    "driver_rows",
-    "execute_many",
     "imported_bases",
-    "insert_many",
     "store_bulk",
 ]

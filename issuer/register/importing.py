@@ -26,7 +26,7 @@ from sqlalchemy.orm import Session
 
 from issuer.bulkread import BAD_CHECK, MALFORMED, read_codes
 from issuer.errors import Conflict, InvalidFormat
-from issuer.register.bulk import bind_value, execute_many, insert_many
+from issuer.register.driver import bind_value, execute_many, insert_many
 from issuer.register.log import NewEntry, append_entries
 from issuer.register.models import ISSUED, VOIDED, Batch, IssuedCode
 from issuer.register.series import all_series, code_format, get_series

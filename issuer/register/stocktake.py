@@ -18,7 +18,7 @@ from typing import Any
 from sqlalchemy import select
 from sqlalchemy.orm import Session, aliased
 
-from issuer.register.bulk import bind_value, driver_rows, execute_many
+from issuer.register.driver import bind_value, driver_rows, execute_many
 from issuer.register.log import NewEntry, append_entries, timestamp_text
 from issuer.register.models import ISSUED, VOIDED, IssuedCode, Series
 from issuer.register.series import get_series
