@@ -15,11 +15,11 @@ from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
-from sqlalchemy import insert, select
+from sqlalchemy import bindparam, insert, select, update
 from sqlalchemy.exc import IntegrityError
 from sqlalchemy.orm import Session
 
-from issuer.errors import Conflict, Exhausted, InvalidFormat
+from issuer.errors import Conflict, Exhausted, InvalidFormat, NotFound
 from issuer.register.bulk import CHUNK, CodeSink, IssuedChunk, check_room, store_bulk
 from issuer.register.log import NewEntry, append_entry
 from issuer.register.models import ISSUED, SCATTERED, Batch, IssuedCode, Series
@@ -67,7 +67,7 @@ class IssueResult:
         return self.codes[-1] if self.codes else self.tail
 
 
-def _bases_for(series: Series, counters: Sequence[int] | Any) -> list[int]:
+def _bases_for(series: Any, counters: Sequence[int] | Any) -> list[int]:
     """Base numbers for counters, in order."""
     if series.mode == SCATTERED:
         scatter = permutation(series)
@@ -80,7 +80,7 @@ def _bases_for(series: Series, counters: Sequence[int] | Any) -> list[int]:
     return [start + int(k) for k in counters]
 
 
-def _taken(session: Session, series: Series, bases: Sequence[int]) -> set[int]:
+def _taken(session: Session, series: Any, bases: Sequence[int]) -> set[int]:
     """Which of ``bases`` the series already holds (only imports can be among them)."""
     found: set[int] = set()
     for at in range(0, len(bases), 500):
@@ -97,6 +97,15 @@ def _taken(session: Session, series: Series, bases: Sequence[int]) -> set[int]:
 
 def allocate(session: Session, series: Series, count: int) -> list[int]:
     """Take the next ``count`` free base numbers of a locked series and move its counter."""
+    bases, counter = plan_allocation(session, series, count)
+    series.next_counter = counter
+    series.code_count += count
+    return bases
+
+
+def plan_allocation(session: Session, series: Any, count: int) -> tuple[list[int], int]:
+    """The next ``count`` free base numbers of a locked series (an ORM object or a row)
+    and where its counter goes next; changes nothing."""
     if count < 1:
         raise InvalidFormat("the count must be at least 1")
     left = capacity(series) - series.code_count
@@ -120,9 +129,7 @@ def allocate(session: Session, series: Series, count: int) -> list[int]:
             taken = _taken(session, series, candidates)
             bases.extend(base for base in candidates if base not in taken)
             counter = window.stop
-    series.next_counter = counter
-    series.code_count += count
-    return bases
+    return bases, counter
 
 
 def codes_digest(codes: Sequence[str]) -> str:
@@ -258,12 +265,11 @@ def issue_codes(
             replay = _replay(session, request_id, key, count, collect=collect, sink=sink)
             if replay is not None:
                 return replay
+        if count < BULK_FROM:
+            return _issue_few(session, register, key, count, holder, note, request_id, sink)
         series = get_series(session, key, lock=True)
         at = register.clock()
-        if count < BULK_FROM:
-            bases = allocate(session, series, count)
-        else:
-            check_room(series, count)  # before the batch row exists, like allocate()
+        check_room(series, count)  # before the batch row exists
         batch = Batch(
             series_id=series.id,
             kind="issue",
@@ -275,27 +281,16 @@ def issue_codes(
         session.add(batch)
         session.flush()
         shape = code_format(series)
-        if count < BULK_FROM:
-            codes = store_codes(
-                session, register, series, batch, bases, holder=holder, note=note, progress=progress
-            )
-            digest = codes_digest(codes)
-            infos = [IssuedInfo(code, shape.display(code), base, holder) for code, base in zip(codes, bases)]
-            if sink is not None:
-                sink.write(IssuedChunk(series.key, batch.id, shape, codes, list(bases), holder))
-            head, tail = infos[0], infos[-1]
-            first_code, last_code = codes[0], codes[-1]
-        else:
-            outcome = store_bulk(
-                session, series=series, batch=batch, count=count, holder=holder, note=note,
-                at=at, actor=register.actor, collect=collect, sink=sink, progress=progress,
-            )  # fmt: skip
-            assert outcome.first is not None and outcome.last is not None
-            digest = outcome.digest.hexdigest()
-            infos = [IssuedInfo(code, display, base, holder) for code, display, base in outcome.collected]
-            first_code, last_code = outcome.first[0], outcome.last[0]
-            head = IssuedInfo(first_code, shape.display(first_code), outcome.first[1], holder)
-            tail = IssuedInfo(last_code, shape.display(last_code), outcome.last[1], holder)
+        outcome = store_bulk(
+            session, series=series, batch=batch, count=count, holder=holder, note=note,
+            at=at, actor=register.actor, collect=collect, sink=sink, progress=progress,
+        )  # fmt: skip
+        assert outcome.first is not None and outcome.last is not None
+        digest = outcome.digest.hexdigest()
+        infos = [IssuedInfo(code, display, base, holder) for code, display, base in outcome.collected]
+        first_code, last_code = outcome.first[0], outcome.last[0]
+        head = IssuedInfo(first_code, shape.display(first_code), outcome.first[1], holder)
+        tail = IssuedInfo(last_code, shape.display(last_code), outcome.last[1], holder)
         detail: dict[str, Any] = {
             "count": count,
             "first": first_code,
@@ -335,3 +330,74 @@ def issue_codes(
         if replay is None:
             raise
         return replay
+
+
+_SERIES = Series.__table__
+_BATCH = Batch.__table__
+_CODE = IssuedCode.__table__
+# Core statements built once: a counter issues one code at a time, so the path is lean
+_LOCK_SERIES = select(_SERIES).where(_SERIES.c.key == bindparam("series_key")).with_for_update()
+_MOVE_COUNTER = (
+    update(_SERIES)
+    .where(_SERIES.c.id == bindparam("series_id"))
+    .values(next_counter=bindparam("counter"), code_count=_SERIES.c.code_count + bindparam("added"))
+)
+_INSERT_BATCH = _BATCH.insert()
+_INSERT_CODE = _CODE.insert()
+
+
+def _issue_few(
+    session: Session,
+    register: Register,
+    key: str,
+    count: int,
+    holder: str | None,
+    note: str | None,
+    request_id: str | None,
+    sink: CodeSink | None,
+) -> IssueResult:
+    """A small batch through Core statements on the session's connection: the same
+    rows and log entry as the bulk path, with as few round trips as it takes."""
+    connection = session.connection()
+    series = connection.execute(_LOCK_SERIES, {"series_key": key}).one_or_none()
+    if series is None:
+        raise NotFound(f"no series {key!r} in this register")
+    bases, counter = plan_allocation(session, series, count)
+    at = register.clock()
+    batch_id = connection.execute(
+        _INSERT_BATCH,
+        {"series_id": series.id, "kind": "issue", "request_id": request_id, "count": count,
+         "created_at": at, "actor": register.actor},
+    ).inserted_primary_key[0]  # fmt: skip
+    shape = code_format(series)
+    codes = [shape.code_for_base(base) for base in bases]
+    connection.execute(
+        _INSERT_CODE,
+        [
+            {"series_id": series.id, "code": code, "base": base, "status": ISSUED,
+             "batch_id": batch_id, "holder": holder, "note": note, "issued_at": at,
+             "issued_by": register.actor, "replaces_id": None, "print_count": 0}
+            for code, base in zip(codes, bases)
+        ],
+    )  # fmt: skip
+    connection.execute(_MOVE_COUNTER, {"series_id": series.id, "counter": counter, "added": count})
+    detail: dict[str, Any] = {
+        "count": count,
+        "first": codes[0],
+        "last": codes[-1],
+        "codes_sha256": codes_digest(codes),
+    }
+    if request_id is not None:
+        detail["request_id"] = request_id
+    append_entry(
+        session,
+        NewEntry("issue", series.id, codes[0] if count == 1 else None, batch_id, detail),
+        actor=register.actor,
+        at=at,
+    )
+    infos = [IssuedInfo(code, shape.display(code), base, holder) for code, base in zip(codes, bases)]
+    if sink is not None:
+        sink.write(IssuedChunk(series.key, batch_id, shape, codes, list(bases), holder))
+    protected = permutation(series).is_protected if series.mode == SCATTERED else None
+    return IssueResult(batch_id, series.key, count, infos, protected=protected,
+                       head=infos[0], tail=infos[-1])  # fmt: skip

@@ -57,6 +57,47 @@ def per_code_rates(folder: Path, per_round: int = 100) -> tuple[float, float]:
     return statistics.median(ours), statistics.median(theirs)
 
 
+def raw_same_work_rate(folder: Path, count: int = 300) -> float:
+    """The floor: raw sqlite3 writing what one logged issue writes (batch row, code row,
+    counter update, chained log entry, log head) in one durable transaction."""
+    import hashlib
+    import json
+
+    register = open_register(str(folder / "floor.sqlite"), actor="bench")
+    add_series(register, SeriesSpec(key="tools", scheme="damm", length=9, prefix="QTL"))
+    register.close()
+    raw = sqlite3.connect(folder / "floor.sqlite", isolation_level=None)
+    raw.execute("PRAGMA journal_mode=WAL")
+    raw.execute("PRAGMA synchronous=FULL")
+    at = "2026-01-01 00:00:00.000000"
+    start = time.perf_counter()
+    for _ in range(count):
+        raw.execute("BEGIN IMMEDIATE")
+        series_id, counter = raw.execute("SELECT id, next_counter FROM series WHERE key='tools'").fetchone()
+        batch = raw.execute(
+            "INSERT INTO batch (series_id, kind, count, created_at, actor) VALUES (?, 'issue', 1, ?, 'b')",
+            (series_id, at),
+        ).lastrowid
+        code = f"QTL{counter + 1:010d}"
+        raw.execute(
+            "INSERT INTO issued_code (series_id, code, base, status, batch_id, issued_at, issued_by, "
+            "print_count) VALUES (?, ?, ?, 'issued', ?, ?, 'b', 0)",
+            (series_id, code, counter + 1, batch, at),
+        )
+        raw.execute("UPDATE series SET next_counter=?, code_count=code_count+1 WHERE id=?",
+                    (counter + 1, series_id))
+        last_id, last_hash = raw.execute("SELECT last_id, last_hash FROM log_head WHERE id=1").fetchone()
+        digest = hashlib.sha256(json.dumps([last_id, last_hash, code]).encode()).hexdigest()
+        raw.execute(
+            "INSERT INTO log_entry (id, at, actor, action, series_id, code, batch_id, detail, "
+            "prev_hash, hash) VALUES (?, ?, 'b', 'issue', ?, ?, ?, '{}', ?, ?)",
+            (last_id + 1, at, series_id, code, batch, last_hash, digest),
+        )
+        raw.execute("UPDATE log_head SET last_id=?, last_hash=? WHERE id=1", (last_id + 1, digest))
+        raw.execute("COMMIT")
+    return count / (time.perf_counter() - start)
+
+
 def scattered_fill_ratio(folder: Path, size: int = 200_000, sample: int = 200) -> tuple[float, float]:
     register = open_register(str(folder / "scatter.sqlite"), actor="bench")
     add_series(register, SeriesSpec(key="empty", scheme="luhn", length=6, prefix="E", start=0,
@@ -142,6 +183,9 @@ def main() -> None:
         ours, raw = per_code_rates(folder)
         print(f"one durable code per transaction: issuer {ours:,.0f}/s, raw sqlite3 {raw:,.0f}/s, "
               f"ratio {ours / raw:.2f} (target >= 0.5)")
+        floor = raw_same_work_rate(folder)
+        print(f"  floor: raw sqlite3 writing the same rows as a logged issue {floor:,.0f}/s, "
+              f"{floor / raw:.2f} of the single-insert rate; issuer reaches {ours / floor:.2f} of it")
         empty, full = scattered_fill_ratio(folder)
         print(f"scattered issue, per code: empty {empty * 1000:.2f} ms, 99% full {full * 1000:.2f} ms, "
               f"ratio {full / empty:.2f} (target <= 1.2)")
