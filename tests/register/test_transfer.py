@@ -287,3 +287,27 @@ def test_a_json_line_that_is_not_an_object_is_named(tmp_path: Path) -> None:
     path.write_text('{"code": "QTL00000018"}\n["QTL00000026"]\n')
     with pytest.raises(InvalidFormat, match="line 2 is not one JSON object"):
         read_table(path, roles=IMPORT_ROLES)
+
+
+def test_the_register_stays_consistent_after_imports_sightings_and_bulk(register_url: str, tmp_path: Path) -> None:  # noqa: F811
+    from tests.register.consistency import assert_consistent
+
+    register = open_register(register_url, actor="desk")
+    populate(register)
+    path = tmp_path / "cards.csv"
+    with register.reading() as session:
+        scatter = permutation(get_series(session, "members"))
+        start = get_series(session, "members").next_counter
+    bases = [scatter.base_for_counter(start + k) for k in (0, 3, 90)]
+    write_csv(path, ["code", "status", "void_reason"], [
+        [luhn_code("QM", f"{bases[0]:09d}"), "issued", ""],
+        [luhn_code("QM", f"{bases[1]:09d}"), "voided", "card cut up"],
+        [luhn_code("QM", f"{bases[2]:09d}"), "", ""],
+    ])
+    import_codes(register, "members", read_table(path, roles=IMPORT_ROLES))
+    issue_codes(register, "members", 150, collect=False)
+    issue_codes(register, "members", 2)
+    replace_code(register, luhn_code("QM", f"{bases[0]:09d}"), reason="faded")
+    register.close()
+    facts = assert_consistent(register_url)
+    assert facts.actions["import"] == 1
