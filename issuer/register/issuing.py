@@ -336,7 +336,12 @@ _SERIES = Series.__table__
 _BATCH = Batch.__table__
 _CODE = IssuedCode.__table__
 # Core statements built once: a counter issues one code at a time, so the path is lean
-_LOCK_SERIES = select(_SERIES).where(_SERIES.c.key == bindparam("series_key")).with_for_update()
+# FOR NO KEY UPDATE (key_share): a plain FOR UPDATE also blocks the key-share lock that a
+# log entry's foreign key to the series takes, and deadlocks against a void or replace
+# holding the log head (PostgreSQL); see series.get_series
+_LOCK_SERIES = (
+    select(_SERIES).where(_SERIES.c.key == bindparam("series_key")).with_for_update(key_share=True)
+)
 _MOVE_COUNTER = (
     update(_SERIES)
     .where(_SERIES.c.id == bindparam("series_id"))

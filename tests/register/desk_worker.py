@@ -4,7 +4,7 @@ Run as ``python desk_worker.py JOBS`` where JOBS is a JSON list of jobs ``{"mode
 "series", "count", "seed", ...}``. This process (the "room") imports issuer once, then
 forks one desk process per job, so that starting sixteen desks costs milliseconds, not
 sixteen interpreter start-ups. Each desk opens its own connection (nothing is shared
-across the fork), reports ``{"desk": i, "op": "ready", "pid": ...}``, waits until the
+across the fork), opens the register, reports ``{"desk": i, "op": "ready", "pid": ...}``, waits until the
 room reads a line on stdin, then works, writing one JSON line per act only *after* its
 transaction committed (one ``write`` per line, so a line is never torn by ``kill -9``).
 Before each act of the
@@ -36,14 +36,12 @@ def say(desk: int, record: dict[str, Any]) -> None:
     os.write(1, (json.dumps({"desk": desk, **record}) + "\n").encode())
 
 
-def work(desk: int, job: dict[str, Any]) -> None:
+def work(desk: int, job: dict[str, Any], register: Any) -> None:
     from issuer.errors import Conflict
     from issuer.register.issuing import issue_codes
     from issuer.register.lifecycle import replace_code, void_code
-    from issuer.register.store import open_register
 
     rng = random.Random(job.get("seed", desk))
-    register = open_register(job["db"], actor=job.get("actor", f"desk-{desk}"))
     key, mode = job["series"], job["mode"]
     if mode == "issue":
         for _ in range(job["count"]):
@@ -110,9 +108,14 @@ def _fork_desk(desk: int, job: dict[str, Any], start_read: int, start_write: int
     os.close(start_write)
     status = 0
     try:
+        from issuer.register.store import open_register
+
+        # the desk is open (connected, schema checked) before it says it is ready, so a
+        # test's clock starts when the work does
+        register = open_register(job["db"], actor=job.get("actor", f"desk-{desk}"))
         say(desk, {"op": "ready", "pid": os.getpid()})
         os.read(start_read, 1)  # wait for the room's signal
-        work(desk, job)
+        work(desk, job, register)
     except BaseException:  # noqa: BLE001 - a forked desk must never return into the room
         traceback.print_exc()
         sys.stderr.flush()

@@ -101,8 +101,10 @@ def kill_repeatedly(url: str, jobs: list[dict[str, object]], seed: int) -> dict[
             check_after_kill(url, committed, every=not LONG or kill % 10 == 9 or kill == len(jobs) - 1)
     finally:
         room.close()
-    # most kills must hit a desk in the middle of an act, or the test proves little
-    assert interrupted >= max(1, len(jobs) // 2), f"only {interrupted} of {len(jobs)} kills hit an act"
+    # kills must hit desks in the middle of acts, or the test proves little (in the long
+    # mode most of them must; a handful of kills is allowed more chance)
+    needed = len(jobs) // 2 if LONG else 1
+    assert interrupted >= needed, f"only {interrupted} of {len(jobs)} kills hit an act"
     return committed
 
 
