@@ -156,3 +156,55 @@ def test_db_upgrade_and_status_on_both_backends(register_url: str) -> None:  # n
     assert status["log_entries"] == 0 and status["head_id"] == 0
     expected = "postgresql" if register_url.startswith("postgresql") else "sqlite"
     assert status["backend"] == expected
+
+
+@pytest.mark.parametrize("act", ["issue", "bulk issue", "replace", "void"])
+def test_a_desk_holding_a_series_does_not_block_log_entries(
+    pg_url: str, monkeypatch: pytest.MonkeyPatch, act: str  # noqa: F811
+) -> None:
+    """A desk that holds a series' counter (or a code) must not block the key-share lock
+    another desk's log entry takes through its foreign key to the series: with a plain
+    FOR UPDATE, a void holding the log head and an issue holding the series deadlock.
+    Pause a desk just before it logs, and try that key-share lock from another session."""
+    import threading
+
+    from sqlalchemy import create_engine, text
+
+    from issuer.register import issuing, lifecycle
+
+    register = open_register(pg_url, actor="desk-1")
+    add_series(register, SeriesSpec(key="tools", scheme="luhn", length=6, prefix="T"))
+    code = issue_codes(register, "tools", 2).codes[0].code
+    paused, go_on = threading.Event(), threading.Event()
+    module = lifecycle if act in ("replace", "void") else issuing
+    real = module.append_entry
+
+    def pause_before_logging(*args: Any, **kwargs: Any) -> None:
+        paused.set()
+        go_on.wait(30)
+        real(*args, **kwargs)
+
+    monkeypatch.setattr(module, "append_entry", pause_before_logging)
+    work = {
+        "issue": lambda: issue_codes(register, "tools", 1),
+        "bulk issue": lambda: issue_codes(register, "tools", 500),
+        "replace": lambda: replace_code(register, code, reason="worn"),
+        "void": lambda: void_code(register, code, reason="lost"),
+    }[act]
+    desk = threading.Thread(target=work)
+    desk.start()
+    other = create_engine(database_url(pg_url))
+    try:
+        assert paused.wait(30), "the desk never reached its log entry"
+        with other.connect() as connection:
+            # NOWAIT: fails at once (lock not available) instead of waiting
+            connection.execute(text("SELECT 1 FROM series WHERE key = 'tools' FOR KEY SHARE NOWAIT"))
+            connection.execute(text("SELECT 1 FROM issued_code WHERE code = :c FOR KEY SHARE NOWAIT"), {"c": code})
+            connection.rollback()
+    finally:
+        go_on.set()
+        desk.join(30)
+        other.dispose()
+        register.close()
+    assert not desk.is_alive()
+    assert_consistent(pg_url)
