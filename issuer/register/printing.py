@@ -298,7 +298,7 @@ def record_prints(
             statement = (
                 select(IssuedCode.code, IssuedCode.id, IssuedCode.series_id, IssuedCode.status)
                 .where(IssuedCode.code.in_(chunk))
-                .with_for_update()
+                .with_for_update(key_share=True)
             )
             for code, row_id, series_id, status in session.execute(statement):
                 stored[code] = (row_id, series_id, status)

@@ -6,7 +6,7 @@ Backend quirks live here and nowhere else:
   foreign keys on, and every writing transaction opened with ``BEGIN IMMEDIATE`` — a
   deferred transaction that reads the counter and then writes fails at once under
   contention, whatever the busy timeout. New files are created owner-only (0600).
-* PostgreSQL (psycopg 3): writers lock the series row and the log head with
+* PostgreSQL (psycopg 3): writers lock the series row (FOR NO KEY UPDATE) and the log head with
   ``SELECT ... FOR UPDATE``; serialization failures and deadlocks are retried.
 
 The database is created and upgraded by Alembic (:mod:`issuer.register.migrate`);
