@@ -9,12 +9,13 @@ one kind of error whichever road a statement took.
 
 from __future__ import annotations
 
-from collections.abc import Iterable, Sequence
+from collections.abc import Iterable, Iterator, Sequence
 from typing import Any
 
 from sqlalchemy import Column
 from sqlalchemy.exc import DBAPIError
 from sqlalchemy.orm import Session
+from sqlalchemy.sql import Select
 
 
 def bind_value(session: Session, column: Column[Any], value: Any) -> Any:
@@ -66,4 +67,27 @@ def driver_rows(session: Session, sql: str, params: Sequence[Any] = ()) -> list[
         cursor.close()
 
 
-__all__ = ["bind_value", "driver_rows", "execute_many", "insert_many"]
+def stream_rows(session: Session, statement: Select[Any], size: int) -> Iterator[Sequence[Any]]:
+    """The rows of a Core ``select`` a batch of ``size`` at a time, as the driver returns
+    them: on SQLite straight from the cursor (which reads as it goes), elsewhere through
+    a server-side cursor. The statement's columns must need no result processing."""
+    connection = session.connection()
+    dialect = connection.dialect
+    if dialect.name != "sqlite":
+        result = connection.execution_options(yield_per=size).execute(statement)
+        yield from result.partitions()
+        return
+    compiled = statement.compile(dialect=dialect)
+    params = [compiled.params[name] for name in compiled.positiontup or ()]
+    cursor = connection.connection.cursor()
+    try:
+        cursor.execute(str(compiled), params)
+        while rows := cursor.fetchmany(size):
+            yield rows
+    except dialect.loaded_dbapi.Error as exc:
+        raise DBAPIError.instance(str(compiled), params, exc, dialect.loaded_dbapi.Error) from None
+    finally:
+        cursor.close()
+
+
+__all__ = ["bind_value", "driver_rows", "execute_many", "insert_many", "stream_rows"]

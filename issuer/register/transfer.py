@@ -20,6 +20,7 @@ from sqlalchemy import ColumnElement, Select, String, case, func, literal, selec
 from sqlalchemy.orm import Session, aliased
 
 from issuer.errors import InvalidFormat
+from issuer.register.driver import stream_rows
 from issuer.register.models import ISSUED, VOIDED, IssuedCode, Series
 from issuer.register.series import code_format, get_series
 from issuer.register.store import Register
@@ -173,11 +174,8 @@ def export_codes(
     written = 0
     with register.reading() as session:
         series = get_series(session, key)
-        connection = session.connection()
-        statement = export_statement(series, status, connection.dialect.name)
-        # Core rows through a server-side cursor: no ORM work per row
-        result = connection.execution_options(yield_per=FETCH_ROWS).execute(statement)
-        for part in result.partitions():
+        statement = export_statement(series, status, session.get_bind().dialect.name)
+        for part in stream_rows(session, statement, FETCH_ROWS):  # no ORM or Core work per row
             writer.rows(part)
             written += len(part)
             if progress is not None:
