@@ -47,15 +47,21 @@ def issue(
     as_json: JsonOption = False,
 ) -> None:
     """Issue the next code(s) of a series: whole batch or nothing."""
+    from contextlib import ExitStack
+
+    from issuer.register.bulk import CodesCsv
     from issuer.register.issuing import issue_codes
 
     register = open_register_from_options(db, actor)
-    with progress_bar(count, f"Issuing {count:,} codes") as advance:
+    # the table and --json list every code; a big batch's summary needs only first and last
+    collect = as_json or count <= LIST_UP_TO
+    with progress_bar(count, f"Issuing {count:,} codes") as advance, ExitStack() as stack:
+        # the CSV appears only once the batch has committed
+        sink = stack.enter_context(CodesCsv(out)) if out is not None else None
         result = issue_codes(
-            register, key, count, holder=holder, note=note, request_id=request_id, progress=advance
-        )
-    if out is not None:
-        _write_codes_csv(out, result)
+            register, key, count, holder=holder, note=note, request_id=request_id,
+            progress=advance, collect=collect, sink=sink,
+        )  # fmt: skip
     if as_json:
         print_json({
             "batch": result.batch,
@@ -64,29 +70,10 @@ def issue(
             "codes": [info.as_dict() for info in result.codes],
         })
         return
-    _render_issue(result, out)
+    _render_issue(result, out, holder is not None)
 
 
-def _write_codes_csv(path: Path, result: Any) -> None:
-    import csv
-    import os
-    import tempfile
-
-    directory = path.resolve().parent
-    handle, temporary = tempfile.mkstemp(dir=directory, prefix=".issuer-", suffix=".csv")
-    try:
-        with os.fdopen(handle, "w", newline="", encoding="utf-8") as stream:
-            writer = csv.writer(stream)
-            writer.writerow(["code", "display", "base", "series", "batch"])
-            for info in result.codes:
-                writer.writerow([info.code, info.display, info.base, result.series, result.batch])
-        os.replace(temporary, path)
-    except BaseException:
-        Path(temporary).unlink(missing_ok=True)
-        raise
-
-
-def _render_issue(result: Any, out: Path | None) -> None:
+def _render_issue(result: Any, out: Path | None, has_holder: bool) -> None:
     out_console = console()
     verb = "Already issued for this request id" if result.replayed else "Issued"
     if result.count <= LIST_UP_TO:
@@ -110,7 +97,7 @@ def _render_issue(result: Any, out: Path | None) -> None:
             "Note: this scattered series' range is below FF1's one-million minimum domain: "
             "the order is only shuffled, not protected."
         )
-    if any(info.holder for info in result.codes):
+    if has_holder:
         out_console.print(PERSONAL_DATA_CAUTION, style="dim")
 
 

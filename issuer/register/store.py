@@ -38,7 +38,7 @@ T = TypeVar("T")
 SCHEMA_HEAD = "0001"
 
 #: how often a writing transaction is tried when another desk holds the lock
-WRITE_ATTEMPTS = 8
+WRITE_ATTEMPTS = 20
 
 
 def utc_now() -> datetime:
@@ -163,7 +163,8 @@ class Register:
                             "the register stayed busy (another desk is writing); try again"
                         ) from None
                     raise
-                time.sleep(random.uniform(0.01, 0.05) * attempt)
+                # capped exponential back-off with jitter: desks that collided spread out
+                time.sleep(random.uniform(0.5, 1.0) * min(0.01 * 2**attempt, 0.5))
         raise AssertionError("unreachable")  # pragma: no cover
 
     def schema_revision(self) -> str | None:
