@@ -13,9 +13,10 @@ pays for it.
 from __future__ import annotations
 
 import unicodedata
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from types import MappingProxyType
-from typing import TYPE_CHECKING, Mapping, Sequence
+from typing import TYPE_CHECKING
 
 from issuer.errors import InvalidComponent, UnknownName
 

@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import json
 import sys
-from typing import Annotated, Any, NoReturn, Optional
+from typing import Annotated, Any, NoReturn
 
 import typer
 
@@ -27,7 +27,7 @@ JsonOption = Annotated[
     bool, typer.Option("--json", help="Print machine-readable JSON on stdout, and nothing else there.")
 ]
 DbOption = Annotated[
-    Optional[str],
+    str | None,
     typer.Option(
         "--db",
         help="Register database: a SQLite file path or an SQLAlchemy URL "
@@ -36,7 +36,7 @@ DbOption = Annotated[
     ),
 ]
 ActorOption = Annotated[
-    Optional[str],
+    str | None,
     typer.Option(
         "--actor",
         help="Who is acting, for the log (default: ISSUER_ACTOR, then your OS user name).",
@@ -59,7 +59,7 @@ class UserError(click_exceptions.ClickException):
 
     exit_code = 2
 
-    def show(self, file: Any = None) -> None:  # noqa: ARG002 - click's signature
+    def show(self, file: Any = None) -> None:
         typer.echo(f"issuer: {self.format_message()}", err=True)
 
 
@@ -74,7 +74,7 @@ class IssuerGroup(TyperGroup):
 
     def main(self, *args: Any, standalone_mode: bool = True, **kwargs: Any) -> Any:
         try:
-            result = super().main(*args, standalone_mode=False, **kwargs)
+            result = super().main(*args, standalone_mode=False, **kwargs)  # type: ignore[misc]
         except click_exceptions.NoArgsIsHelpError as exc:
             typer.echo(exc.ctx.get_help() if exc.ctx else str(exc))
             return _finish(standalone_mode, 0)
@@ -150,7 +150,7 @@ def close_with_command(register: Any) -> None:
         context.call_on_close(register.close)
 
 
-class progress_bar:  # noqa: N801 - used as a context manager like a function
+class progress_bar:
     """A Rich progress bar on stderr, shown only for work big enough to take a while.
 
     ``with progress_bar(total, "Issuing") as advance: advance(n)``

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import tempfile
 from pathlib import Path
-from typing import Annotated, Optional
+from typing import Annotated
 
 import typer
 
@@ -23,7 +23,7 @@ from issuer.cli.common import (
 def demo(
     *,
     db: Annotated[
-        Optional[str],
+        str | None,
         typer.Option("--db", help="Where to build the demo register (default: a new temporary folder). Must be empty or new."),
     ] = None,
 ) -> None:

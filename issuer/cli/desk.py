@@ -4,9 +4,8 @@ the interactive ``issuer desk``."""
 from __future__ import annotations
 
 from collections import Counter
-from typing import Any, Sequence
-
-import typer
+from collections.abc import Sequence
+from typing import Any
 
 from issuer.cli.app import app
 from issuer.cli.common import DbOption, console, open_register_from_options, print_json

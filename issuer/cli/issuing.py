@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 from pathlib import Path
-from typing import Annotated, Any, Optional
+from typing import Annotated, Any
 
 import typer
 
@@ -31,16 +31,16 @@ def issue(
     *,
     count: Annotated[int, typer.Option("--count", "-n", help="How many codes, all in one batch.", min=1)] = 1,
     holder: Annotated[
-        Optional[str],
+        str | None,
         typer.Option("--holder", help="Who holds the item or card. Personal data: store only what your policy allows."),
     ] = None,
-    note: Annotated[Optional[str], typer.Option("--note", help="A note kept with each code.")] = None,
+    note: Annotated[str | None, typer.Option("--note", help="A note kept with each code.")] = None,
     request_id: Annotated[
-        Optional[str],
+        str | None,
         typer.Option("--request-id", help="An id for this request: a retry with the same id returns the same codes."),
     ] = None,
     out: Annotated[
-        Optional[Path], typer.Option("--out", help="Also write the batch's codes to this CSV file.", dir_okay=False)
+        Path | None, typer.Option("--out", help="Also write the batch's codes to this CSV file.", dir_okay=False)
     ] = None,
     db: DbOption = None,
     actor: ActorOption = None,

@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 from datetime import UTC, datetime
-from typing import Annotated, Optional
+from typing import Annotated
 
 import typer
 
@@ -33,14 +33,14 @@ def parse_since(text: str | None) -> datetime | None:
 def show_log(
     ctx: typer.Context,
     *,
-    series: Annotated[Optional[str], typer.Option("--series", help="Only this series' entries.")] = None,
+    series: Annotated[str | None, typer.Option("--series", help="Only this series' entries.")] = None,
     by: Annotated[
-        Optional[str], typer.Option("--actor", help="Only entries by this person (as logged).")
+        str | None, typer.Option("--actor", help="Only entries by this person (as logged).")
     ] = None,
     since: Annotated[
-        Optional[str], typer.Option("--since", help="Only entries at or after this date/time (UTC), e.g. 2026-03-01.")
+        str | None, typer.Option("--since", help="Only entries at or after this date/time (UTC), e.g. 2026-03-01.")
     ] = None,
-    last: Annotated[Optional[int], typer.Option("--last", help="Only the newest N entries.", min=1)] = None,
+    last: Annotated[int | None, typer.Option("--last", help="Only the newest N entries.", min=1)] = None,
     db: DbOption = None,
     as_json: JsonOption = False,
 ) -> None:

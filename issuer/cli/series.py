@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from typing import Annotated, Optional
+from typing import Annotated
 
 import typer
 
@@ -39,16 +39,16 @@ def add(
     scheme: Annotated[str, typer.Option("--scheme", help="Check-character method (see 'issuer schemes').")],
     length: Annotated[int, typer.Option("--length", help="Body length, without the check character(s).", min=1)],
     alphabet: Annotated[
-        Optional[str], typer.Option("--alphabet", help="Body symbols: digits, letters, alnum, crockford32, hex or custom:SYMBOLS (default: the scheme's own).")
+        str | None, typer.Option("--alphabet", help="Body symbols: digits, letters, alnum, crockford32, hex or custom:SYMBOLS (default: the scheme's own).")
     ] = None,
     prefix: Annotated[str, typer.Option("--prefix", help="Fixed text before the body, e.g. QTL.")] = "",
     suffix: Annotated[str, typer.Option("--suffix", help="Fixed text after the check character(s).")] = "",
     mode: Annotated[
         str, typer.Option("--mode", help="sequential (in order) or scattered (keyed permutation, hard to guess).")
     ] = "sequential",
-    start: Annotated[Optional[int], typer.Option("--start", help="Lowest base number (default 1).", min=0)] = None,
-    end: Annotated[Optional[int], typer.Option("--end", help="Highest base number (default: the largest the length allows).", min=0)] = None,
-    group: Annotated[Optional[str], typer.Option("--group", help="How to group body+check for people, e.g. 4,4.")] = None,
+    start: Annotated[int | None, typer.Option("--start", help="Lowest base number (default 1).", min=0)] = None,
+    end: Annotated[int | None, typer.Option("--end", help="Highest base number (default: the largest the length allows).", min=0)] = None,
+    group: Annotated[str | None, typer.Option("--group", help="How to group body+check for people, e.g. 4,4.")] = None,
     sep: Annotated[str, typer.Option("--sep", help="Separator between prefix, groups and suffix.")] = "-",
     title: Annotated[str, typer.Option("--title", help="A title for people and labels.")] = "",
     db: DbOption = None,

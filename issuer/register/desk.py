@@ -202,4 +202,4 @@ def _answer(
     return answer
 
 
-__all__ = ["STATUSES", "DeskAnswer", "Suggestion", "check_codes", "InvalidLength"]
+__all__ = ["STATUSES", "DeskAnswer", "InvalidLength", "Suggestion", "check_codes"]

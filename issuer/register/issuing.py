@@ -13,9 +13,9 @@ from __future__ import annotations
 import hashlib
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
-from typing import Any
+from typing import Any, cast
 
-from sqlalchemy import bindparam, insert, select, update
+from sqlalchemy import Table, bindparam, insert, select, update
 from sqlalchemy.exc import IntegrityError
 from sqlalchemy.orm import Session
 
@@ -332,9 +332,9 @@ def issue_codes(
         return replay
 
 
-_SERIES = Series.__table__
-_BATCH = Batch.__table__
-_CODE = IssuedCode.__table__
+_SERIES = cast(Table, Series.__table__)
+_BATCH = cast(Table, Batch.__table__)
+_CODE = cast(Table, IssuedCode.__table__)
 # Core statements built once: a counter issues one code at a time, so the path is lean
 # FOR NO KEY UPDATE (key_share): a plain FOR UPDATE also blocks the key-share lock that a
 # log entry's foreign key to the series takes, and deadlocks against a void or replace
@@ -364,16 +364,17 @@ def _issue_few(
     """A small batch through Core statements on the session's connection: the same
     rows and log entry as the bulk path, with as few round trips as it takes."""
     connection = session.connection()
-    series = connection.execute(_LOCK_SERIES, {"series_key": key}).one_or_none()
-    if series is None:
+    found = connection.execute(_LOCK_SERIES, {"series_key": key}).one_or_none()
+    if found is None:
         raise NotFound(f"no series {key!r} in this register")
+    series = cast(Series, found)  # a row with the same fields, read without the ORM
     bases, counter = plan_allocation(session, series, count)
     at = register.clock()
     batch_id = connection.execute(
         _INSERT_BATCH,
         {"series_id": series.id, "kind": "issue", "request_id": request_id, "count": count,
          "created_at": at, "actor": register.actor},
-    ).inserted_primary_key[0]  # fmt: skip
+    ).inserted_primary_key[0]  # type: ignore[index]  # fmt: skip
     shape = code_format(series)
     codes = [shape.code_for_base(base) for base in bases]
     connection.execute(

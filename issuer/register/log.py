@@ -12,12 +12,12 @@ from __future__ import annotations
 
 import hashlib
 import json
-from collections.abc import Iterable, Iterator, Mapping
+from collections.abc import Generator, Iterable, Mapping
 from dataclasses import dataclass
 from datetime import datetime
-from typing import Any
+from typing import Any, cast
 
-from sqlalchemy import bindparam, select, update
+from sqlalchemy import Table, bindparam, select, update
 from sqlalchemy.orm import Session
 
 from issuer.register.models import LogEntry, LogHead
@@ -72,8 +72,8 @@ def detail_text(detail: Mapping[str, Any] | None) -> str:
     return json.dumps(dict(detail or {}), sort_keys=True, ensure_ascii=False, default=str)
 
 
-_HEAD = LogHead.__table__
-_ENTRY = LogEntry.__table__
+_HEAD = cast(Table, LogHead.__table__)
+_ENTRY = cast(Table, LogEntry.__table__)
 # Core statements built once: appending runs on every act, so it stays lean
 _LOCK_HEAD = select(_HEAD.c.last_id, _HEAD.c.last_hash).where(_HEAD.c.id == 1).with_for_update()
 _INSERT_ENTRY = _ENTRY.insert()
@@ -159,7 +159,7 @@ class ChainReport:
         return self.problem is None
 
 
-def _stream(session: Session) -> Iterator[LogEntry]:
+def _stream(session: Session) -> Generator[LogEntry, None, None]:
     statement = select(LogEntry).order_by(LogEntry.id).execution_options(yield_per=5000)
     result = session.scalars(statement)
     try:

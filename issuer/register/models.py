@@ -7,7 +7,7 @@ models describe it (a test checks that both agree). Times are stored in UTC.
 from __future__ import annotations
 
 from datetime import UTC, datetime
-from typing import Any, Optional
+from typing import Any
 
 from sqlalchemy import (
     BigInteger,
@@ -48,7 +48,7 @@ class UTCDateTime(TypeDecorator[datetime]):
     impl = DateTime(timezone=True)
     cache_ok = True
 
-    def process_bind_param(self, value: Optional[datetime], dialect: Dialect) -> Any:
+    def process_bind_param(self, value: datetime | None, dialect: Dialect) -> Any:
         if value is None:
             return None
         if value.tzinfo is None:
@@ -56,7 +56,7 @@ class UTCDateTime(TypeDecorator[datetime]):
         value = value.astimezone(UTC)
         return value.replace(tzinfo=None) if dialect.name == "sqlite" else value
 
-    def process_result_value(self, value: Any, dialect: Dialect) -> Optional[datetime]:
+    def process_result_value(self, value: Any, dialect: Dialect) -> datetime | None:
         if value is None:
             return None
         if value.tzinfo is None:
@@ -94,7 +94,7 @@ class Series(Base):
     #: codes brought in by import; while zero the allocator need not look for them
     imported_count: Mapped[int] = mapped_column(BigInteger, default=0)
     #: the AES key of a scattered series; never printed or exported
-    scatter_key: Mapped[Optional[bytes]] = mapped_column(LargeBinary, default=None)
+    scatter_key: Mapped[bytes | None] = mapped_column(LargeBinary, default=None)
     created_at: Mapped[datetime] = mapped_column(UTCDateTime())
     created_by: Mapped[str] = mapped_column(String(120))
 
@@ -107,7 +107,7 @@ class Batch(Base):
     id: Mapped[int] = mapped_column(Integer, primary_key=True)
     series_id: Mapped[int] = mapped_column(ForeignKey("series.id"), index=True)
     kind: Mapped[str] = mapped_column(String(16))  # issue | replace | import
-    request_id: Mapped[Optional[str]] = mapped_column(String(200), unique=True, default=None)
+    request_id: Mapped[str | None] = mapped_column(String(200), unique=True, default=None)
     count: Mapped[int] = mapped_column(Integer)
     created_at: Mapped[datetime] = mapped_column(UTCDateTime())
     actor: Mapped[str] = mapped_column(String(120))
@@ -127,20 +127,20 @@ class IssuedCode(Base):
     base: Mapped[int] = mapped_column(BigInteger)
     status: Mapped[str] = mapped_column(String(16), default=ISSUED)
     batch_id: Mapped[int] = mapped_column(ForeignKey("batch.id"), index=True)
-    holder: Mapped[Optional[str]] = mapped_column(String(200), default=None)
-    note: Mapped[Optional[str]] = mapped_column(Text, default=None)
+    holder: Mapped[str | None] = mapped_column(String(200), default=None)
+    note: Mapped[str | None] = mapped_column(Text, default=None)
     issued_at: Mapped[datetime] = mapped_column(UTCDateTime())
     issued_by: Mapped[str] = mapped_column(String(120))
-    void_reason: Mapped[Optional[str]] = mapped_column(Text, default=None)
-    voided_at: Mapped[Optional[datetime]] = mapped_column(UTCDateTime(), default=None)
-    voided_by: Mapped[Optional[str]] = mapped_column(String(120), default=None)
-    replaces_id: Mapped[Optional[int]] = mapped_column(ForeignKey("issued_code.id"), default=None)
-    replaced_by_id: Mapped[Optional[int]] = mapped_column(
+    void_reason: Mapped[str | None] = mapped_column(Text, default=None)
+    voided_at: Mapped[datetime | None] = mapped_column(UTCDateTime(), default=None)
+    voided_by: Mapped[str | None] = mapped_column(String(120), default=None)
+    replaces_id: Mapped[int | None] = mapped_column(ForeignKey("issued_code.id"), default=None)
+    replaced_by_id: Mapped[int | None] = mapped_column(
         ForeignKey("issued_code.id"), default=None
     )
     print_count: Mapped[int] = mapped_column(Integer, default=0)
-    last_seen_at: Mapped[Optional[datetime]] = mapped_column(UTCDateTime(), default=None)
-    last_seen_where: Mapped[Optional[str]] = mapped_column(String(200), default=None)
+    last_seen_at: Mapped[datetime | None] = mapped_column(UTCDateTime(), default=None)
+    last_seen_where: Mapped[str | None] = mapped_column(String(200), default=None)
 
 
 class LogEntry(Base):
@@ -154,9 +154,9 @@ class LogEntry(Base):
     at: Mapped[datetime] = mapped_column(UTCDateTime())
     actor: Mapped[str] = mapped_column(String(120))
     action: Mapped[str] = mapped_column(String(32))
-    series_id: Mapped[Optional[int]] = mapped_column(ForeignKey("series.id"), default=None)
-    code: Mapped[Optional[str]] = mapped_column(String(100), default=None)
-    batch_id: Mapped[Optional[int]] = mapped_column(ForeignKey("batch.id"), default=None)
+    series_id: Mapped[int | None] = mapped_column(ForeignKey("series.id"), default=None)
+    code: Mapped[str | None] = mapped_column(String(100), default=None)
+    batch_id: Mapped[int | None] = mapped_column(ForeignKey("batch.id"), default=None)
     #: JSON text with the act's particulars (reason, count, first/last code, ...)
     detail: Mapped[str] = mapped_column(Text, default="{}")
     prev_hash: Mapped[str] = mapped_column(String(64))

@@ -10,7 +10,13 @@ from sqlalchemy import func, select
 
 from issuer.errors import Conflict, Exhausted, InvalidCheck, InvalidFormat, NotFound
 from issuer.register.issuing import issue_codes
-from issuer.register.lifecycle import code_history, log_entries, replace_code, restore_code, void_code
+from issuer.register.lifecycle import (
+    code_history,
+    log_entries,
+    replace_code,
+    restore_code,
+    void_code,
+)
 from issuer.register.log import verify_chain
 from issuer.register.models import IssuedCode, Series
 from issuer.register.series import SeriesSpec, add_series, get_series, series_state
@@ -167,7 +173,7 @@ def test_restore_refuses_a_code_whose_replacement_is_in_use(register: Any) -> No
 
 
 def test_a_failed_batch_leaves_no_gap(register: Any, monkeypatch: pytest.MonkeyPatch) -> None:
-    import issuer.register.issuing as issuing
+    from issuer.register import issuing
 
     add_series(register, TOOLS)
     issue_codes(register, "tools", 2)
