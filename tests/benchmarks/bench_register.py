@@ -167,12 +167,12 @@ def startup_ratio(folder: Path, runs: int = 15) -> tuple[float, float]:
     ours_cmd = [sys.executable, "-m", "issuer", "check", code]
     base_cmd = [sys.executable, str(script), code, str(db)]
     for command in (ours_cmd, base_cmd):  # warm the file cache
-        subprocess.run(command, env=env, check=True, capture_output=True)
+        subprocess.run(command, env=env, check=True, capture_output=True, cwd=folder)
     ours, theirs = [], []
     for _ in range(runs):
         for command, sink in ((ours_cmd, ours), (base_cmd, theirs)):
             start = time.perf_counter()
-            subprocess.run(command, env=env, check=True, capture_output=True)
+            subprocess.run(command, env=env, check=True, capture_output=True, cwd=folder)
             sink.append(time.perf_counter() - start)
     return statistics.median(ours), statistics.median(theirs)
 

@@ -150,23 +150,24 @@ def test_bad_input_is_one_line_and_writes_nothing(cli: Any, db_path: Path, args:
     assert _count(db_path, LogEntry) == before
 
 
-def _run(*args: str, env: dict[str, str]) -> subprocess.CompletedProcess[str]:
+def _run(*args: str, env: dict[str, str], cwd: Path) -> subprocess.CompletedProcess[str]:
+    # run outside the checkout, so that the installed package answers, as for a user
     return subprocess.run([sys.executable, "-m", "issuer", *args], capture_output=True, text=True,
-                          env=env, timeout=120)
+                          env=env, timeout=120, cwd=cwd)
 
 
 def test_real_processes(tmp_path: Path) -> None:
     env = dict(os.environ, ISSUER_DB=str(tmp_path / "sub.sqlite"), ISSUER_ACTOR="desk-1", COLUMNS="120")
     assert _run("series", "add", "cards", "--scheme", "verhoeff", "--length", "8", "--mode",
-                "scattered", env=env).returncode == 0
-    issued = _run("issue", "cards", "--json", env=env)
+                "scattered", env=env, cwd=tmp_path).returncode == 0
+    issued = _run("issue", "cards", "--json", env=env, cwd=tmp_path)
     assert issued.returncode == 0, issued.stderr
     code = json.loads(issued.stdout)["codes"][0]["code"]
-    checked = _run("check", code, env=env)
+    checked = _run("check", code, env=env, cwd=tmp_path)
     assert checked.returncode == 0 and "in use" in checked.stdout
-    created = _run("series", "list", "--db", str(tmp_path / "new-folder" / "x.sqlite"), env=env)
+    created = _run("series", "list", "--db", str(tmp_path / "new-folder" / "x.sqlite"), env=env, cwd=tmp_path)
     assert created.returncode == 0  # a missing folder is created
     (tmp_path / "file-not-dir").write_text("")
-    blocked = _run("series", "list", "--db", str(tmp_path / "file-not-dir" / "x.sqlite"), env=env)
+    blocked = _run("series", "list", "--db", str(tmp_path / "file-not-dir" / "x.sqlite"), env=env, cwd=tmp_path)
     assert blocked.returncode == 2
     assert blocked.stderr.count("\n") == 1 and "cannot create the register" in blocked.stderr
