@@ -81,6 +81,42 @@ def add(
         out.print(SCATTER_CAUTION)
 
 
+@series_app.command("change")
+def change(
+    key: Annotated[str, typer.Argument(help="The series to change.")],
+    *,
+    title: Annotated[str | None, typer.Option("--title", help="A new title (always allowed).")] = None,
+    scheme: Annotated[str | None, typer.Option("--scheme", help="A new check method (only before the first code).")] = None,
+    alphabet: Annotated[str | None, typer.Option("--alphabet", help="New body symbols (only before the first code).")] = None,
+    length: Annotated[int | None, typer.Option("--length", help="A new body length (only before the first code).", min=1)] = None,
+    prefix: Annotated[str | None, typer.Option("--prefix", help="A new prefix (only before the first code).")] = None,
+    suffix: Annotated[str | None, typer.Option("--suffix", help="A new suffix (only before the first code).")] = None,
+    mode: Annotated[str | None, typer.Option("--mode", help="sequential or scattered (only before the first code).")] = None,
+    start: Annotated[int | None, typer.Option("--start", help="A new lowest base number (only before the first code).", min=0)] = None,
+    end: Annotated[int | None, typer.Option("--end", help="A new highest base number (only before the first code).", min=0)] = None,
+    group: Annotated[str | None, typer.Option("--group", help="New grouping for people, e.g. 4,4.")] = None,
+    sep: Annotated[str | None, typer.Option("--sep", help="A new separator between groups.")] = None,
+    db: DbOption = None,
+    actor: ActorOption = None,
+    as_json: JsonOption = False,
+) -> None:
+    """Change a series' title, or its shape while it has issued nothing (then it is frozen)."""
+    from issuer.register.series import change_series, series_state
+
+    register = open_register_from_options(db, actor)
+    series = change_series(
+        register, key, title=title, scheme=scheme, alphabet=alphabet, length=length,
+        prefix=prefix, suffix=suffix, mode=mode, start=start, end=end,
+        group=parse_group(group) if group is not None else None, sep=sep,
+    )  # fmt: skip
+    with register.reading() as session:
+        state = series_state(session, series)
+    if as_json:
+        print_json(state.as_dict())
+    else:
+        _render_state(state)
+
+
 def _render_state(state: object) -> None:
     from rich.table import Table
 

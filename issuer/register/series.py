@@ -221,6 +221,74 @@ def add_series(register: Register, spec: SeriesSpec) -> Series:
     return register.write(work)
 
 
+def _spec_of(series: Series) -> SeriesSpec:
+    return SeriesSpec(
+        key=series.key, scheme=series.scheme, length=series.length, alphabet=series.alphabet,
+        prefix=series.prefix, suffix=series.suffix, mode=series.mode, start=series.range_start,
+        end=series.range_end, group=tuple(int(g) for g in series.grouping.split(",") if g),
+        sep=series.separator, title=series.title,
+    )  # fmt: skip
+
+
+def change_series(register: Register, key: str, **changes: object) -> Series:
+    """Change a series' title, or its shape while it holds no code yet.
+
+    ``changes`` takes the fields of :class:`SeriesSpec` (``key`` excepted); ``None``
+    means unchanged. Once a series holds a code its shape is frozen: only the title
+    may change, since every issued code and label depends on the shape.
+    """
+    import dataclasses
+
+    wanted = {name: value for name, value in changes.items() if value is not None}
+    unknown = set(wanted) - {f.name for f in dataclasses.fields(SeriesSpec)} | ({"key"} & set(wanted))
+    if unknown:
+        raise InvalidFormat(f"cannot change {', '.join(sorted(unknown))} of a series")
+    if not wanted:
+        raise InvalidFormat("nothing to change: name at least one field")
+
+    def work(session: Session) -> Series:
+        series = get_series(session, key, lock=True)
+        current = _spec_of(series)
+        spec = dataclasses.replace(current, **wanted)  # type: ignore[arg-type]
+        shape_changes = {
+            name for name in wanted if name != "title" and getattr(spec, name) != getattr(current, name)
+        }
+        if shape_changes and series.code_count > 0:
+            raise Conflict(
+                f"the shape of series {key} is frozen: it holds {series.code_count:,} code(s); "
+                "only its title can change (define a new series for a new shape)"
+            )
+        if shape_changes:
+            shape, start, end = build_format(spec)
+            for other in session.scalars(select(Series).where(Series.id != series.id)):
+                if could_coincide(shape, code_format(other)):
+                    raise Conflict(f"codes of {key} could coincide with codes of series {other.key}")
+            series.scheme, series.alphabet = shape.scheme.name, shape.scheme.alphabet.name
+            series.length, series.prefix, series.suffix = spec.length, shape.prefix, shape.suffix
+            series.grouping, series.separator = ",".join(map(str, spec.group)), spec.sep
+            series.range_start, series.range_end = start, end
+            if spec.mode != series.mode:
+                from issuer.scatter import new_key
+
+                series.mode = spec.mode
+                series.scatter_key = new_key() if spec.mode == SCATTERED else None
+        series.title = spec.title
+        session.flush()
+        append_entry(
+            session,
+            NewEntry(
+                action="series.change",
+                series_id=series.id,
+                detail={name: str(getattr(spec, name)) for name in sorted(wanted)},
+            ),
+            actor=register.actor,
+            at=register.clock(),
+        )
+        return series
+
+    return register.write(work)
+
+
 def get_series(session: Session, key: str, *, lock: bool = False) -> Series:
     statement = select(Series).where(Series.key == key)
     if lock:

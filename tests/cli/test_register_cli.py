@@ -171,3 +171,13 @@ def test_real_processes(tmp_path: Path) -> None:
     blocked = _run("series", "list", "--db", str(tmp_path / "file-not-dir" / "x.sqlite"), env=env, cwd=tmp_path)
     assert blocked.returncode == 2
     assert blocked.stderr.count("\n") == 1 and "cannot create the register" in blocked.stderr
+
+
+def test_series_change_before_and_after_the_first_code(cli: Any) -> None:
+    _define_tools(cli)
+    changed = json.loads(cli("series", "change", "tools", "--length", "8", "--group", "4,5", "--json").stdout)
+    assert changed["length"] == 8 and changed["example"].count("-") == 2
+    assert cli("issue", "tools").exit_code == 0
+    frozen = cli("series", "change", "tools", "--length", "9")
+    assert frozen.exit_code == 2 and "frozen" in frozen.stderr
+    assert cli("series", "change", "tools", "--title", "Workshop tags").exit_code == 0

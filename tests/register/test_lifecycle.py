@@ -209,3 +209,24 @@ def test_scattered_series_spread_numbers_without_collisions(register: Any) -> No
     with register.reading() as session:
         series = get_series(session, "cards")
         assert series.scatter_key is not None and len(series.scatter_key) == 32
+
+
+def test_a_series_shape_can_change_until_it_issues_then_it_is_frozen(register: Any) -> None:
+    from issuer.register.series import change_series
+
+    add_series(register, TOOLS)
+    changed = change_series(register, "tools", length=8, group=(4, 5), title="Workshop tags")
+    assert (changed.length, changed.grouping, changed.title) == (8, "4,5", "Workshop tags")
+    with pytest.raises(Conflict, match="could coincide"):
+        add_series(register, SeriesSpec(key="kit", scheme="luhn", length=8, prefix="QTL"))
+    issue_codes(register, "tools")
+    with pytest.raises(Conflict, match="frozen"):
+        change_series(register, "tools", length=9)
+    with pytest.raises(Conflict, match="frozen"):
+        change_series(register, "tools", prefix="QTX")
+    assert change_series(register, "tools", title="Tool tags").title == "Tool tags"
+    with register.reading() as session:
+        actions = [event.action for event in log_entries(session, series="tools")]
+    assert actions.count("series.change") == 2
+    with pytest.raises(InvalidFormat, match="nothing to change"):
+        change_series(register, "tools")
