@@ -45,12 +45,16 @@ def demo(
     out.print(Rule("Quillmere Tool Library & Makers' Co-op: demo register"))
     out.print(f"Register: {db}")
     table = Table(title="Series")
-    for column in ("series", "title", "codes look like", "check", "mode", "in use", "voided", "left"):
-        table.add_column(column)
+    table.add_column("series")
+    table.add_column("codes look like", no_wrap=True)
+    table.add_column("check", no_wrap=True)
+    table.add_column("issued", no_wrap=True)
+    table.add_column("in use", justify="right")
+    table.add_column("voided", justify="right")
     for state in report.states:
-        table.add_row(state.key, state.title, state.example, state.scheme,
+        table.add_row(f"{state.key}\n[dim]{state.title}[/dim]", state.example, state.scheme,
                       "in order" if state.mode == "sequential" else "scattered",
-                      str(state.issued), str(state.voided), f"{state.remaining:,}")
+                      str(state.issued), str(state.voided))
     out.print(table)
     for key, codes in report.issued.items():
         out.print(f"[bold]{key}[/bold] issued: " + ", ".join(codes))

@@ -167,6 +167,14 @@ def show(
         _render_state(state)
 
 
+def _compact(number: int) -> str:
+    """A large count in a few characters (the exact figure is in 'series show')."""
+    for size, unit in ((10**12, "T"), (10**9, "G"), (10**6, "M")):
+        if number >= size * 0.9995:  # so 999,999,995 reads 1.0 G, not 1000.0 M
+            return f"{number / size:.1f} {unit}"
+    return f"{number:,}"
+
+
 @series_app.command("list")
 def list_series(
     *,
@@ -184,15 +192,23 @@ def list_series(
         return
     from rich.table import Table
 
-    table = Table(title="Series")
-    for column in ("key", "title", "codes look like", "check", "mode", "in use", "voided", "left"):
-        table.add_column(column, justify="right" if column in ("in use", "voided", "left") else "left")
-    for state in states:
-        table.add_row(
-            state.key, state.title, state.example, state.scheme,
-            "in order" if state.mode == "sequential" else "scattered",
-            f"{state.issued:,}", f"{state.voided:,}", f"{state.remaining:,}",
+    from rich import box
+
+    table = Table(title="Series", box=box.SIMPLE_HEAD)
+    for column in ("series", "looks like", "mode", "in use", "voided", "left"):
+        table.add_column(
+            column,
+            justify="right" if column in ("in use", "voided", "left") else "left",
+            no_wrap=column in ("looks like", "in use", "voided", "left"),
+            min_width=12 if column == "series" else None,
         )
+    for state in states:
+        name = f"{state.key}\n[dim]{state.title}[/dim]" if state.title else state.key
+        table.add_row(
+            name, state.example,
+            "in order" if state.mode == "sequential" else "scattered",
+            f"{state.issued:,}", f"{state.voided:,}", _compact(state.remaining),
+        )  # fmt: skip
     if not states:
         console().print("No series yet: define one with 'issuer series add'.")
         return
