@@ -317,6 +317,12 @@ def issue_codes(
             head=head, tail=tail,
         )  # fmt: skip
 
+    if count < BULK_FROM and request_id is None and sink is None and register.backend == "sqlite":
+        from issuer.register.sqlite_desk import issue_plain
+
+        plain = issue_plain(register, key, count, holder=holder, note=note)
+        if plain is not None:
+            return plain
     try:
         return register.write(work)
     except IntegrityError:
@@ -349,6 +355,19 @@ _MOVE_COUNTER = (
 )
 _INSERT_BATCH = _BATCH.insert()
 _INSERT_CODE = _CODE.insert()
+
+
+def issue_detail(codes: Sequence[str], request_id: str | None) -> dict[str, Any]:
+    """What the log entry of a small batch says about it."""
+    detail: dict[str, Any] = {
+        "count": len(codes),
+        "first": codes[0],
+        "last": codes[-1],
+        "codes_sha256": codes_digest(codes),
+    }
+    if request_id is not None:
+        detail["request_id"] = request_id
+    return detail
 
 
 def _issue_few(
@@ -387,17 +406,10 @@ def _issue_few(
         ],
     )  # fmt: skip
     connection.execute(_MOVE_COUNTER, {"series_id": series.id, "counter": counter, "added": count})
-    detail: dict[str, Any] = {
-        "count": count,
-        "first": codes[0],
-        "last": codes[-1],
-        "codes_sha256": codes_digest(codes),
-    }
-    if request_id is not None:
-        detail["request_id"] = request_id
     append_entry(
         session,
-        NewEntry("issue", series.id, codes[0] if count == 1 else None, batch_id, detail),
+        NewEntry("issue", series.id, codes[0] if count == 1 else None, batch_id,
+                 issue_detail(codes, request_id)),  # fmt: skip
         actor=register.actor,
         at=at,
     )

@@ -84,17 +84,10 @@ _MOVE_HEAD = (
 )
 
 
-def append_entries(
-    session: Session, entries: Iterable[NewEntry], *, actor: str, at: datetime
-) -> int:
-    """Append entries to the chain inside the caller's transaction; returns how many.
-
-    The head row is locked first, so concurrent writers append one after another.
-    Writes go straight to the session's connection: an ORM object that the caller
-    loaded from these tables would not see them.
-    """
-    connection = session.connection()
-    last_id, last_hash = connection.execute(_LOCK_HEAD).one()
+def chain_rows(
+    entries: Iterable[NewEntry], *, actor: str, at: datetime, last_id: int, last_hash: str
+) -> list[dict[str, Any]]:
+    """The log rows for ``entries``, chained after the entry ``last_id``/``last_hash``."""
     rows: list[dict[str, Any]] = []
     for entry in entries:
         last_id += 1
@@ -125,9 +118,24 @@ def append_entries(
             }
         )
         last_hash = digest
+    return rows
+
+
+def append_entries(
+    session: Session, entries: Iterable[NewEntry], *, actor: str, at: datetime
+) -> int:
+    """Append entries to the chain inside the caller's transaction; returns how many.
+
+    The head row is locked first, so concurrent writers append one after another.
+    Writes go straight to the session's connection: an ORM object that the caller
+    loaded from these tables would not see them.
+    """
+    connection = session.connection()
+    last_id, last_hash = connection.execute(_LOCK_HEAD).one()
+    rows = chain_rows(entries, actor=actor, at=at, last_id=last_id, last_hash=last_hash)
     if rows:
         connection.execute(_INSERT_ENTRY, rows)
-        connection.execute(_MOVE_HEAD, {"new_id": last_id, "new_hash": last_hash})
+        connection.execute(_MOVE_HEAD, {"new_id": rows[-1]["id"], "new_hash": rows[-1]["hash"]})
     return len(rows)
 
 

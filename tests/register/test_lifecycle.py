@@ -183,7 +183,8 @@ def test_a_failed_batch_leaves_no_gap(register: Any, monkeypatch: pytest.MonkeyP
 
     # the log entry is written after the codes: failing there must undo the codes too
     with monkeypatch.context() as patch:
-        patch.setattr(issuing, "append_entry", broken)
+        patch.setattr(issuing, "append_entry", broken)  # big batches
+        patch.setattr(issuing, "issue_detail", broken)  # small ones, on every path
         with pytest.raises(RuntimeError):
             issue_codes(register, "tools", 100)
         with pytest.raises(RuntimeError):

@@ -120,7 +120,8 @@ def test_a_failed_batch_leaves_no_gap(register_url: str, monkeypatch: pytest.Mon
         def broken(*_args: Any, **_kwargs: Any) -> None:
             raise RuntimeError("the log write failed")
 
-        monkeypatch.setattr(issuing, "append_entry", broken)
+        monkeypatch.setattr(issuing, "append_entry", broken)  # big batches
+        monkeypatch.setattr(issuing, "issue_detail", broken)  # small ones, on every path
         with pytest.raises(RuntimeError):
             issue_codes(register, "tools", 5)
         monkeypatch.undo()
