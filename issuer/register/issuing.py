@@ -408,8 +408,10 @@ def _issue_few(
     connection.execute(_MOVE_COUNTER, {"series_id": series.id, "counter": counter, "added": count})
     append_entry(
         session,
-        NewEntry("issue", series.id, codes[0] if count == 1 else None, batch_id,
-                 issue_detail(codes, request_id)),  # fmt: skip
+        NewEntry(
+            "issue", series.id, codes[0] if count == 1 else None, batch_id,
+            issue_detail(codes, request_id),
+        ),
         actor=register.actor,
         at=at,
     )
