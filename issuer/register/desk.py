@@ -11,7 +11,7 @@ from sqlalchemy import select
 from sqlalchemy.orm import Session
 
 from issuer.codes import CodeFormat, normalise_text
-from issuer.errors import InvalidFormat, InvalidLength
+from issuer.errors import InvalidFormat
 from issuer.register.models import ISSUED, VOIDED, IssuedCode, Series
 from issuer.register.series import all_series, code_format
 
@@ -202,4 +202,4 @@ def _answer(
     return answer
 
 
-__all__ = ["STATUSES", "DeskAnswer", "InvalidLength", "Suggestion", "check_codes"]
+__all__ = ["STATUSES", "DeskAnswer", "Suggestion", "check_codes"]
