@@ -16,7 +16,7 @@ from sqlalchemy.orm import Session
 from issuer.codes import normalise_text
 from issuer.errors import Conflict, InvalidCheck, InvalidFormat, NotFound
 from issuer.register.issuing import allocate, store_codes
-from issuer.register.log import NewEntry, append_entries, append_entry
+from issuer.register.log import NewEntry, append_entry
 from issuer.register.models import ISSUED, VOIDED, Batch, IssuedCode, LogEntry, Series
 from issuer.register.series import all_series, code_format
 from issuer.register.store import Register
@@ -178,12 +178,15 @@ def replace_code(register: Register, text: str, *, reason: str) -> Replacement:
         )
         new_id = session.scalar(select(IssuedCode.id).where(IssuedCode.code == new_code))
         old.replaced_by_id = new_id
-        append_entries(
+        append_entry(
             session,
-            [
-                NewEntry("void", series.id, old.code, None, {"reason": why, "replaced_by": new_code}),
-                NewEntry("replace", series.id, new_code, batch.id, {"reason": why, "replaces": old.code}),
-            ],
+            NewEntry("void", series.id, old.code, None, {"reason": why, "replaced_by": new_code}),
+            actor=register.actor,
+            at=at,
+        )
+        append_entry(
+            session,
+            NewEntry("replace", series.id, new_code, batch.id, {"reason": why, "replaces": old.code}),
             actor=register.actor,
             at=at,
         )
