@@ -33,7 +33,7 @@ def demo(
     from rich.table import Table
 
     from issuer.cli.desk import render_answers
-    from issuer.demo import run_demo
+    from issuer.register.demo import run_demo
 
     if db is None:
         db = str(Path(tempfile.mkdtemp(prefix="issuer-demo-")) / "quillmere.sqlite")

@@ -26,7 +26,7 @@ from issuer.errors import InvalidFormat
 if TYPE_CHECKING:
     from collections.abc import Callable
 
-    from issuer.schemes.base import Scheme
+    from issuer.checking.schemes.base import Scheme
 
 SchemeOption = Annotated[
     str,
@@ -61,9 +61,9 @@ _BULK_CALC = 2_000
 def schemes(as_json: JsonOption = False) -> None:
     """List the check-character schemes, their alphabets and what each measurably
     detects (single substitutions, adjacent transpositions) on a short series."""
-    from issuer.assess import assess
-    from issuer.errorspace import compares_with_computed
-    from issuer.schemes import SCHEMES, get_scheme
+    from issuer.checking.assess import assess
+    from issuer.checking.errorspace import compares_with_computed
+    from issuer.checking.schemes import SCHEMES, get_scheme
 
     rows = []
     for name in SCHEMES:
@@ -154,7 +154,7 @@ def calc(
     as_json: JsonOption = False,
 ) -> None:
     """Append the check character(s) to each BODY and print the full code."""
-    from issuer.schemes import get_scheme
+    from issuer.checking.schemes import get_scheme
 
     bound = get_scheme(scheme, alphabet)
     rows = calculate(bound, _labelled(read_inputs(bodies, file, what="body")))
@@ -202,8 +202,8 @@ def check(
             inputs.lines(), db=db, actor=actor, as_json=as_json, summary=summary
         )
         raise typer.Exit(code)
-    from issuer.schemes import get_scheme
-    from issuer.verify import LinesCheck, check_lines, check_text
+    from issuer.checking.schemes import get_scheme
+    from issuer.checking.verify import LinesCheck, check_lines, check_text
 
     bound = get_scheme(scheme, alphabet)
     if inputs.data is not None:
@@ -221,7 +221,7 @@ def check(
 
 
 def _show_check(bound: Scheme, result: Any, *, summary: bool, as_json: bool) -> None:
-    from issuer.verify import REASONS
+    from issuer.checking.verify import REASONS
 
     if summary:
         counts = {"scheme": bound.name, "alphabet": bound.alphabet.name, **result.to_dict()}
@@ -297,11 +297,11 @@ def assess_command(
 ) -> None:
     """Measure which errors each scheme detects on this series shape, weighted by how
     often people make them; with --expect, how long the codes should be."""
-    from issuer.assess import STRUCTURAL_NOTE, assess
+    from issuer.checking.assess import STRUCTURAL_NOTE, assess
+    from issuer.checking.neighbours import ERROR_WEIGHTS, ERROR_WEIGHTS_SOURCE
+    from issuer.checking.schemes import get_scheme
+    from issuer.checking.sizing import size_series
     from issuer.cli.views import LazyProgress
-    from issuer.neighbours import ERROR_WEIGHTS, ERROR_WEIGHTS_SOURCE
-    from issuer.schemes import get_scheme
-    from issuer.sizing import size_series
 
     bound = [get_scheme(name, alphabet) for name in dict.fromkeys(scheme)]
     per_scheme = 2 if expect else 1

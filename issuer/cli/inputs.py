@@ -12,8 +12,8 @@ from typing import Annotated
 
 import typer
 
+from issuer.checking.verify import MAX_INPUT_LENGTH
 from issuer.errors import InvalidFormat, InvalidLength, IssuerError
-from issuer.verify import MAX_INPUT_LENGTH
 
 FileOption = Annotated[
     str | None,

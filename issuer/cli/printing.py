@@ -1,7 +1,7 @@
 """``issuer labels`` and ``issuer reprint``: print-ready labels from the register.
 
 Thin: the codes are chosen by :func:`issuer.register.printing.select_for_printing`,
-drawn and recorded by :func:`issuer.printjob.print_selection`.
+drawn and recorded by :func:`issuer.labels.printjob.print_selection`.
 """
 
 from __future__ import annotations
@@ -167,7 +167,7 @@ def _run(
 ) -> None:
     from issuer.config import load_settings
     from issuer.labels import get_layout, output_format
-    from issuer.printjob import LabelOptions, parse_lines, print_selection
+    from issuer.labels.printjob import LabelOptions, parse_lines, print_selection
     from issuer.register.lifecycle import require_reason
     from issuer.register.printing import select_for_printing
 

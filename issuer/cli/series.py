@@ -190,9 +190,8 @@ def list_series(
     if as_json:
         print_json([state.as_dict() for state in states])
         return
-    from rich.table import Table
-
     from rich import box
+    from rich.table import Table
 
     table = Table(title="Series", box=box.SIMPLE_HEAD)
     for column in ("series", "looks like", "mode", "in use", "voided", "left"):

@@ -21,7 +21,7 @@ from issuer.cli.common import (
 )
 
 if TYPE_CHECKING:
-    from issuer.reconcile import Reconciliation
+    from issuer.stocktake.reconcile import Reconciliation
 
 #: lines listed per class in the terminal before "and N more"
 SHOW_LINES = 10
@@ -79,9 +79,9 @@ def reconcile_command(
 
     Sorts every scanned line: issued, voided (should have been pulled), bad check (a typo, with the issued code probably meant), not issued, malformed; then lists the codes scanned more than once and the issued codes nobody scanned (missing).
     """
-    from issuer.reconcile import read_scans, reconcile, record_seen, sightings
-    from issuer.reconcile_report import as_json as report_json
-    from issuer.reconcile_report import write_report
+    from issuer.stocktake.reconcile import read_scans, reconcile, record_seen, sightings
+    from issuer.stocktake.report import as_json as report_json
+    from issuer.stocktake.report import write_report
 
     register = open_register_from_options(db, actor)
     with err_console().status("Reading the scans and comparing them with the register..."):

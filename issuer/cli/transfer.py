@@ -127,8 +127,8 @@ def import_(
 
     Each row is checked (shape, check character, range, not twice, not already in the register, not another series' code); original dates and holders are kept, and the register never issues these numbers again. All or nothing: one bad row stops the import, naming its line, unless --skip-bad.
     """
+    from issuer.readers.scanfile import read_table
     from issuer.register.importing import IMPORT_ROLES, apply_import, plan_import, rejects_rows
-    from issuer.scanfile import read_table
 
     if rejects is not None and not skip_bad:
         fail("--rejects lists skipped rows: give it with --skip-bad")

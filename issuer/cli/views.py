@@ -6,13 +6,13 @@ import time
 from collections.abc import Sequence
 from typing import TYPE_CHECKING, Any, Self
 
-from issuer.neighbours import CLASS_TITLES, ERROR_WEIGHTS, ERROR_WEIGHTS_SOURCE
+from issuer.checking.neighbours import CLASS_TITLES, ERROR_WEIGHTS, ERROR_WEIGHTS_SOURCE
 
 if TYPE_CHECKING:
     from rich.table import Table
 
-    from issuer.assess import Assessment
-    from issuer.sizing import SizingRow
+    from issuer.checking.assess import Assessment
+    from issuer.checking.sizing import SizingRow
 
 BLOCKS = " \u258f\u258e\u258d\u258c\u258b\u258a\u2589\u2588"
 

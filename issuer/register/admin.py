@@ -137,7 +137,7 @@ def upgrade_register(register: Register) -> tuple[str | None, str | None]:
     try:
         before = register.schema_revision()
         if before != SCHEMA_HEAD:
-            upgrade_to_head(register)
+            upgrade_to_head(register.engine)
         return before, register.schema_revision()
     except DBAPIError as exc:
         raise RegisterError(f"cannot upgrade the register: {str(exc.orig).splitlines()[0]}") from None

@@ -28,7 +28,7 @@ from sqlalchemy import select
 from sqlalchemy.exc import DBAPIError
 from sqlalchemy.orm import Session
 
-from issuer.codes import CodeFormat
+from issuer.checking.codes import CodeFormat
 from issuer.errors import Exhausted, RegisterError
 from issuer.register.driver import bind_value, insert_many
 from issuer.register.models import ISSUED, SCATTERED, Batch, IssuedCode, Series

@@ -10,7 +10,7 @@ from typing import Any
 from sqlalchemy import select
 from sqlalchemy.orm import Session
 
-from issuer.codes import CodeFormat, normalise_text
+from issuer.checking.codes import CodeFormat, normalise_text
 from issuer.errors import InvalidFormat
 from issuer.register.models import ISSUED, VOIDED, IssuedCode, Series
 from issuer.register.series import all_series, code_format
@@ -91,7 +91,7 @@ def _readings(shapes: Sequence[tuple[Series, CodeFormat]], text: str) -> tuple[l
 
 
 def _suggest(session: Session, reading: _Reading) -> list[Suggestion]:
-    from issuer.neighbours import neighbours
+    from issuer.checking.neighbours import neighbours
 
     candidates = neighbours(reading.shape, reading.canonical)
     stored = _stored(session, (c.code for c in candidates))
@@ -110,7 +110,7 @@ def _suggest(session: Session, reading: _Reading) -> list[Suggestion]:
 
 def _suggest_length(session: Session, shapes: Sequence[tuple[Series, CodeFormat]], text: str) -> list[Suggestion]:
     """For a text one character short or long: issued codes with one left out or added."""
-    from issuer.neighbours import omission_insertion_candidates
+    from issuer.checking.neighbours import omission_insertion_candidates
 
     cleaned = normalise_text(text)
     found: list[Suggestion] = []

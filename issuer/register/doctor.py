@@ -146,7 +146,7 @@ def _counter_problems(session: Session, row: Any) -> list[str]:
         try:
             counters_of = _scatter_counters(session, row.id)
         except ImportError:  # pragma: no cover - scatter ships with issuer
-            return problems + [f"{key}: cannot check a scattered series without issuer.scatter"]
+            return problems + [f"{key}: cannot check a scattered series without issuer.scattering.scatter"]
         drawn_counters, imported_counters = counters_of(drawn), counters_of(imported)
     else:
         drawn_counters = [base - row.range_start for base in drawn]

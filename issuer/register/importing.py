@@ -24,15 +24,15 @@ from typing import Any
 
 from sqlalchemy.orm import Session
 
-from issuer.bulkread import BAD_CHECK, MALFORMED, read_codes
 from issuer.errors import Conflict, InvalidFormat
+from issuer.readers.bulkread import BAD_CHECK, MALFORMED, read_codes
+from issuer.readers.scanfile import Table
 from issuer.register.driver import bind_value, execute_many, insert_many
 from issuer.register.log import NewEntry, append_entries
 from issuer.register.models import ISSUED, VOIDED, Batch, IssuedCode
 from issuer.register.series import all_series, code_format, get_series
 from issuer.register.stocktake import series_codes
 from issuer.register.store import Register
-from issuer.scanfile import Table
 
 #: header names read for each field of an imported code
 IMPORT_ROLES: dict[str, tuple[str, ...]] = {

@@ -13,7 +13,7 @@ from typing import Any
 from sqlalchemy import or_, select
 from sqlalchemy.orm import Session
 
-from issuer.codes import normalise_text
+from issuer.checking.codes import normalise_text
 from issuer.errors import Conflict, InvalidCheck, InvalidFormat, NotFound
 from issuer.register.issuing import allocate, store_codes
 from issuer.register.log import NewEntry, append_entry

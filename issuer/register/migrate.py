@@ -8,8 +8,7 @@ from typing import TYPE_CHECKING
 
 if TYPE_CHECKING:
     from alembic.config import Config
-
-    from issuer.register.store import Register
+    from sqlalchemy.engine import Engine
 
 
 def alembic_config() -> Config:
@@ -28,12 +27,12 @@ def head_revision() -> str:
     return head
 
 
-def upgrade_to_head(register: Register) -> None:
+def upgrade_to_head(engine: Engine) -> None:
     """Create or upgrade the schema in one writing transaction."""
     from alembic import command
 
     config = alembic_config()
-    with register.engine.connect() as connection:
+    with engine.connect() as connection:
         connection.execution_options(issuer_write=True)
         config.attributes["connection"] = connection
         command.upgrade(config, "head")

@@ -11,15 +11,15 @@ from typing import TYPE_CHECKING
 from sqlalchemy import func, select
 from sqlalchemy.orm import Session
 
-from issuer.codes import CodeFormat, normalise_affix
+from issuer.checking.codes import CodeFormat, normalise_affix
+from issuer.checking.schemes import get_scheme
 from issuer.errors import Conflict, InvalidFormat, NotFound
 from issuer.register.log import NewEntry, append_entry
 from issuer.register.models import ISSUED, SCATTERED, SEQUENTIAL, VOIDED, IssuedCode, Series
-from issuer.schemes import get_scheme
 
 if TYPE_CHECKING:
     from issuer.register.store import Register
-    from issuer.scatter import ScatterPermutation
+    from issuer.scattering.scatter import ScatterPermutation
 
 KEY_PATTERN = re.compile(r"^[a-z0-9][a-z0-9_-]{0,63}$")
 #: the largest base number a register stores (a signed 64-bit integer)
@@ -75,7 +75,7 @@ def permutation(series: Series) -> ScatterPermutation:
     Built once per thread and series (setting up FF1 costs a few AES chains, and a
     permutation keeps scratch buffers, so threads never share one).
     """
-    from issuer.scatter import ScatterPermutation
+    from issuer.scattering.scatter import ScatterPermutation
 
     assert series.scatter_key is not None
     radix = code_format(series).alphabet_size
@@ -160,7 +160,7 @@ def add_series(register: Register, spec: SeriesSpec) -> Series:
     shape, start, end = build_format(spec)
     key_bytes: bytes | None = None
     if spec.mode == SCATTERED:
-        from issuer.scatter import new_key
+        from issuer.scattering.scatter import new_key
 
         key_bytes = new_key()
 
@@ -268,7 +268,7 @@ def change_series(register: Register, key: str, **changes: object) -> Series:
             series.grouping, series.separator = ",".join(map(str, spec.group)), spec.sep
             series.range_start, series.range_end = start, end
             if spec.mode != series.mode:
-                from issuer.scatter import new_key
+                from issuer.scattering.scatter import new_key
 
                 series.mode = spec.mode
                 series.scatter_key = new_key() if spec.mode == SCATTERED else None

@@ -3,7 +3,7 @@ sightings a stocktake records.
 
 Reconciling a million scans never asks the database about one code at a time: the
 series' codes and statuses come back in one query and the comparison happens in
-memory (:mod:`issuer.reconcile`). Recording sightings is one transaction: one
+memory (:mod:`issuer.stocktake.reconcile`). Recording sightings is one transaction: one
 ``UPDATE`` per code through the driver's ``executemany`` and one ``seen`` log entry per
 code, so ``issuer history`` shows when and where a tag was last seen.
 """

@@ -210,7 +210,7 @@ def open_register(
         from issuer.register.migrate import upgrade_to_head
 
         try:
-            upgrade_to_head(register)
+            upgrade_to_head(register.engine)
         except IssuerError:
             raise
         except DBAPIError as exc:

@@ -155,7 +155,7 @@ def scan_file(folder: Path, count: int) -> tuple[Path, int]:
 
 
 def reconcile_round(folder: Path, path: Path) -> tuple[float, dict[str, int]]:
-    from issuer.reconcile import read_scans, reconcile
+    from issuer.stocktake.reconcile import read_scans, reconcile
 
     register = open_register(str(folder / "tools.sqlite"), actor="bench")
     found: dict[str, int] = {}

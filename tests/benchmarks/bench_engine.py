@@ -28,8 +28,8 @@ from pathlib import Path
 
 import numpy as np
 
-from issuer.assess import assess
-from issuer.schemes import get_scheme
+from issuer.checking.assess import assess
+from issuer.checking.schemes import get_scheme
 
 SEED = 20261
 BASELINE = """

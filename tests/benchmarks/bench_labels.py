@@ -18,10 +18,10 @@ from pathlib import Path
 from reportlab.graphics.barcode.code128 import Code128
 from reportlab.pdfgen.canvas import Canvas
 
-from issuer.codes import CodeFormat
+from issuer.checking.codes import CodeFormat
+from issuer.checking.schemes import get_scheme
 from issuer.labels import LabelContent, Placement, get_layout, render_sheet
 from issuer.labels.plan import CODE_FONT, PT_PER_MM
-from issuer.schemes import get_scheme
 
 
 def minimal_script(

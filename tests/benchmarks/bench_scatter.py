@@ -16,8 +16,8 @@ from collections.abc import Callable
 
 import numpy as np
 
-from issuer.ff1 import ff1_encrypt
-from issuer.scatter import ScatterPermutation
+from issuer.scattering.ff1 import ff1_encrypt
+from issuer.scattering.scatter import ScatterPermutation
 
 KEY = bytes.fromhex("0b5e6a1d9c2f47e8a3b1c0d9e8f7a6b5c4d3e2f1a0b9c8d7e6f5a4b3c2d1e0f9")
 

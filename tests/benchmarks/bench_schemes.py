@@ -20,7 +20,7 @@ from collections.abc import Callable
 import numpy as np
 from stdnum import luhn, verhoeff
 
-from issuer.schemes import SCHEMES, get_scheme
+from issuer.checking.schemes import SCHEMES, get_scheme
 
 SEED = 20260
 WIDTH = 10  # ten-digit codes: nine body digits and the check

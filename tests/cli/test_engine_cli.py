@@ -16,9 +16,9 @@ from stdnum import verhoeff as std_verhoeff
 from stdnum.iso7064 import mod_11_2, mod_37_2, mod_97_10
 from typer.testing import CliRunner
 
+from issuer.checking.schemes import SCHEMES
 from issuer.cli.app import app
 from issuer.cli.common import CHECK_CAUTION
-from issuer.schemes import SCHEMES
 
 # source: J. Verhoeff, Error Detecting Decimal Codes, Mathematical Centre Tract 29, 1969,
 # as tabulated in secondary sources (share of all errors, per class)

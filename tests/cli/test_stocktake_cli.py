@@ -149,7 +149,7 @@ def test_a_real_process(db_path: Path, tags: list[str], tmp_path: Path) -> None:
 
 def test_an_overlong_line_is_one_clear_line(cli: Any, tags: list[str], tmp_path: Path,
                                              monkeypatch: pytest.MonkeyPatch) -> None:
-    from issuer import scanfile
+    from issuer.readers import scanfile
 
     # a 2 GB line, scaled down: the limit and the block size lowered, the file small
     monkeypatch.setattr(scanfile, "MAX_LINE_BYTES", 1_000)

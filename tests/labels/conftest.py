@@ -10,9 +10,9 @@ from typing import Any
 
 import pytest
 
-from issuer.codes import CodeFormat
+from issuer.checking.codes import CodeFormat
+from issuer.checking.schemes import get_scheme
 from issuer.labels import LabelContent
-from issuer.schemes import get_scheme
 
 DPI = 300
 MM_PER_PX = 25.4 / DPI

@@ -6,7 +6,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from issuer.ff1 import (
+from issuer.scattering.ff1 import (
     FF1,
     ff1_decrypt,
     ff1_decrypt_batch,

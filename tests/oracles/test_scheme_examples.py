@@ -8,7 +8,7 @@ import random
 
 import pytest
 
-from issuer.schemes import get_scheme
+from issuer.checking.schemes import get_scheme
 
 
 @pytest.mark.parametrize(

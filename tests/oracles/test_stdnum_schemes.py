@@ -11,8 +11,8 @@ import pytest
 from stdnum import damm, ean, isbn, luhn, verhoeff
 from stdnum.iso7064 import mod_11_2, mod_11_10, mod_37_2, mod_37_36, mod_97_10
 
-from issuer.alphabets import get_alphabet
-from issuer.schemes import Scheme, get_scheme
+from issuer.checking.alphabets import get_alphabet
+from issuer.checking.schemes import Scheme, get_scheme
 
 BODIES = 3000
 

@@ -136,10 +136,10 @@ def _import_until_killed(desk: int, job: dict[str, Any], register: Any, rng: ran
     issued elsewhere, say), each block below the lowest one imported so far."""
     from sqlalchemy import func, select
 
+    from issuer.readers.scanfile import Table
     from issuer.register.importing import import_codes
     from issuer.register.models import Batch, IssuedCode
     from issuer.register.series import code_format, get_series
-    from issuer.scanfile import Table
 
     low, high = job.get("low", 50), job.get("high", 2000)
     while True:
@@ -177,7 +177,7 @@ def main() -> None:
     import issuer.register.models
     import issuer.register.store  # noqa: F401
 
-    for optional in ("issuer.scatter", "issuer.register.importing"):
+    for optional in ("issuer.scattering.scatter", "issuer.register.importing"):
         try:
             __import__(optional)
         except ImportError:  # pragma: no cover - not every checkout has every part

@@ -14,7 +14,8 @@ import pytest
 from sqlalchemy import func, select
 from stdnum import luhn, verhoeff
 
-from issuer.codes import CodeFormat
+from issuer.checking.codes import CodeFormat
+from issuer.checking.schemes import get_scheme
 from issuer.errors import Exhausted
 from issuer.register import bulk
 from issuer.register.bulk import CodesCsv, code_texts, display_texts
@@ -23,7 +24,6 @@ from issuer.register.log import verify_chain
 from issuer.register.models import IssuedCode, LogEntry
 from issuer.register.series import SeriesSpec, add_series, get_series, permutation
 from issuer.register.store import Register, open_register
-from issuer.schemes import get_scheme
 from tests.register.pg import pg_database, pg_url, register_url  # noqa: F401
 
 TOOLS = SeriesSpec(key="tools", scheme="luhn", length=7, prefix="QTL", group=(4, 4))

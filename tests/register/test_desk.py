@@ -95,7 +95,7 @@ def test_a_character_left_out_is_suggested(register: Any, tools: str) -> None:
 
 
 def test_a_valid_code_never_issued_is_not_issued(register: Any, tools: str) -> None:
-    from issuer.schemes import get_scheme
+    from issuer.checking.schemes import get_scheme
 
     stranger = "QTL" + get_scheme("damm").append("9000001")
     with register.reading() as session:

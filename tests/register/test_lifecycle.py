@@ -8,6 +8,7 @@ from typing import Any
 import pytest
 from sqlalchemy import func, select
 
+from issuer.checking.schemes import get_scheme
 from issuer.errors import Conflict, Exhausted, InvalidCheck, InvalidFormat, NotFound
 from issuer.register.issuing import issue_codes
 from issuer.register.lifecycle import (
@@ -20,7 +21,6 @@ from issuer.register.lifecycle import (
 from issuer.register.log import verify_chain
 from issuer.register.models import IssuedCode, Series
 from issuer.register.series import SeriesSpec, add_series, get_series, series_state
-from issuer.schemes import get_scheme
 
 TOOLS = SeriesSpec(key="tools", scheme="luhn", length=7, prefix="QTL", group=(4, 4), title="Tool tags")
 

@@ -13,7 +13,7 @@ from sqlalchemy import event, func, select
 
 from issuer.errors import Conflict, InvalidCheck, InvalidFormat, LabelError, NotFound
 from issuer.labels import get_layout
-from issuer.printjob import LabelOptions, label_contents, parse_lines, print_selection
+from issuer.labels.printjob import LabelOptions, label_contents, parse_lines, print_selection
 from issuer.register.issuing import IssueResult, issue_codes
 from issuer.register.lifecycle import code_history, void_code
 from issuer.register.log import verify_chain

@@ -15,7 +15,7 @@ from sqlalchemy import func, select
 from stdnum import luhn
 
 from issuer.errors import InvalidFormat
-from issuer.reconcile import read_scans, reconcile, record_seen
+from issuer.readers.scanfile import read_table
 from issuer.register.importing import IMPORT_ROLES, import_codes, plan_import, rejects_rows
 from issuer.register.issuing import issue_codes
 from issuer.register.lifecycle import code_history, replace_code, void_code
@@ -24,7 +24,7 @@ from issuer.register.models import Batch, IssuedCode, Series
 from issuer.register.series import SeriesSpec, add_series, get_series, permutation
 from issuer.register.store import Register, open_register
 from issuer.register.transfer import EXPORT_COLUMNS, export_codes
-from issuer.scanfile import read_table
+from issuer.stocktake.reconcile import read_scans, reconcile, record_seen
 from tests.register.pg import pg_database, pg_url, register_url  # noqa: F401
 
 TOOLS = SeriesSpec(key="tools", scheme="luhn", length=7, prefix="QTL", group=(4, 4), title="Quillmere tool tags")

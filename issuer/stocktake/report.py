@@ -1,0 +1,153 @@
+"""A reconciled stocktake as a CSV report (one row per scanned line, then one per
+missing code) and as JSON (counts, and the list of each class beside them)."""
+
+from __future__ import annotations
+
+import csv
+from collections.abc import Iterator
+from datetime import datetime
+from typing import IO, Any
+
+from issuer.stocktake.reconcile import Reconciliation, ScanLine
+
+#: the report's own columns; the scan file's other columns follow them
+REPORT_COLUMNS = (
+    "line", "scanned", "code", "status", "times_scanned", "detail",
+    "likely_code", "likely_error", "last_seen_at", "last_seen_where",
+)  # fmt: skip
+
+
+def iso(moment: datetime | None) -> str | None:
+    """UTC time as ``2026-03-14T09:30:00Z`` (fractions only when there are any)."""
+    if moment is None:
+        return None
+    text = moment.strftime("%Y-%m-%dT%H:%M:%S")
+    if moment.microsecond:
+        text += f".{moment.microsecond:06d}"
+    return text + "Z"
+
+
+def extra_headers(recon: Reconciliation) -> list[str]:
+    """The scan file's other columns as report headers (``scan_`` before a name the
+    report uses itself)."""
+    return [f"scan_{name}" if name in REPORT_COLUMNS else name for name in recon.table.columns]
+
+
+def report_rows(recon: Reconciliation) -> Iterator[list[Any]]:
+    """The report's rows, header first."""
+    yield [*REPORT_COLUMNS, *extra_headers(recon)]
+    # straight from the columns: a million lines make no ScanLine objects
+    extras = list(recon.table.columns.values())
+    times = recon.times
+    table = recon.table
+    for index, (number, text, code, status) in enumerate(
+        zip(table.lines, table.codes, recon.canonical, recon.statuses)
+    ):
+        cells = [values[index] for values in extras]
+        if status == "issued":
+            yield [number, text, code, status, times[code], "", "", "", "", "", *cells]  # type: ignore[index]
+            continue
+        likely = recon.likely.get(code, ()) if code is not None else recon.likely_by_line.get(index, ())
+        first = likely[0] if likely else None
+        yield [
+            number, text, code or "", status, times[code] if code is not None else 1,
+            recon.detail(index, code, status), first.code if first else "",
+            first.description if first else "", "", "", *cells,
+        ]  # fmt: skip
+    blanks = [""] * len(extras)
+    for missing in recon.missing_codes():
+        detail = "issued, not scanned"
+        if missing.perhaps:
+            detail += f"; perhaps scanned with a typo on {missing.perhaps}"
+        yield [
+            "", "", missing.code, "missing", 0, detail, "", "",
+            iso(missing.last_seen_at) or "", missing.last_seen_where or "", *blanks,
+        ]  # fmt: skip
+
+
+def write_report(recon: Reconciliation, stream: IO[str]) -> int:
+    """Write the CSV report; returns the number of data rows."""
+    writer = csv.writer(stream)
+    rows = report_rows(recon)
+    writer.writerow(next(rows))
+    writer.writerows(rows)
+    return recon.scans + len(recon.missing)
+
+
+def _scan_fields(recon: Reconciliation, line: ScanLine) -> dict[str, Any]:
+    fields: dict[str, Any] = {}
+    if recon.time_column:
+        fields["scanned_at"] = line.extra.get(recon.time_column) or None
+    if recon.where_column:
+        fields["location"] = line.extra.get(recon.where_column) or None
+    return fields
+
+
+def as_json(recon: Reconciliation) -> dict[str, Any]:
+    """Counts under ``counts``, and beside them the list of each class: present codes
+    once each (at their first line), malformed lines each, duplicates with their lines
+    and places, missing codes with when and where they were last seen."""
+    from issuer.register.bulk import display_texts
+
+    lists: dict[str, list[dict[str, Any]]] = {
+        key: [] for key in ("issued", "voided", "bad_check", "not_issued", "malformed")
+    }
+    # issued codes straight from the columns (there may be a million), the rest line by line
+    first_index: dict[str, int] = {}
+    for index, (code, status) in enumerate(zip(recon.canonical, recon.statuses)):
+        if status == "issued" and code not in first_index:
+            first_index[code] = index  # type: ignore[index]
+    codes = list(first_index)
+    times, lines = recon.times, recon.table.lines
+    when, where = recon.table.role("time"), recon.table.role("where")
+    for code, display in zip(codes, display_texts(recon.shape, codes)):
+        index = first_index[code]
+        entry: dict[str, Any] = {"code": code, "display": display, "line": lines[index], "times": times[code]}
+        if when is not None:
+            entry["scanned_at"] = when[index] or None
+        if where is not None:
+            entry["location"] = where[index] or None
+        lists["issued"].append(entry)
+    listed: set[str] = set()
+    for line in recon.lines(skip_issued=True):
+        if line.status == "malformed":
+            lists["malformed"].append({
+                "line": line.line, "scanned": line.scanned, "reason": line.detail,
+                "likely": [item.as_dict() for item in line.likely], **_scan_fields(recon, line),
+            })  # fmt: skip
+            continue
+        assert line.code is not None
+        if line.code in listed:
+            continue
+        listed.add(line.code)
+        entry = {
+            "code": line.code, "display": line.display, "line": line.line, "times": line.times,
+            **_scan_fields(recon, line),
+        }  # fmt: skip
+        if line.status == "voided":
+            void = recon.voids.get(line.code)
+            entry["reason"] = void.reason if void else None
+            entry["replacement"] = void.replacement if void else None
+        else:
+            entry["scanned"] = line.scanned
+            entry["likely"] = [item.as_dict() for item in line.likely]
+        lists[line.status].append(entry)
+    duplicates = [
+        {"code": code, "display": recon.shape.display(code), "times": times, "lines": lines, "locations": places}
+        for code, times, lines, places in recon.duplicates()
+    ]
+    missing = [
+        {**item.as_dict(), "last_seen_at": iso(item.last_seen_at)} for item in recon.missing_codes()
+    ]
+    return {
+        "series": recon.series,
+        "source": recon.source,
+        "scans": recon.scans,
+        "counts": dict(recon.counts),
+        **lists,
+        "duplicates": duplicates,
+        "missing": missing,
+    }
+
+
+__all__ = ["REPORT_COLUMNS", "as_json", "iso", "report_rows", "write_report"]
