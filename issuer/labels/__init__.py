@@ -24,14 +24,12 @@ from issuer.labels.layouts import (
     layout_from_table,
     user_layouts,
 )
+from issuer.labels.job import LabelContent, Placement, prepare
 from issuer.labels.render import (
     FORMATS,
     PRINT_NOTE,
-    LabelContent,
-    Placement,
     RenderResult,
     output_format,
-    prepare,
     render_labels,
     render_png,
     render_sheet,

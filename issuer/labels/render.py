@@ -1,7 +1,7 @@
 """Render labels: a PDF sheet (many pages), or one label as PNG or SVG.
 
-Everything is checked before a file is touched (an empty selection, a bad start
-position, a code that cannot be a barcode, a label too small for its content). The
+Everything is checked before a file is touched (:func:`issuer.labels.job.prepare`; here
+also a bad start position). The
 output is written to a temporary file in the target folder and moved into place at the
 end, so a failure never leaves a half-written file behind.
 
@@ -23,40 +23,13 @@ from pathlib import Path
 from typing import Any
 
 from issuer.errors import LabelError
-from issuer.labels.barcodes import Symbol, check_symbology, encode, gs1_giai
-from issuer.labels.layouts import Box, Layout
-from issuer.labels.painters import DrawingPainter, Painter, PdfPainter, draw_label
-from issuer.labels.plan import PT_PER_MM, CellPlan, plan_cell
+from issuer.labels.job import Job, LabelContent, Placement, draw_job, prepare
+from issuer.labels.layouts import Layout
+from issuer.labels.painters import DrawingPainter, PdfPainter
+from issuer.labels.plan import PT_PER_MM
 
 FORMATS = ("pdf", "png", "svg")
 PRINT_NOTE = "Print at 100 % scale (actual size); do not fit to page."
-_PROGRESS_EVERY = 100
-
-
-@dataclass(frozen=True)
-class LabelContent:
-    """What one label shows: the canonical ``code`` (what the barcode carries), its grouped
-    ``display`` form, optional caption ``lines`` (series title, holder, a short caption)
-    and whether it is marked VOID."""
-
-    code: str
-    display: str
-    lines: tuple[str, ...] = ()
-    void: bool = False
-
-
-@dataclass(frozen=True)
-class Placement:
-    """Where label ``index`` of the job went: page and cell (0-based), the cell, the
-    symbol's dark part and the symbol with its quiet zone, in mm from the page's top-left."""
-
-    index: int
-    page: int
-    row: int
-    column: int
-    cell: Box
-    symbol: Box
-    quiet: Box
 
 
 @dataclass(frozen=True)
@@ -73,14 +46,6 @@ class RenderResult:
     placements: tuple[Placement, ...] = field(repr=False)
 
 
-@dataclass(frozen=True)
-class _Job:
-    labels: tuple[LabelContent, ...]
-    symbols: tuple[Symbol, ...]
-    lines: tuple[tuple[str, ...], ...]
-    plan: CellPlan
-
-
 def output_format(out: str | os.PathLike[str]) -> str:
     suffix = Path(out).suffix.lower().lstrip(".")
     if suffix not in FORMATS:
@@ -88,57 +53,6 @@ def output_format(out: str | os.PathLike[str]) -> str:
             f"cannot tell the format of {os.fspath(out)!r}: end it in .pdf, .png or .svg"
         )
     return suffix
-
-
-def _printable(text: str, what: str) -> str:
-    # the built-in PDF fonts cover the Windows-1252 character set
-    try:
-        text.encode("cp1252")
-    except UnicodeEncodeError as exc:
-        raise LabelError(
-            f"{what} {text!r}: character {text[exc.start]!r} cannot be printed with the "
-            "built-in fonts"
-        ) from None
-    return text
-
-
-def prepare(
-    labels: Sequence[LabelContent],
-    layout: Layout,
-    symbology: str,
-    gs1_company_prefix: str | None = None,
-    text_beside: bool = False,
-) -> _Job:
-    """Encode every symbol and fit one arrangement for all labels; raises before any
-    output exists."""
-    if not labels:
-        raise LabelError("nothing to print: the selection is empty")
-    symbology = check_symbology(symbology)
-    symbols: list[Symbol] = []
-    all_lines: list[tuple[str, ...]] = []
-    gs1 = gs1_company_prefix is not None
-    for label in labels:
-        if gs1:
-            data = gs1_giai(str(gs1_company_prefix), label.code)
-            lines = (f"({data[:4]}) {data[4:]}", *label.lines)
-        else:
-            data, lines = label.code, tuple(label.lines)
-        symbols.append(encode(symbology, data, gs1=gs1))
-        _printable(label.display, "code")
-        for line in lines:
-            _printable(line, "line")
-        all_lines.append(lines)
-    plan = plan_cell(
-        layout,
-        symbology,
-        columns=max(s.columns for s in symbols),
-        rows=max(s.rows for s in symbols),
-        code_chars=max(len(label.display) for label in labels),
-        lines=max(len(lines) for lines in all_lines),
-        void=any(label.void for label in labels),
-        beside=text_beside,
-    )
-    return _Job(tuple(labels), tuple(symbols), tuple(all_lines), plan)
 
 
 @contextmanager
@@ -161,60 +75,9 @@ def _atomic(out: str | os.PathLike[str]) -> Iterator[Path]:
             temp.unlink()
 
 
-def _shift(box: Box, dx: float, dy: float) -> Box:
-    return Box(box.x + dx, box.y + dy, box.width, box.height)
-
-
-def _draw_job(
-    painter: Painter,
-    job: _Job,
-    layout: Layout,
-    skip: int,
-    new_page: Callable[[], None] | None,
-    progress: Callable[[int], None] | None,
-    outlines: bool = False,
-) -> tuple[int, tuple[Placement, ...]]:
-    """Draw every label; return (pages used, placements)."""
-    plan = job.plan
-    placements: list[Placement] = []
-    page = 0
-    if outlines:
-        _outline(painter, layout)
-    for index, (label, symbol, lines) in enumerate(zip(job.labels, job.symbols, job.lines)):
-        on_page, row, column = layout.position(skip + index)
-        if on_page != page:
-            if new_page is not None:
-                new_page()
-            page = on_page
-            if outlines:
-                _outline(painter, layout)
-        cell = layout.cell(row, column)
-        symbol_box = _shift(plan.symbol_box(symbol.columns, symbol.rows), cell.x, cell.y)
-        draw_label(painter, plan, cell, symbol, symbol_box, label.display, lines, label.void)
-        quiet = _shift(plan.quiet_box(symbol.columns, symbol.rows), cell.x, cell.y)
-        placements.append(Placement(index, on_page, row, column, cell, symbol_box, quiet))
-        if progress is not None and (index + 1) % _PROGRESS_EVERY == 0:
-            progress(index + 1)
-    if progress is not None and len(job.labels) % _PROGRESS_EVERY:
-        progress(len(job.labels))
-    return page + 1, tuple(placements)
-
-
-OUTLINE_MM = 0.1
-OUTLINE_GREY = 0.6
-
-
-def _outline(painter: Painter, layout: Layout) -> None:
-    """Thin grey outlines of every cell of the page: a test print on plain paper, held
-    against a label sheet, shows whether the printer keeps to the layout."""
-    for row in range(layout.rows):
-        for column in range(layout.columns):
-            painter.frame(layout.cell(row, column), OUTLINE_MM, OUTLINE_GREY)
-
-
 def _pdf(
     target: Any,
-    job: _Job,
+    job: Job,
     layout: Layout,
     skip: int,
     title: str | None,
@@ -235,7 +98,7 @@ def _pdf(
     )
     canvas.setCreator("issuer")
     painter = PdfPainter(canvas, layout.page_height)
-    pages, placements = _draw_job(painter, job, layout, skip, painter.new_page, progress, outlines)
+    pages, placements = draw_job(painter, job, layout, skip, painter.new_page, progress, outlines)
     canvas.showPage()
     canvas.save()
     return pages, placements
@@ -286,7 +149,7 @@ def render_sheet(
 
 def _single(
     label: LabelContent, layout: Layout, symbology: str, gs1: str | None, beside: bool
-) -> tuple[_Job, Layout]:
+) -> tuple[Job, Layout]:
     single = layout.single()
     return prepare([label], single, symbology, gs1, beside), single
 
@@ -337,7 +200,7 @@ def render_svg(
     from reportlab.graphics import renderSVG
 
     painter = DrawingPainter(single.page_width, single.page_height)
-    _, placements = _draw_job(painter, job, single, 0, None, None)
+    _, placements = draw_job(painter, job, single, 0, None, None)
     text = renderSVG.drawToString(painter.drawing)
     text = _svg_physical_size(text, single)
     with _atomic(out) as temp:
