@@ -15,6 +15,7 @@ from issuer.labels.barcodes import (
     encode,
     gs1_giai,
 )
+from issuer.labels.job import LabelContent, Placement, prepare
 from issuer.labels.layouts import (
     PRESETS,
     Box,
@@ -24,7 +25,6 @@ from issuer.labels.layouts import (
     layout_from_table,
     user_layouts,
 )
-from issuer.labels.job import LabelContent, Placement, prepare
 from issuer.labels.render import (
     FORMATS,
     PRINT_NOTE,
