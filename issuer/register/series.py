@@ -8,7 +8,7 @@ from dataclasses import dataclass
 from functools import lru_cache
 from typing import TYPE_CHECKING
 
-from sqlalchemy import func, select
+from sqlalchemy import func, select, text
 from sqlalchemy.orm import Session
 
 from issuer.checking.codes import CodeFormat, normalise_affix
@@ -155,6 +155,21 @@ def build_format(spec: SeriesSpec) -> tuple[CodeFormat, int, int]:
     return shape, start, end
 
 
+#: the PostgreSQL advisory lock that serialises series definitions, one per schema
+_DEFINE_LOCK = text("SELECT pg_advisory_xact_lock(hashtext('issuer.define:' || current_schema()))")
+
+
+def lock_definitions(session: Session) -> None:
+    """Take the register-wide lock for defining or reshaping series, held until commit.
+
+    The clash check reads every series; without one lock two desks could each find no
+    clash and both insert. SQLite's ``BEGIN IMMEDIATE`` already makes writers take turns;
+    PostgreSQL takes a transaction-scoped advisory lock (no table privilege needed).
+    """
+    if session.get_bind().dialect.name == "postgresql":
+        session.execute(_DEFINE_LOCK)
+
+
 def add_series(register: Register, spec: SeriesSpec) -> Series:
     """Define a new series; refuse one whose codes could coincide with another's."""
     shape, start, end = build_format(spec)
@@ -165,6 +180,7 @@ def add_series(register: Register, spec: SeriesSpec) -> Series:
         key_bytes = new_key()
 
     def work(session: Session) -> Series:
+        lock_definitions(session)
         if session.scalar(select(Series.id).where(Series.key == spec.key)) is not None:
             raise Conflict(f"a series {spec.key} exists already")
         for other in session.scalars(select(Series)):
@@ -247,6 +263,7 @@ def change_series(register: Register, key: str, **changes: object) -> Series:
         raise InvalidFormat("nothing to change: name at least one field")
 
     def work(session: Session) -> Series:
+        lock_definitions(session)
         series = get_series(session, key, lock=True)
         current = _spec_of(series)
         spec = dataclasses.replace(current, **wanted)  # type: ignore[arg-type]

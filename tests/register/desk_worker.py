@@ -13,7 +13,7 @@ inside an act. A test compares those lines with the register: whatever a desk wa
 be there, even after the desk was killed. When every desk has ended the room reports
 ``{"desk": i, "op": "exit", "status": ..., "signal": ...}`` for each, and exits.
 
-Modes: ``issue`` (count codes one at a time), ``mixed`` (count acts: issue, or void or
+Modes: ``define`` (define one series from ``spec``), ``issue`` (count codes one at a time), ``mixed`` (count acts: issue, or void or
 replace one of this desk's own codes), ``bulk`` (batches of low..high codes until
 killed), ``replace`` (replace recent issued codes until killed), ``import`` (import
 blocks of codes from the top of the range until killed).
@@ -43,7 +43,16 @@ def work(desk: int, job: dict[str, Any], register: Any) -> None:
 
     rng = random.Random(job.get("seed", desk))
     key, mode = job["series"], job["mode"]
-    if mode == "issue":
+    if mode == "define":
+        from issuer.register.series import SeriesSpec, add_series
+
+        try:
+            add_series(register, SeriesSpec(key=key, **job["spec"]))
+        except Conflict as exc:
+            say(desk, {"op": "refused", "why": str(exc)})
+        else:
+            say(desk, {"op": "defined", "series": key})
+    elif mode == "issue":
         for _ in range(job["count"]):
             result = issue_codes(register, key, 1)
             say(desk, {"op": "issue", "code": result.codes[0].code, "batch": result.batch})
