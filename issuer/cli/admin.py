@@ -10,6 +10,7 @@ import typer
 
 from issuer.cli.app import app
 from issuer.cli.common import (
+    ActorOption,
     DbOption,
     JsonOption,
     close_with_command,
@@ -78,16 +79,33 @@ def db_status(db: DbOption = None, as_json: JsonOption = False) -> None:
     console().print(table)
 
 
+@db_app.command("init")
+def db_init(db: DbOption = None, actor: ActorOption = None, as_json: JsonOption = False) -> None:
+    """Make a new, empty register on purpose (other commands never make one by accident).
+
+    A SQLite file is created owner-only; a PostgreSQL database gets issuer's tables. A
+    register already there is left untouched.
+    """
+    from issuer.config import load_settings
+    from issuer.register.admin import init_register
+
+    settings = load_settings(database=db, actor=actor)
+    created, place = init_register(settings.database, actor=settings.actor)
+    if as_json:
+        print_json({"database": place, "created": created})
+        return
+    if created:
+        console().print(f"Made a new register at {place}; next: 'issuer series add KEY ...'")
+    else:
+        console().print(f"There is a register at {place} already; nothing changed.")
+
+
 @db_app.command("upgrade")
 def db_upgrade(db: DbOption = None, as_json: JsonOption = False) -> None:
-    """Create the register's tables, or bring an older register up to this issuer's schema."""
-    from issuer.config import load_settings
+    """Bring an older register up to this issuer's schema ('db init' makes a new one)."""
     from issuer.register.admin import upgrade_register
-    from issuer.register.store import Register, database_url, make_engine
 
-    settings = load_settings(database=db)
-    register = Register(engine=make_engine(database_url(settings.database)), actor=settings.actor)
-    close_with_command(register)
+    register = _open_existing(db)
     before, after = upgrade_register(register)
     register.close()
     if as_json:
@@ -163,15 +181,20 @@ def backup(
     if register.backend == "postgresql":
         dump = admin.pg_dump_command(register, str(destination))
         restore = admin.pg_restore_command(register, str(destination))
+        has_password = register.engine.url.password is not None
         register.close()
+        password_note = "The password is not printed: pg_dump and pg_restore read it from PGPASSWORD or ~/.pgpass."
         if as_json:
-            print_json({"backend": "postgresql", "command": dump, "restore": restore})
+            print_json({"backend": "postgresql", "command": dump, "restore": restore,
+                        "password": "PGPASSWORD or ~/.pgpass" if has_password else None})
             return
         out = console()
         out.print("A PostgreSQL register is backed up with the server's own tool; run:")
         typer.echo(admin.shell_line(dump))
         out.print("and restore it with:", style="dim")
         typer.echo(admin.shell_line(restore))
+        if has_password:
+            out.print(password_note, style="dim")
         out.print("Keep the dump file private: it holds the register's personal data and keys.")
         return
     result = _backup_with_progress(register, destination, force)

@@ -21,7 +21,7 @@ except ImportError:  # pragma: no cover - older Typer uses the click package
     from click import exceptions as click_exceptions  # type: ignore[no-redef]
 from typer.core import TyperGroup
 
-from issuer.errors import IssuerError
+from issuer.errors import IssuerError, redact
 
 JsonOption = Annotated[
     bool, typer.Option("--json", help="Print machine-readable JSON on stdout, and nothing else there.")
@@ -60,7 +60,7 @@ class UserError(click_exceptions.ClickException):
     exit_code = 2
 
     def show(self, file: Any = None) -> None:
-        typer.echo(f"issuer: {self.format_message()}", err=True)
+        typer.echo(redact(f"issuer: {self.format_message()}"), err=True)
 
 
 class IssuerGroup(TyperGroup):
@@ -83,7 +83,7 @@ class IssuerGroup(TyperGroup):
             hint = ""
             if isinstance(exc, click_exceptions.UsageError) and exc.ctx is not None:
                 hint = f" (see '{exc.ctx.command_path} --help')"
-            typer.echo(f"issuer: {message}{hint}", err=True)
+            typer.echo(redact(f"issuer: {message}{hint}"), err=True)
             return _finish(standalone_mode, exc.exit_code)
         except typer.Exit as exc:
             return _finish(standalone_mode, exc.exit_code)
@@ -110,7 +110,7 @@ def print_json(data: Any) -> None:
 
 def fail(message: str, code: int = 2) -> NoReturn:
     """Stop with one line on stderr."""
-    typer.echo(f"issuer: {message}", err=True)
+    typer.echo(redact(f"issuer: {message}"), err=True)
     raise typer.Exit(code)
 
 
@@ -126,14 +126,21 @@ def err_console() -> Any:
     return Console(stderr=True, highlight=False)
 
 
-def open_register_from_options(db: str | None, actor: str | None) -> Any:
-    """Open the register the settings point at (command line > environment > config)."""
+def open_register_from_options(db: str | None, actor: str | None, *, create: bool = False) -> Any:
+    """Open the register the settings point at (command line > environment > config).
+
+    Only the commands that make a register on purpose (``series add``, ``demo``,
+    ``db init``) pass ``create=True``; any other command on a missing register stops
+    with "no register at PATH" and how to make one, so a mistyped path stays a mistake.
+    """
     from issuer.config import load_settings
     from issuer.register.store import open_register
 
     settings = load_settings(database=db, actor=actor)
     timeout = int(settings.section("register").get("busy_timeout_ms", 15000))
-    register = open_register(settings.database, actor=settings.actor, busy_timeout_ms=timeout)
+    register = open_register(
+        settings.database, actor=settings.actor, busy_timeout_ms=timeout, create=create
+    )
     close_with_command(register)
     return register
 

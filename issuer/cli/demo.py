@@ -39,7 +39,7 @@ def demo(
         db = str(Path(tempfile.mkdtemp(prefix="issuer-demo-")) / "quillmere.sqlite")
     elif Path(db).exists() and Path(db).stat().st_size > 0:
         fail(f"{db} exists already; the demo needs a new file")
-    register = open_register_from_options(db, "demo-clerk")
+    register = open_register_from_options(db, "demo-clerk", create=True)
     report = run_demo(register)
     out = console()
     out.print(Rule("Quillmere Tool Library & Makers' Co-op: demo register"))

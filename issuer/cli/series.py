@@ -62,7 +62,7 @@ def add(
         key=key, scheme=scheme, length=length, alphabet=alphabet, prefix=prefix, suffix=suffix,
         mode=mode, start=start, end=end, group=parse_group(group), sep=sep, title=title,
     )
-    register = open_register_from_options(db, actor)
+    register = open_register_from_options(db, actor, create=True)
     series = add_series(register, spec)
     with register.reading() as session:
         state = series_state(session, series)

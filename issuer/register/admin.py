@@ -21,10 +21,18 @@ from sqlalchemy.engine import make_url
 from sqlalchemy.exc import DBAPIError
 from sqlalchemy.orm import Session
 
-from issuer.errors import Conflict, InvalidFormat, PermissionDenied, RegisterError
+from issuer.errors import Conflict, InvalidFormat, NoRegister, PermissionDenied, RegisterError
 from issuer.register.log import ChainReport, verify_chain
 from issuer.register.models import IssuedCode, LogEntry, Series
-from issuer.register.store import SCHEMA_HEAD, Register, database_url, make_engine
+from issuer.register.store import (
+    SCHEMA_HEAD,
+    Register,
+    database_url,
+    make_engine,
+    no_register,
+    open_register,
+    where,
+)
 
 Progress = Callable[[int, int], None]
 
@@ -45,7 +53,7 @@ def open_existing(database: str, *, actor: str = "doctor", busy_timeout_ms: int 
     if url.startswith("sqlite"):
         path = make_url(url).database
         if path and path != ":memory:" and not Path(path).is_file():
-            raise RegisterError(f"there is no register at {path}")
+            raise no_register(url)
     try:
         engine = make_engine(url, busy_timeout_ms=busy_timeout_ms)
     except (ImportError, ValueError) as exc:
@@ -130,12 +138,33 @@ def register_status(register: Register) -> RegisterStatus:
     )
 
 
+def init_register(database: str, *, actor: str) -> tuple[bool, str]:
+    """Make a register at ``database`` on purpose (a new SQLite file, owner-only in an
+    owner-only folder, or issuer's tables in an empty PostgreSQL database); a register
+    already there is left as it is. Returns (created, where it is)."""
+    try:
+        existing: Register | None = open_existing(database, actor=actor)
+    except NoRegister:
+        existing = None
+    if existing is not None:
+        revision = existing.schema_revision()
+        existing.close()
+        if revision is not None:
+            return False, where(existing.engine.url.render_as_string(hide_password=False))
+    made = open_register(database, actor=actor, create=True)
+    made.close()
+    return True, where(made.engine.url.render_as_string(hide_password=False))
+
+
 def upgrade_register(register: Register) -> tuple[str | None, str | None]:
-    """Bring the schema to this issuer's head; returns (before, after)."""
+    """Bring the schema to this issuer's head; returns (before, after). A database with
+    no register in it is refused: 'issuer db init' makes one on purpose."""
     from issuer.register.migrate import upgrade_to_head
 
     try:
         before = register.schema_revision()
+        if before is None:
+            raise no_register(register.engine.url.render_as_string(hide_password=False))
         if before != SCHEMA_HEAD:
             upgrade_to_head(register.engine)
         return before, register.schema_revision()
@@ -167,7 +196,7 @@ def roles_script(register: Register, *, clerk: str, admin: str) -> list[str]:
     except DBAPIError as exc:
         raise RegisterError(f"cannot read the register: {str(exc.orig).splitlines()[0]}") from None
     if "log_entry" not in tables:
-        raise RegisterError("this database holds no register yet: run 'issuer db upgrade' first")
+        raise RegisterError("this database holds no register yet: run 'issuer db init' first")
     return roles_statements(
         database=str(database), schema=str(schema), tables=tables, clerk=clerk, admin=admin
     )
@@ -301,18 +330,28 @@ def _copy(source: Path, partial: Path, progress: Progress | None) -> tuple[int, 
 def pg_dump_command(register: Register, destination: str) -> list[str]:
     """The pg_dump command that backs up a PostgreSQL register (we do not run it:
     the server's own tool knows its version and format best)."""
-    url = register.engine.url.set(drivername="postgresql", password=None)
     return [
         "pg_dump",
         "--format=custom",
         f"--file={destination}",
-        f"--dbname={url.render_as_string(hide_password=False)}",
+        f"--dbname={_libpq_url(register)}",
     ]
 
 
 def pg_restore_command(register: Register, destination: str) -> list[str]:
-    url = register.engine.url.set(drivername="postgresql", password=None)
-    return ["pg_restore", "--clean", "--if-exists", f"--dbname={url.render_as_string()}", destination]
+    return ["pg_restore", "--clean", "--if-exists", f"--dbname={_libpq_url(register)}", destination]
+
+
+def _libpq_url(register: Register) -> str:
+    """The register's URL for the server's own tools, with no password in it: they read
+    it from PGPASSWORD or ~/.pgpass, so a printed command line never carries it."""
+    from sqlalchemy.engine import URL
+
+    url = register.engine.url
+    # URL.set() ignores None, so the password is dropped by building the URL afresh
+    bare = URL.create("postgresql", username=url.username, host=url.host, port=url.port,
+                      database=url.database, query=url.query)
+    return bare.render_as_string(hide_password=False)
 
 
 def shell_line(command: list[str]) -> str:

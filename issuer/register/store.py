@@ -30,7 +30,7 @@ from sqlalchemy.engine import make_url
 from sqlalchemy.exc import ArgumentError, DBAPIError, OperationalError
 from sqlalchemy.orm import Session
 
-from issuer.errors import IssuerError, PermissionDenied, RegisterError
+from issuer.errors import IssuerError, NoRegister, PermissionDenied, RegisterError, redact
 
 T = TypeVar("T")
 
@@ -51,7 +51,7 @@ def database_url(database: str) -> str:
         try:
             url = make_url(database)
         except ArgumentError:
-            raise RegisterError(f"not a database URL: {database}") from None
+            raise RegisterError(f"not a database URL: {redact(database)}") from None
         if url.drivername in ("postgresql", "postgres"):
             url = url.set(drivername="postgresql+psycopg")
         return url.render_as_string(hide_password=False)
@@ -66,7 +66,8 @@ def _prepare_sqlite_file(url: str) -> None:
         return
     path = Path(database)
     try:
-        path.parent.mkdir(parents=True, exist_ok=True)
+        # a folder made for a register is the owner's alone, like the file in it
+        path.parent.mkdir(mode=0o700, parents=True, exist_ok=True)
         if not path.exists():
             descriptor = os.open(path, os.O_CREAT | os.O_WRONLY, 0o600)
             os.close(descriptor)
@@ -74,6 +75,30 @@ def _prepare_sqlite_file(url: str) -> None:
         raise RegisterError(f"cannot create the register at {path}: {exc.strerror}") from None
     if not os.access(path, os.R_OK | os.W_OK) or not os.access(path.parent, os.W_OK):
         raise RegisterError(f"the register at {path} cannot be written (check permissions)")
+
+
+def where(url: str) -> str:
+    """How to name a register's place to a person: a file's path, or the URL without its
+    password."""
+    parsed = make_url(url)
+    if parsed.drivername.startswith("sqlite"):
+        return parsed.database or ":memory:"
+    return parsed.render_as_string(hide_password=True)
+
+
+def no_register(url: str) -> NoRegister:
+    place = where(url)
+    return NoRegister(
+        f"no register at {place}: create one with 'issuer db init --db {place}' "
+        "(or 'issuer series add ... --db PATH'; 'issuer demo' builds an example)"
+    )
+
+
+def _refuse_missing_file(url: str) -> None:
+    database = make_url(url).database
+    local = url.startswith("sqlite") and database and database != ":memory:"
+    if local and not Path(str(database)).is_file():
+        raise no_register(url)
 
 
 def make_engine(url: str, *, busy_timeout_ms: int = 15000) -> Engine:
@@ -188,9 +213,17 @@ def open_register(
     clock: Callable[[], datetime] = utc_now,
     busy_timeout_ms: int = 15000,
     upgrade: bool = True,
+    create: bool = True,
 ) -> Register:
-    """Open (creating or upgrading as needed) the register at ``database``."""
+    """Open (upgrading as needed) the register at ``database``.
+
+    With ``create=False`` a missing SQLite file, or a database without issuer's tables,
+    raises :class:`NoRegister` and nothing is made: a mistyped path must not become an
+    empty register. ``create=True`` makes the register there when there is none.
+    """
     url = database_url(database)
+    if not create:
+        _refuse_missing_file(url)
     try:
         engine = make_engine(url, busy_timeout_ms=busy_timeout_ms)
     except (ArgumentError, ImportError) as exc:
@@ -201,6 +234,9 @@ def open_register(
     except DBAPIError as exc:
         engine.dispose()
         raise RegisterError(f"cannot open the register {database}: {str(exc.orig).splitlines()[0]}") from None
+    if revision is None and not create:
+        engine.dispose()
+        raise no_register(url)
     if revision != SCHEMA_HEAD:
         if not upgrade:
             raise RegisterError(

@@ -165,10 +165,11 @@ def test_real_processes(tmp_path: Path) -> None:
     code = json.loads(issued.stdout)["codes"][0]["code"]
     checked = _run("check", code, env=env, cwd=tmp_path)
     assert checked.returncode == 0 and "in use" in checked.stdout
-    created = _run("series", "list", "--db", str(tmp_path / "new-folder" / "x.sqlite"), env=env, cwd=tmp_path)
-    assert created.returncode == 0  # a missing folder is created
+    created = _run("db", "init", "--db", str(tmp_path / "new-folder" / "x.sqlite"), env=env, cwd=tmp_path)
+    assert created.returncode == 0  # a missing folder is created, owner-only
+    assert (tmp_path / "new-folder").stat().st_mode & 0o777 == 0o700
     (tmp_path / "file-not-dir").write_text("")
-    blocked = _run("series", "list", "--db", str(tmp_path / "file-not-dir" / "x.sqlite"), env=env, cwd=tmp_path)
+    blocked = _run("db", "init", "--db", str(tmp_path / "file-not-dir" / "x.sqlite"), env=env, cwd=tmp_path)
     assert blocked.returncode == 2
     assert blocked.stderr.count("\n") == 1 and "cannot create the register" in blocked.stderr
 
