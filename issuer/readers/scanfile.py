@@ -32,6 +32,8 @@ CODE_COLUMN_NAMES = (
     "number", "card", "card_number", "serial",
 )  # fmt: skip
 DELIMITERS = (",", ";", "\t", "|")
+#: how a comment line starts, in every format
+COMMENT_MARKS = ("#", "//")
 
 
 def _name(path: Path) -> str:
@@ -140,6 +142,10 @@ class Table:
     codes: list[str] = field(default_factory=list)
     columns: dict[str, list[str]] = field(default_factory=dict)
     roles: dict[str, str] = field(default_factory=dict)
+    #: lines holding nothing, and lines starting with ``#`` (``//`` in JSON Lines): counted
+    #: alike in every format, never read as codes
+    blank_lines: int = 0
+    comment_lines: int = 0
 
     def __len__(self) -> int:
         return len(self.codes)
@@ -186,10 +192,15 @@ def read_table(
     line = 1  # the number of the first line of ``block``
     for block in blocks:
         for index, text in enumerate(block):
-            if text.strip():
+            stripped = text.strip()
+            if stripped and not stripped.startswith(COMMENT_MARKS):
                 first_block = block[index:]
                 line += index
                 break
+            if stripped:
+                table.comment_lines += 1
+            else:
+                table.blank_lines += 1
         else:
             line += len(block)
             continue
@@ -201,7 +212,7 @@ def read_table(
     first_key = header_key(first)
     plain = column is None and delimiter is None and first_key not in CODE_COLUMN_NAMES
     if first.lstrip().startswith(("{", "[")):
-        header, rows = _json_rows(name, first_block, line, blocks)
+        header, rows = _json_rows(table, first_block, line, blocks)
         _fill(table, header, rows, column, roles or {}, chosen or {})
     elif plain:
         _read_plain(table, first_block, line, blocks)
@@ -219,7 +230,11 @@ def _read_plain(table: Table, first_block: list[str], line: int, blocks: Iterato
     while True:
         for text in block:
             stripped = text.strip()
-            if stripped and not stripped.startswith("#"):
+            if not stripped:
+                table.blank_lines += 1
+            elif stripped.startswith(COMMENT_MARKS):
+                table.comment_lines += 1
+            else:
                 codes.append(stripped)
                 lines.append(number)
             number += 1
@@ -256,22 +271,30 @@ def _csv_rows(
 
 
 def _json_rows(
-    name: str, first_block: list[str], line: int, blocks: Iterator[list[str]]
+    table: Table, first_block: list[str], line: int, blocks: Iterator[list[str]]
 ) -> tuple[list[str], Iterator[tuple[int, list[str]]]]:
     """JSON Lines (one object per line), or a JSON array written one object per line
     (as ``issuer export --format json`` writes it); the first object's keys are the
     header."""
     import json
 
+    name = table.source
+
     def objects() -> Iterator[tuple[int, dict[str, object]]]:
         for number, text in enumerate(_chain(first_block, blocks), start=line):
             text = text.strip()
+            if not text:
+                table.blank_lines += 1
+                continue
+            if text.startswith(COMMENT_MARKS):
+                table.comment_lines += 1
+                continue
             if text.startswith("["):
                 text = text[1:].lstrip()
             if text.endswith("]"):
                 text = text[:-1].rstrip()
             text = text.rstrip(",").rstrip()
-            if not text:
+            if not text:  # the brackets of a JSON array on lines of their own
                 continue
             try:
                 value = json.loads(text)
@@ -339,6 +362,10 @@ def _fill(
     width = len(keys)
     for number, row in rows:
         if not row or not any(cell.strip() for cell in row):
+            table.blank_lines += 1
+            continue
+        if row[0].lstrip().startswith(COMMENT_MARKS):
+            table.comment_lines += 1
             continue
         if len(row) < width:
             row = row + [""] * (width - len(row))

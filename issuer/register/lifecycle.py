@@ -81,6 +81,8 @@ class CodeRecord:
     print_count: int
     last_seen_at: datetime | None
     last_seen_where: str | None
+    #: where the item belongs (``issuer place``)
+    expected_where: str | None = None
 
     def as_dict(self) -> dict[str, Any]:
         return dict(self.__dict__)
@@ -113,6 +115,7 @@ def code_record(session: Session, row: IssuedCode) -> CodeRecord:
         print_count=row.print_count,
         last_seen_at=row.last_seen_at,
         last_seen_where=row.last_seen_where,
+        expected_where=row.expected_where,
     )
 
 

@@ -141,6 +141,9 @@ class IssuedCode(Base):
     print_count: Mapped[int] = mapped_column(Integer, default=0)
     last_seen_at: Mapped[datetime | None] = mapped_column(UTCDateTime(), default=None)
     last_seen_where: Mapped[str | None] = mapped_column(String(200), default=None)
+    #: where the item carrying this code belongs (shelf, room); a count seeing it
+    #: anywhere else reports it as found elsewhere
+    expected_where: Mapped[str | None] = mapped_column(String(200), default=None)
 
 
 class LogEntry(Base):
@@ -171,3 +174,70 @@ class LogHead(Base):
     id: Mapped[int] = mapped_column(Integer, primary_key=True)
     last_id: Mapped[int] = mapped_column(BigInteger, default=0)
     last_hash: Mapped[str] = mapped_column(String(64))
+
+
+#: stock count states
+COUNT_OPEN = "open"
+COUNT_CLOSED = "closed"
+
+
+class StockCount(Base):
+    """A stocktake that spans days: what is expected (a series, narrowed to a place, a
+    range, a batch or a holder), the scan files added to it, and its frozen result."""
+
+    __tablename__ = "stock_count"
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    name: Mapped[str] = mapped_column(String(64), unique=True)
+    series_id: Mapped[int] = mapped_column(ForeignKey("series.id"))
+    #: all | where | range | batch | holder
+    scope: Mapped[str] = mapped_column(String(16))
+    #: the place or holder of a ``where`` or ``holder`` count
+    scope_text: Mapped[str | None] = mapped_column(String(200), default=None)
+    #: base numbers of a ``range`` count, or the batch id (in ``scope_first``)
+    scope_first: Mapped[int | None] = mapped_column(BigInteger, default=None)
+    scope_last: Mapped[int | None] = mapped_column(BigInteger, default=None)
+    #: the time zone of scan times written without one (an IANA name or an offset)
+    zone: Mapped[str] = mapped_column(String(64))
+    state: Mapped[str] = mapped_column(String(16), default=COUNT_OPEN)
+    opened_at: Mapped[datetime] = mapped_column(UTCDateTime())
+    opened_by: Mapped[str] = mapped_column(String(120))
+    closed_at: Mapped[datetime | None] = mapped_column(UTCDateTime(), default=None)
+    closed_by: Mapped[str | None] = mapped_column(String(120), default=None)
+    #: JSON text of the result, written when the count closes
+    result: Mapped[str | None] = mapped_column(Text, default=None)
+
+
+class StockCountFile(Base):
+    """One scan file added to a count; its digest makes a second adding of it a refusal."""
+
+    __tablename__ = "stock_count_file"
+    __table_args__ = (UniqueConstraint("count_id", "digest"),)
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    count_id: Mapped[int] = mapped_column(ForeignKey("stock_count.id"))
+    digest: Mapped[str] = mapped_column(String(64))
+    name: Mapped[str] = mapped_column(String(200))
+    scanner: Mapped[str | None] = mapped_column(String(200), default=None)
+    zone: Mapped[str] = mapped_column(String(64))
+    scans: Mapped[int] = mapped_column(Integer)
+    blank_lines: Mapped[int] = mapped_column(Integer, default=0)
+    comment_lines: Mapped[int] = mapped_column(Integer, default=0)
+    added_at: Mapped[datetime] = mapped_column(UTCDateTime())
+    added_by: Mapped[str] = mapped_column(String(120))
+
+
+class StockCountScan(Base):
+    """One scanned line of a count's file, as read (the reading against the register
+    happens when the count is looked at, so later voids and moves are seen)."""
+
+    __tablename__ = "stock_count_scan"
+    __table_args__ = (Index(None, "count_id", "file_id", "line"),)
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    count_id: Mapped[int] = mapped_column(ForeignKey("stock_count.id"))
+    file_id: Mapped[int] = mapped_column(ForeignKey("stock_count_file.id"))
+    line: Mapped[int] = mapped_column(Integer)
+    scanned: Mapped[str] = mapped_column(String(200))
+    seen_at: Mapped[datetime | None] = mapped_column(UTCDateTime(), default=None)
+    seen_where: Mapped[str | None] = mapped_column(String(200), default=None)

@@ -46,14 +46,24 @@ class TableGrants:
     update: tuple[str, ...] = ()
 
 
+#: stock counts: any clerk opens, adds to and closes a count (and places tags on shelves)
+COUNT_GRANTS: dict[str, TableGrants] = {
+    "stock_count": TableGrants(insert=True, update=("state", "closed_at", "closed_by", "result")),
+    "stock_count_file": TableGrants(insert=True),
+    "stock_count_scan": TableGrants(insert=True),
+}
+
 #: the clerk: issue, check, reprint, reconcile
 CLERK_POLICY: dict[str, TableGrants] = {
     "series": TableGrants(update=("next_counter", "code_count")),
     "batch": TableGrants(insert=True),
-    "issued_code": TableGrants(insert=True, update=("print_count", "last_seen_at", "last_seen_where")),
+    "issued_code": TableGrants(
+        insert=True, update=("print_count", "last_seen_at", "last_seen_where", "expected_where")
+    ),
     "log_entry": TableGrants(insert=True),
     "log_head": TableGrants(update=("last_id", "last_hash")),
     "alembic_version": TableGrants(),
+    **COUNT_GRANTS,
 }
 
 #: the admin: the clerk's acts plus series definition, void, replace, restore, import
@@ -72,11 +82,13 @@ ADMIN_POLICY: dict[str, TableGrants] = {
         update=(
             "status", "holder", "note", "void_reason", "voided_at", "voided_by",
             "replaces_id", "replaced_by_id", "print_count", "last_seen_at", "last_seen_where",
+            "expected_where",
         ),
     ),
     "log_entry": TableGrants(insert=True),
     "log_head": TableGrants(update=("last_id", "last_hash")),
     "alembic_version": TableGrants(),
+    **COUNT_GRANTS,
 }
 
 

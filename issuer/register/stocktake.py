@@ -112,6 +112,47 @@ class Sighting:
     where: str | None = None
 
 
+def write_sightings(
+    session: Session,
+    register: Register,
+    series: Series,
+    sightings: Sequence[Sighting],
+    *,
+    source: str,
+    summary: Mapping[str, Any],
+    now: datetime,
+    progress: Callable[[int], None] | None = None,
+) -> int:
+    """Inside a writing transaction: a ``seen`` entry per sighting, each code's last-seen
+    time and place moved forward (never back), and one ``stocktake`` entry summing up."""
+    column = IssuedCode.__table__.c.last_seen_at
+    updates = []
+    entries = []
+    for sighting in sightings:
+        when = sighting.at or now
+        where = sighting.where[:WHERE_WIDTH] if sighting.where else None
+        bound = bind_value(session, column, when)  # type: ignore[arg-type]
+        updates.append((bound, where, sighting.code, series.id, bound))
+        detail: dict[str, Any] = {"seen_at": timestamp_text(when), "source": source, "status": sighting.status}
+        if where:
+            detail["where"] = where
+        entries.append(NewEntry("seen", series.id, sighting.code, None, detail))
+    execute_many(
+        session,
+        "UPDATE issued_code SET last_seen_at = ?, last_seen_where = ? "
+        "WHERE code = ? AND series_id = ? AND (last_seen_at IS NULL OR last_seen_at <= ?)",
+        updates,
+    )
+    for at in range(0, len(entries), LOG_CHUNK):
+        part = entries[at: at + LOG_CHUNK]
+        append_entries(session, part, actor=register.actor, at=now)
+        if progress is not None:
+            progress(len(part))
+    detail = {"source": source, "recorded": len(entries), **summary}
+    append_entries(session, [NewEntry("stocktake", series.id, None, None, detail)], actor=register.actor, at=now)
+    return len(entries)
+
+
 def record_sightings(
     register: Register,
     key: str,
@@ -127,33 +168,10 @@ def record_sightings(
 
     def work(session: Session) -> int:
         series = get_series(session, key)
-        now = register.clock()
-        column = IssuedCode.__table__.c.last_seen_at
-        updates = []
-        entries = []
-        for sighting in sightings:
-            when = sighting.at or now
-            where = sighting.where[:WHERE_WIDTH] if sighting.where else None
-            bound = bind_value(session, column, when)  # type: ignore[arg-type]
-            updates.append((bound, where, sighting.code, series.id, bound))
-            detail: dict[str, Any] = {"seen_at": timestamp_text(when), "source": source, "status": sighting.status}
-            if where:
-                detail["where"] = where
-            entries.append(NewEntry("seen", series.id, sighting.code, None, detail))
-        execute_many(
-            session,
-            "UPDATE issued_code SET last_seen_at = ?, last_seen_where = ? "
-            "WHERE code = ? AND series_id = ? AND (last_seen_at IS NULL OR last_seen_at <= ?)",
-            updates,
-        )
-        for at in range(0, len(entries), LOG_CHUNK):
-            part = entries[at: at + LOG_CHUNK]
-            append_entries(session, part, actor=register.actor, at=now)
-            if progress is not None:
-                progress(len(part))
-        detail = {"source": source, "recorded": len(entries), **summary}
-        append_entries(session, [NewEntry("stocktake", series.id, None, None, detail)], actor=register.actor, at=now)
-        return len(entries)
+        return write_sightings(
+            session, register, series, sightings, source=source, summary=summary, now=register.clock(),
+            progress=progress,
+        )  # fmt: skip
 
     return register.write(work)
 
@@ -166,6 +184,7 @@ __all__ = [
     "held_codes",
     "last_seen",
     "record_sightings",
+    "write_sightings",
     "series_codes",
     "void_details",
 ]

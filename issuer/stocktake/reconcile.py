@@ -3,8 +3,12 @@ against the register.
 
 Every scanned line falls in one class:
 
-``issued``      a code the register holds and that is in use;
-``voided``      a code the register voided (lost, replaced): it should have been pulled;
+``issued``        a code the register holds and that is in use, found where expected;
+``elsewhere``     found, but not at its expected place (expected vs seen in the report);
+``out_of_scope``  issued in this series, but outside the count's scope (another range,
+                  batch, holder or place);
+``voided``        a code the register voided (lost, replaced): it should have been pulled;
+``other_series``  a code another series of the register holds (named);
 ``bad_check``   the check character does not match: a misread or mistyped code;
 ``not_issued``  a valid code the register never issued (a typo the check missed, or a
                 forgery);
@@ -16,9 +20,10 @@ two tags with one number), and ``missing`` are the issued codes nobody scanned. 
 common error away (:func:`issuer.checking.neighbours.neighbours`, ranked as at the desk); among
 them a code that is also missing from the scan is the likeliest, and is offered first.
 
-Counts of ``issued``, ``voided``, ``bad_check`` and ``not_issued`` are of distinct
-codes (a tag scanned twice is one item); ``malformed`` counts lines; ``duplicates``
-counts codes scanned more than once; ``missing`` counts issued codes not scanned.
+Counts of codes are of distinct codes (a tag scanned twice is one item); ``malformed``
+counts lines; ``duplicates`` counts codes scanned more than once; ``missing`` counts
+expected codes (the scope's issued codes) not scanned. Blank and comment lines are
+counted beside them, alike in every file format.
 
 The work is done by set operations in memory over one query's worth of the series'
 codes and a bulk reading of the scans (:func:`issuer.readers.bulkread.read_codes`): a million
@@ -28,189 +33,36 @@ scans never cost a million queries.
 from __future__ import annotations
 
 from collections import Counter
-from collections.abc import Callable, Iterator, Sequence
-from dataclasses import dataclass, field
-from datetime import UTC, datetime
+from collections.abc import Callable, Sequence
+from datetime import datetime
 from pathlib import Path
 from typing import Any
 
 from issuer.checking.codes import CodeFormat
-from issuer.errors import InvalidFormat
 from issuer.readers.bulkread import BAD_CHECK, MALFORMED, read_codes
 from issuer.readers.scanfile import Table, read_table
+from issuer.register.counting import CountInfo, scope_query_filter
 from issuer.register.models import ISSUED, VOIDED
+from issuer.register.places import codes_of_other_series, expected_places, same_place, scope_codes
 from issuer.register.series import code_format, get_series
-from issuer.register.stocktake import (
-    LastSeen,
-    Sighting,
-    VoidDetail,
-    held_codes,
-    last_seen,
-    record_sightings,
-    void_details,
-)
+from issuer.register.stocktake import Sighting, held_codes, last_seen, record_sightings, void_details
 from issuer.register.store import Register
-
-#: the classes of a scanned line, in report order
-LINE_CLASSES = ("issued", "voided", "bad_check", "not_issued", "malformed")
-#: the keys of ``counts``
-COUNT_KEYS = ("issued", "voided", "bad_check", "not_issued", "malformed", "duplicates", "missing")
-#: suggestions kept per line
-MAX_SUGGESTIONS = 5
+from issuer.stocktake.results import (
+    COUNT_KEYS,
+    LINE_CLASSES,
+    MAX_SUGGESTIONS,
+    Likely,
+    MissingCode,
+    Reconciliation,
+    ScanLine,
+)
+from issuer.stocktake.zones import parse_scan_time, zone_named
 
 #: header names read as the time of a scan, and as its place
 TIME_COLUMNS = ("scanned_at", "timestamp", "time", "datetime", "date_time", "scan_time", "seen_at", "when", "date")
 WHERE_COLUMNS = (
     "location", "where", "site", "shelf", "room", "bin", "zone", "place", "area", "station", "reader",
 )  # fmt: skip
-
-
-@dataclass(frozen=True)
-class Likely:
-    """An issued code one common error away from what was scanned."""
-
-    code: str
-    display: str
-    error: str
-    description: str
-    missing: bool
-
-    def as_dict(self) -> dict[str, Any]:
-        return dict(self.__dict__)
-
-
-@dataclass(frozen=True)
-class ScanLine:
-    """One scanned line, classified."""
-
-    line: int
-    scanned: str
-    code: str | None
-    display: str | None
-    status: str
-    times: int
-    detail: str
-    likely: tuple[Likely, ...]
-    extra: dict[str, str]
-
-
-@dataclass(frozen=True)
-class MissingCode:
-    code: str
-    display: str
-    last_seen_at: datetime | None
-    last_seen_where: str | None
-    perhaps: str | None  # a scanned line that is probably this code, mistyped
-
-    def as_dict(self) -> dict[str, Any]:
-        return dict(self.__dict__)
-
-
-@dataclass
-class Reconciliation:
-    """A stocktake reconciled against one series, kept column-wise so that a million
-    lines cost no more than they must; :meth:`lines` yields them one by one."""
-
-    series: str
-    source: str
-    shape: CodeFormat = field(repr=False)
-    table: Table = field(repr=False)
-    canonical: list[str | None] = field(repr=False)
-    statuses: list[str] = field(repr=False)
-    times: Counter[str] = field(repr=False)
-    reasons: dict[int, str] = field(repr=False)
-    voids: dict[str, VoidDetail] = field(repr=False)
-    likely: dict[str, tuple[Likely, ...]] = field(repr=False)
-    likely_by_line: dict[int, tuple[Likely, ...]] = field(repr=False)
-    missing: list[str] = field(repr=False)
-    seen_before: dict[str, LastSeen] = field(repr=False)
-    perhaps: dict[str, int] = field(repr=False)
-    counts: dict[str, int] = field(default_factory=dict)
-    scans: int = 0
-
-    @property
-    def time_column(self) -> str | None:
-        return self.table.roles.get("time")
-
-    @property
-    def where_column(self) -> str | None:
-        return self.table.roles.get("where")
-
-    @property
-    def clean(self) -> bool:
-        """Every scan an issued code, each once, and nothing missing."""
-        return all(self.counts[key] == 0 for key in COUNT_KEYS if key != "issued")
-
-    def detail(self, index: int, code: str | None, status: str) -> str:
-        """What the report says about line ``index`` beside its status."""
-        if status == "malformed":
-            return self.reasons.get(index, "")
-        if status == "voided" and code is not None:
-            void = self.voids.get(code)
-            if void is None:
-                return "voided"
-            text = f"voided: {void.reason}" if void.reason else "voided"
-            return f"{text}; replaced by {void.replacement}" if void.replacement else text
-        if status == "bad_check":
-            return "the check character does not match: a misread or mistyped code"
-        if status == "not_issued":
-            return "a valid code this register never issued"
-        return ""
-
-    def line(self, index: int) -> ScanLine:
-        """The ``index``-th scanned line (counting from 0, blank lines left out)."""
-        table = self.table
-        code, status = self.canonical[index], self.statuses[index]
-        if code is not None:
-            likely = self.likely.get(code, ())
-        else:
-            likely = self.likely_by_line.get(index, ())
-        return ScanLine(
-            line=table.lines[index],
-            scanned=table.codes[index],
-            code=code,
-            display=self.shape.display(code) if code is not None else None,
-            status=status,
-            times=self.times[code] if code is not None else 1,
-            detail=self.detail(index, code, status),
-            likely=likely,
-            extra={header: values[index] for header, values in table.columns.items()},
-        )
-
-    def lines(self, *, skip_issued: bool = False) -> Iterator[ScanLine]:
-        """Every scanned line in file order (only those not simply issued, if asked)."""
-        if skip_issued:
-            for index, status in enumerate(self.statuses):
-                if status != ISSUED:
-                    yield self.line(index)
-            return
-        for index in range(len(self.statuses)):
-            yield self.line(index)
-
-    def missing_codes(self) -> Iterator[MissingCode]:
-        """The issued codes nobody scanned, in code order."""
-        for code in self.missing:
-            seen = self.seen_before.get(code)
-            yield MissingCode(
-                code,
-                self.shape.display(code),
-                seen.at if seen else None,
-                seen.where if seen else None,
-                f"line {self.perhaps[code]}" if code in self.perhaps else None,
-            )
-
-    def duplicates(self) -> list[tuple[str, int, list[int], list[str]]]:
-        """(code, times scanned, lines, distinct places) for each code scanned twice or more."""
-        repeated = {code for code, n in self.times.items() if n > 1}
-        lines: dict[str, list[int]] = {code: [] for code in repeated}
-        places: dict[str, dict[str, None]] = {code: {} for code in repeated}
-        where = self.table.role("where")
-        for index, (number, code) in enumerate(zip(self.table.lines, self.canonical)):
-            if code in repeated:
-                lines[code].append(number)
-                if where is not None and where[index]:
-                    places[code][where[index]] = None
-        return [(code, self.times[code], lines[code], list(places[code])) for code in lines]
 
 
 def read_scans(
@@ -247,32 +99,75 @@ def _likely(
     return tuple(sorted(found, key=lambda item: not item.missing))
 
 
-def reconcile(register: Register, key: str, table: Table) -> Reconciliation:
-    """Reconcile the scans in ``table`` against series ``key``."""
-    import numpy as np
+def _seen_where(table: Table, count: CountInfo | None) -> list[str] | None:
+    """Where each line was seen: its place column, else the place a count covers."""
+    default = count.scope_text if count is not None and count.scope == "where" else None
+    where = table.role("where")
+    if where is None:
+        return [default] * len(table) if default else None
+    return [place or default for place in where] if default else where  # type: ignore[misc]
 
+
+def _away(canonical: Sequence[str | None], seen: list[str] | None, places: dict[str, str]) -> set[str]:
+    """Codes seen only at places other than their expected one (a line with no place
+    proves nothing either way)."""
+    if not places or seen is None:
+        return set()
+    home: dict[str, bool] = {}
+    for code, where in zip(canonical, seen):
+        expected = places.get(code) if code is not None else None
+        if expected is None or not where:
+            continue
+        home[code] = home.get(code, False) or same_place(expected, where)  # type: ignore[index]
+    return {code for code, at_home in home.items() if not at_home}
+
+
+def reconcile(
+    register: Register, key: str, table: Table, *, count: CountInfo | None = None, zone: str = "UTC"
+) -> Reconciliation:
+    """Reconcile the scans in ``table`` against series ``key`` (within ``count``'s scope
+    when given); ``zone`` is the zone of scan times written without one."""
     from issuer.checking.neighbours import neighbours, omission_insertion_candidates
 
+    seen = _seen_where(table, count)
+    where_count = count.scope_text if count is not None and count.scope == "where" else None
     with register.reading() as session:
         series = get_series(session, key)
         shape = code_format(series)
         held = held_codes(session, series)
         issued, voided = held.issued, held.voided
         read = read_codes(shape, table.codes)
-        states = read.state.tolist()
         canonical = read.canonical
         statuses = [
             "malformed" if state == MALFORMED else "bad_check" if state == BAD_CHECK
             else ISSUED if code in issued else VOIDED if code in voided else "not_issued"
-            for state, code in zip(states, canonical)
+            for state, code in zip(read.state.tolist(), canonical)
         ]  # fmt: skip
+        expected = issued
+        if count is not None and count.scope != "all":
+            expected = scope_codes(session, series, *scope_query_filter(count)) & issued
+        places = expected_places(session, series)
+        strays = {i: table.codes[i] for i, s in enumerate(statuses) if s in ("malformed", "bad_check", "not_issued")}
+        others = codes_of_other_series(session, series, strays)
         times: Counter[str] = Counter(canonical)  # type: ignore[arg-type]
         times.pop(None, None)  # type: ignore[call-overload]
         voided_seen = voided.intersection(times)
         voids = void_details(session, voided_seen)
-        missing = sorted(issued.difference(times))
+        missing = sorted(expected.difference(times))
         seen_before = last_seen(session, series) if missing else {}
-    unknown = set(times).difference(issued, voided)  # bad check or never issued
+    away = _away(canonical, seen, places)
+    for index, status in enumerate(statuses):
+        if status == ISSUED:
+            code = canonical[index]
+            if expected is not issued and code not in expected:
+                moved = where_count is not None and code in places and not same_place(places[code], where_count)  # type: ignore[index]
+                statuses[index] = "elsewhere" if moved else "out_of_scope"
+            elif code in away:
+                statuses[index] = "elsewhere"
+        elif index in others:
+            statuses[index] = "other_series"
+    unknown = {code for code in times if code not in issued and code not in voided}  # bad check or never issued
+    unknown.difference_update(canonical[index] for index in others)
     first_line: dict[str, int] = {}
     if unknown:
         for number, scanned in zip(table.lines, canonical):
@@ -283,6 +178,8 @@ def reconcile(register: Register, key: str, table: Table) -> Reconciliation:
         likely[code] = _likely(shape, neighbours(shape, code), issued, times)
     likely_by_line: dict[int, tuple[Likely, ...]] = {}
     for index in read.reasons:
+        if index in others:
+            continue
         candidates = omission_insertion_candidates(shape, table.codes[index])
         if candidates:
             likely_by_line[index] = _likely(shape, candidates, issued, times)
@@ -293,16 +190,8 @@ def reconcile(register: Register, key: str, table: Table) -> Reconciliation:
     for index, options in likely_by_line.items():
         if options and options[0].missing:
             perhaps.setdefault(options[0].code, table.lines[index])
-    bad = {canonical[index] for index in np.flatnonzero(read.state == BAD_CHECK).tolist()}
-    counts = {
-        "issued": len(times) - len(unknown) - len(voided_seen),
-        "voided": len(voided_seen),
-        "bad_check": len(bad),
-        "not_issued": len(unknown) - len(bad),
-        "malformed": len(read.reasons),
-        "duplicates": sum(1 for n in times.values() if n > 1),
-        "missing": len(missing),
-    }
+    counts = _counts(statuses, canonical, others, times, len(missing))
+    counts["blank_lines"], counts["comment_lines"] = table.blank_lines, table.comment_lines
     return Reconciliation(
         series=key,
         source=table.source,
@@ -320,39 +209,59 @@ def reconcile(register: Register, key: str, table: Table) -> Reconciliation:
         perhaps=perhaps,
         counts=counts,
         scans=len(table),
+        places=places,
+        seen_where=seen,
+        others=others,
+        scope=count.describe_scope(lambda base: shape.display(shape.code_for_base(base))) if count is not None else f"all of series {key}",
+        zone=zone,
+        expected=len(expected),
+        found=len(expected) - len(missing),
     )
 
 
-def parse_scan_time(text: str, line: int) -> datetime:
-    """A scan's time: ISO 8601 (``2026-03-14T09:30:00+01:00``, ``2026-03-14 09:30``,
-    ``2026-03-14``); a time without a zone is taken as UTC."""
-    try:
-        moment = datetime.fromisoformat(text.strip())
-    except ValueError:
-        raise InvalidFormat(
-            f"line {line}: {text!r} is not a date and time like 2026-03-14T09:30:00Z"
-        ) from None
-    return moment.replace(tzinfo=UTC) if moment.tzinfo is None else moment.astimezone(UTC)
+def _counts(
+    statuses: list[str], canonical: list[str | None], others: dict[int, Any], times: Counter[str], missing: int
+) -> dict[str, int]:
+    """Distinct codes per class (lines for malformed, another series' codes for
+    ``other_series``); issued is what is left of the distinct codes scanned."""
+    distinct: dict[str, set[Any]] = {name: set() for name in LINE_CLASSES}
+    for index, status in enumerate(statuses):
+        if status == ISSUED:
+            continue
+        if status == "malformed":
+            distinct[status].add(index)
+        elif status == "other_series":
+            distinct[status].add(others[index].code)
+        else:
+            distinct[status].add(canonical[index])
+    counts = {name: len(found) for name, found in distinct.items()}
+    counted = set().union(*(distinct[name] for name in LINE_CLASSES if name not in ("issued", "malformed", "other_series")))
+    counted.update(canonical[index] for index in others if canonical[index] is not None)
+    counts["issued"] = len(times) - len(counted)
+    counts["duplicates"] = sum(1 for n in times.values() if n > 1)
+    counts["missing"] = missing
+    return {key: counts[key] for key in COUNT_KEYS}
 
 
 def sightings(recon: Reconciliation) -> list[Sighting]:
-    """One sighting per code found in the register (issued or voided): its latest scan
-    in the file, with that scan's time and place."""
+    """One sighting per code found in the register (issued or voided): its latest scan,
+    with that scan's time (read in the count's zone when written without one) and place."""
     times_text = recon.table.role("time")
-    where_text = recon.table.role("where")
+    where_text = recon.seen_where
+    zone = zone_named(recon.zone)
     latest: dict[str, tuple[datetime | None, str | None, str]] = {}
     for index, (number, code, status) in enumerate(
         zip(recon.table.lines, recon.canonical, recon.statuses)
     ):
-        if status not in (ISSUED, VOIDED) or code is None:
+        if status not in (ISSUED, VOIDED, "elsewhere", "out_of_scope") or code is None:
             continue
         when = None
         if times_text is not None and times_text[index]:
-            when = parse_scan_time(times_text[index], number)
+            when = parse_scan_time(times_text[index], number, zone)
         where = where_text[index] or None if where_text is not None else None
         before = latest.get(code)
         if before is None or when is None or (before[0] is not None and when >= before[0]):
-            latest[code] = (when, where, status)
+            latest[code] = (when, where, VOIDED if status == VOIDED else ISSUED)
     return [Sighting(code, status, when, where) for code, (when, where, status) in latest.items()]
 
 
@@ -387,6 +296,7 @@ __all__ = [
     "MissingCode",
     "Reconciliation",
     "ScanLine",
+    "parse_scan_time",
     "read_scans",
     "reconcile",
     "record_seen",

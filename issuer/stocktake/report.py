@@ -8,12 +8,12 @@ from collections.abc import Iterator
 from datetime import datetime
 from typing import IO, Any
 
-from issuer.stocktake.reconcile import Reconciliation, ScanLine
+from issuer.stocktake.results import LINE_CLASSES, Reconciliation, ScanLine
 
 #: the report's own columns; the scan file's other columns follow them
 REPORT_COLUMNS = (
     "line", "scanned", "code", "status", "times_scanned", "detail",
-    "likely_code", "likely_error", "last_seen_at", "last_seen_where",
+    "likely_code", "likely_error", "last_seen_at", "last_seen_where", "expected_place",
 )  # fmt: skip
 
 
@@ -40,19 +40,21 @@ def report_rows(recon: Reconciliation) -> Iterator[list[Any]]:
     extras = list(recon.table.columns.values())
     times = recon.times
     table = recon.table
+    places = recon.places
     for index, (number, text, code, status) in enumerate(
         zip(table.lines, table.codes, recon.canonical, recon.statuses)
     ):
         cells = [values[index] for values in extras]
+        place = places.get(code, "") if code is not None else ""
         if status == "issued":
-            yield [number, text, code, status, times[code], "", "", "", "", "", *cells]  # type: ignore[index]
+            yield [number, text, code, status, times[code], "", "", "", "", "", place, *cells]  # type: ignore[index]
             continue
         likely = recon.likely.get(code, ()) if code is not None else recon.likely_by_line.get(index, ())
         first = likely[0] if likely else None
         yield [
             number, text, code or "", status, times[code] if code is not None else 1,
             recon.detail(index, code, status), first.code if first else "",
-            first.description if first else "", "", "", *cells,
+            first.description if first else "", "", "", place, *cells,
         ]  # fmt: skip
     blanks = [""] * len(extras)
     for missing in recon.missing_codes():
@@ -61,7 +63,7 @@ def report_rows(recon: Reconciliation) -> Iterator[list[Any]]:
             detail += f"; perhaps scanned with a typo on {missing.perhaps}"
         yield [
             "", "", missing.code, "missing", 0, detail, "", "",
-            iso(missing.last_seen_at) or "", missing.last_seen_where or "", *blanks,
+            iso(missing.last_seen_at) or "", missing.last_seen_where or "", places.get(missing.code, ""), *blanks,
         ]  # fmt: skip
 
 
@@ -80,7 +82,34 @@ def _scan_fields(recon: Reconciliation, line: ScanLine) -> dict[str, Any]:
         fields["scanned_at"] = line.extra.get(recon.time_column) or None
     if recon.where_column:
         fields["location"] = line.extra.get(recon.where_column) or None
+    if "file" in line.extra:  # a count's line comes from one of its files
+        fields["file"] = line.extra["file"]
     return fields
+
+
+def _entry(recon: Reconciliation, index: int, line: ScanLine) -> dict[str, Any]:
+    """One listed code of a class other than issued and malformed."""
+    entry: dict[str, Any] = {
+        "code": line.code, "display": line.display, "line": line.line, "times": line.times,
+        **_scan_fields(recon, line),
+    }  # fmt: skip
+    if line.status == "voided":
+        void = recon.voids.get(line.code)  # type: ignore[arg-type]
+        entry["reason"] = void.reason if void else None
+        entry["replacement"] = void.replacement if void else None
+    elif line.status == "elsewhere":
+        entry["expected_place"] = recon.places.get(line.code)  # type: ignore[arg-type]
+        entry["seen_at_places"] = sorted(
+            {recon.seen_where[i] for i, code in enumerate(recon.canonical) if code == line.code and recon.seen_where[i]}
+        ) if recon.seen_where is not None else []  # fmt: skip
+    elif line.status == "other_series":
+        other = recon.others[index]
+        entry.update(code=other.code, display=None, scanned=line.scanned, series=other.series,
+                     series_title=other.title, status=other.status)
+    elif line.status in ("bad_check", "not_issued"):
+        entry["scanned"] = line.scanned
+        entry["likely"] = [item.as_dict() for item in line.likely]
+    return entry
 
 
 def as_json(recon: Reconciliation) -> dict[str, Any]:
@@ -89,9 +118,7 @@ def as_json(recon: Reconciliation) -> dict[str, Any]:
     and places, missing codes with when and where they were last seen."""
     from issuer.register.bulk import display_texts
 
-    lists: dict[str, list[dict[str, Any]]] = {
-        key: [] for key in ("issued", "voided", "bad_check", "not_issued", "malformed")
-    }
+    lists: dict[str, list[dict[str, Any]]] = {key: [] for key in LINE_CLASSES}
     # issued codes straight from the columns (there may be a million), the rest line by line
     first_index: dict[str, int] = {}
     for index, (code, status) in enumerate(zip(recon.canonical, recon.statuses)):
@@ -109,40 +136,37 @@ def as_json(recon: Reconciliation) -> dict[str, Any]:
             entry["location"] = where[index] or None
         lists["issued"].append(entry)
     listed: set[str] = set()
-    for line in recon.lines(skip_issued=True):
-        if line.status == "malformed":
+    for index, status in enumerate(recon.statuses):
+        if status == "issued":
+            continue
+        line = recon.line(index)
+        if status == "malformed":
             lists["malformed"].append({
                 "line": line.line, "scanned": line.scanned, "reason": line.detail,
                 "likely": [item.as_dict() for item in line.likely], **_scan_fields(recon, line),
             })  # fmt: skip
             continue
-        assert line.code is not None
-        if line.code in listed:
+        entry = _entry(recon, index, line)
+        if entry["code"] in listed:
             continue
-        listed.add(line.code)
-        entry = {
-            "code": line.code, "display": line.display, "line": line.line, "times": line.times,
-            **_scan_fields(recon, line),
-        }  # fmt: skip
-        if line.status == "voided":
-            void = recon.voids.get(line.code)
-            entry["reason"] = void.reason if void else None
-            entry["replacement"] = void.replacement if void else None
-        else:
-            entry["scanned"] = line.scanned
-            entry["likely"] = [item.as_dict() for item in line.likely]
-        lists[line.status].append(entry)
+        listed.add(entry["code"])
+        lists[status].append(entry)
     duplicates = [
         {"code": code, "display": recon.shape.display(code), "times": times, "lines": lines, "locations": places}
         for code, times, lines, places in recon.duplicates()
     ]
     missing = [
-        {**item.as_dict(), "last_seen_at": iso(item.last_seen_at)} for item in recon.missing_codes()
+        {**item.as_dict(), "last_seen_at": iso(item.last_seen_at), "expected_place": recon.places.get(item.code)}
+        for item in recon.missing_codes()
     ]
     return {
         "series": recon.series,
         "source": recon.source,
+        "scope": recon.scope,
+        "zone": recon.zone,
         "scans": recon.scans,
+        "expected": recon.expected,
+        "found": recon.found,
         "counts": dict(recon.counts),
         **lists,
         "duplicates": duplicates,

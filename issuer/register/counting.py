@@ -1,0 +1,424 @@
+"""The register's side of a stock count that spans days: the count, the scan files added
+to it (each once, by digest) and their scanned lines, and the frozen result.
+
+Each file goes in whole in one transaction, or not at all: a desk killed while adding
+leaves nothing behind, and adding the file again then works. Two desks adding files to
+one count at once both land (the count row is share-locked; closing takes it exclusively,
+so nothing is added to a count while it closes). The reading of scans against the register
+happens above (:mod:`issuer.stocktake.counts`), from the rows kept here.
+"""
+
+from __future__ import annotations
+
+import json
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass, field
+from datetime import datetime
+from typing import Any
+
+from sqlalchemy import func, select
+from sqlalchemy.exc import IntegrityError
+from sqlalchemy.orm import Session
+
+from issuer.errors import Conflict, InvalidFormat, NotFound
+from issuer.register.driver import bind_value, execute_many
+from issuer.register.log import NewEntry, append_entries, append_entry
+from issuer.register.models import (
+    COUNT_CLOSED,
+    COUNT_OPEN,
+    Batch,
+    Series,
+    StockCount,
+    StockCountFile,
+    StockCountScan,
+)
+from issuer.register.places import clean_place
+from issuer.register.series import code_format, get_series
+from issuer.register.store import Register
+
+#: scanned lines inserted per statement round
+SCAN_CHUNK = 20_000
+#: the longest count name, scanned text kept, and scanner name
+NAME_WIDTH = 64
+SCANNED_WIDTH = 200
+SCANNER_WIDTH = 200
+FILE_NAME_WIDTH = 200
+#: scopes of a count
+SCOPES = ("all", "where", "range", "batch", "holder")
+
+
+@dataclass(frozen=True)
+class CountScope:
+    """What a count expects: the whole series, or one place, a range of codes (as typed),
+    one batch, or one holder's codes."""
+
+    kind: str = "all"
+    text: str | None = None
+    first: str | None = None
+    last: str | None = None
+    batch: int | None = None
+
+
+@dataclass(frozen=True)
+class CountInfo:
+    name: str
+    series: str
+    scope: str
+    scope_text: str | None
+    scope_first: int | None
+    scope_last: int | None
+    zone: str
+    state: str
+    opened_at: datetime
+    opened_by: str
+    closed_at: datetime | None
+    closed_by: str | None
+    files: int = 0
+    scans: int = 0
+    result: dict[str, Any] | None = field(default=None, repr=False)
+
+    def describe_scope(self, display: Callable[[int], str] | None = None) -> str:
+        """The scope in words: ``all of series tools``, ``place Shelf A``, ..."""
+        if self.scope == "where":
+            return f"place {self.scope_text}"
+        if self.scope == "holder":
+            return f"holder {self.scope_text}"
+        if self.scope == "batch":
+            return f"batch {self.scope_first}"
+        if self.scope == "range" and self.scope_first is not None and self.scope_last is not None:
+            if display is None:
+                return f"numbers {self.scope_first}..{self.scope_last}"
+            return f"codes {display(self.scope_first)} to {display(self.scope_last)}"
+        return f"all of series {self.series}"
+
+    def as_dict(self) -> dict[str, Any]:
+        data = {key: value for key, value in self.__dict__.items() if key != "result"}
+        for key in ("opened_at", "closed_at"):
+            data[key] = data[key].isoformat() if data[key] is not None else None
+        return data
+
+
+@dataclass(frozen=True)
+class ScanRow:
+    """One scanned line of a file: its number, the text as scanned, when and where."""
+
+    line: int
+    scanned: str
+    at: datetime | None = None
+    where: str | None = None
+
+
+@dataclass(frozen=True)
+class ScanFile:
+    """A scan file read and ready to add: its digest names it for good."""
+
+    digest: str
+    name: str
+    scanner: str | None
+    zone: str
+    rows: Sequence[ScanRow]
+    blank_lines: int = 0
+    comment_lines: int = 0
+
+
+@dataclass(frozen=True)
+class FileInfo:
+    name: str
+    scanner: str | None
+    digest: str
+    zone: str
+    scans: int
+    blank_lines: int
+    comment_lines: int
+    added_at: datetime
+    added_by: str
+
+    def as_dict(self) -> dict[str, Any]:
+        return {**self.__dict__, "added_at": self.added_at.isoformat()}
+
+
+def check_count_name(name: str) -> str:
+    text = name.strip()
+    if not text or len(text) > NAME_WIDTH or not text.isprintable():
+        raise InvalidFormat(f"a count's name is 1 to {NAME_WIDTH} printable characters, not {name!r}")
+    return text
+
+
+def _info(session: Session, count: StockCount, series_key: str | None = None) -> CountInfo:
+    files, scans = session.execute(
+        select(func.count(StockCountFile.id), func.coalesce(func.sum(StockCountFile.scans), 0)).where(
+            StockCountFile.count_id == count.id
+        )
+    ).one()
+    key = series_key or session.get(Series, count.series_id).key  # type: ignore[union-attr]
+    return CountInfo(
+        count.name, key, count.scope, count.scope_text, count.scope_first, count.scope_last, count.zone,
+        count.state, count.opened_at, count.opened_by, count.closed_at, count.closed_by, int(files),
+        int(scans), json.loads(count.result) if count.result else None,
+    )  # fmt: skip
+
+
+def get_count(session: Session, name: str, *, lock: str | None = None) -> StockCount:
+    """The count called ``name`` (``lock``: ``share`` or ``update`` on PostgreSQL)."""
+    statement = select(StockCount).where(StockCount.name == name.strip())
+    if lock is not None:
+        statement = statement.with_for_update(read=lock == "share").execution_options(populate_existing=True)
+    count = session.scalars(statement).first()
+    if count is None:
+        raise NotFound(f"no count called {name.strip()!r} (see 'issuer stocktake list')")
+    return count
+
+
+def count_info(register: Register, name: str) -> CountInfo:
+    with register.reading() as session:
+        return _info(session, get_count(session, name))
+
+
+def list_counts(register: Register) -> list[CountInfo]:
+    with register.reading() as session:
+        counts = session.scalars(select(StockCount).order_by(StockCount.opened_at, StockCount.id)).all()
+        return [_info(session, count) for count in counts]
+
+
+def _scope_numbers(session: Session, series: Series, scope: CountScope) -> tuple[str | None, int | None, int | None]:
+    if scope.kind not in SCOPES:
+        raise InvalidFormat(f"a count's scope is one of {', '.join(SCOPES)}, not {scope.kind!r}")
+    if scope.kind in ("where", "holder"):
+        text = clean_place(scope.text or "") if scope.kind == "where" else (scope.text or "").strip()
+        if not text:
+            raise InvalidFormat(f"a {scope.kind} count needs the {scope.kind} it covers")
+        return text, None, None
+    if scope.kind == "batch":
+        batch = session.get(Batch, scope.batch) if scope.batch is not None else None
+        if batch is None or batch.series_id != series.id:
+            raise NotFound(f"series {series.key} has no batch {scope.batch}")
+        return None, batch.id, None
+    if scope.kind == "range":
+        shape = code_format(series)
+        if not scope.first or not scope.last:
+            raise InvalidFormat("a range count needs --from CODE and --to CODE")
+        first, last = (shape.base_of(shape.validate(text)) for text in (scope.first, scope.last))
+        if first > last:
+            raise InvalidFormat(f"--from {scope.first} comes after --to {scope.last}; swap them")
+        return None, first, last
+    return None, None, None
+
+
+def open_count(register: Register, name: str, key: str, scope: CountScope, *, zone: str) -> CountInfo:
+    """Open a count called ``name`` of series ``key`` within ``scope``; scan times written
+    without a zone will be read in ``zone``."""
+    name = check_count_name(name)
+
+    def work(session: Session) -> CountInfo:
+        series = get_series(session, key)
+        if session.scalars(select(StockCount.id).where(StockCount.name == name)).first() is not None:
+            raise Conflict(f"a count called {name!r} exists already; choose another name")
+        text, first, last = _scope_numbers(session, series, scope)
+        now = register.clock()
+        count = StockCount(
+            name=name, series_id=series.id, scope=scope.kind, scope_text=text, scope_first=first,
+            scope_last=last, zone=zone, state=COUNT_OPEN, opened_at=now, opened_by=register.actor,
+        )  # fmt: skip
+        session.add(count)
+        session.flush()
+        detail = {"count": name, "scope": scope.kind, "zone": zone}
+        if text is not None:
+            detail["scope_text"] = text
+        append_entry(session, NewEntry("count_open", series.id, None, None, detail), actor=register.actor, at=now)
+        return _info(session, count, series.key)
+
+    try:
+        return register.write(work)
+    except IntegrityError:
+        raise Conflict(f"a count called {name!r} exists already; choose another name") from None
+
+
+def add_scan_file(
+    register: Register, name: str, scan_file: ScanFile, *, progress: Callable[[int], None] | None = None
+) -> FileInfo:
+    """Add one scan file to the open count ``name``, whole, in one transaction; a file
+    whose digest the count holds already is refused."""
+    if not scan_file.rows:
+        raise InvalidFormat(f"{scan_file.name} holds no scans")
+
+    def work(session: Session) -> FileInfo:
+        count = get_count(session, name, lock="share")
+        if count.state != COUNT_OPEN:
+            raise Conflict(f"count {count.name!r} is closed; open a new count to scan again")
+        _refuse_twice(session, count, scan_file)
+        now = register.clock()
+        record = StockCountFile(
+            count_id=count.id, digest=scan_file.digest, name=scan_file.name[-FILE_NAME_WIDTH:],
+            scanner=(scan_file.scanner or None) and scan_file.scanner[:SCANNER_WIDTH], zone=scan_file.zone,  # type: ignore[index]
+            scans=len(scan_file.rows), blank_lines=scan_file.blank_lines, comment_lines=scan_file.comment_lines,
+            added_at=now, added_by=register.actor,
+        )  # fmt: skip
+        session.add(record)
+        session.flush()
+        column = StockCountScan.__table__.c.seen_at
+        sql = (
+            "INSERT INTO stock_count_scan (count_id, file_id, line, scanned, seen_at, seen_where) "
+            "VALUES (?, ?, ?, ?, ?, ?)"
+        )
+        rows = scan_file.rows
+        for at in range(0, len(rows), SCAN_CHUNK):
+            part = rows[at: at + SCAN_CHUNK]
+            execute_many(session, sql, [
+                (count.id, record.id, row.line, row.scanned[:SCANNED_WIDTH],
+                 bind_value(session, column, row.at) if row.at is not None else None,  # type: ignore[arg-type]
+                 row.where)
+                for row in part
+            ])  # fmt: skip
+            if progress is not None:
+                progress(len(part))
+        detail = {"count": count.name, "file": record.name, "digest": record.digest, "scans": record.scans}
+        if record.scanner:
+            detail["scanner"] = record.scanner
+        append_entry(session, NewEntry("count_add", count.series_id, None, None, detail), actor=register.actor, at=now)
+        return _file_info(record)
+
+    try:
+        return register.write(work)
+    except IntegrityError:
+        # another desk added the same file at the same moment; its digest is taken now
+        raise Conflict(f"{scan_file.name} was added to count {name!r} already (same contents)") from None
+
+
+def _refuse_twice(session: Session, count: StockCount, scan_file: ScanFile) -> None:
+    before = session.scalars(
+        select(StockCountFile).where(StockCountFile.count_id == count.id, StockCountFile.digest == scan_file.digest)
+    ).first()
+    if before is not None:
+        raise Conflict(
+            f"{scan_file.name} was added to count {count.name!r} already (same contents as {before.name}, "
+            f"added {before.added_at:%Y-%m-%d %H:%M} UTC by {before.added_by})"
+        )
+
+
+def _file_info(record: StockCountFile) -> FileInfo:
+    return FileInfo(
+        record.name, record.scanner, record.digest, record.zone, record.scans, record.blank_lines,
+        record.comment_lines, record.added_at, record.added_by,
+    )  # fmt: skip
+
+
+def count_files(session: Session, count: StockCount) -> list[FileInfo]:
+    records = session.scalars(
+        select(StockCountFile).where(StockCountFile.count_id == count.id).order_by(StockCountFile.id)
+    ).all()
+    return [_file_info(record) for record in records]
+
+
+@dataclass
+class CountScans:
+    """A count's scanned lines, column by column, in the order their files were added:
+    ``files[i]`` indexes ``names``; ``at`` holds UTC times as ISO text (or '')."""
+
+    names: list[str]
+    files: list[int]
+    lines: list[int]
+    scanned: list[str]
+    at: list[str]
+    where: list[str]
+
+
+def count_scans(session: Session, count: StockCount) -> CountScans:
+    """Every scanned line of the count, streamed from the database in file and line order."""
+    from issuer.register.driver import driver_rows
+
+    records = count_files(session, count)
+    ids = session.scalars(
+        select(StockCountFile.id).where(StockCountFile.count_id == count.id).order_by(StockCountFile.id)
+    ).all()
+    slot = {file_id: index for index, file_id in enumerate(ids)}
+    names = [f"{record.scanner}:{record.name}" if record.scanner else record.name for record in records]
+    scans = CountScans(names, [], [], [], [], [])
+    places: dict[str, str] = {}
+    rows = driver_rows(
+        session,
+        "SELECT file_id, line, scanned, seen_at, seen_where FROM stock_count_scan WHERE count_id = ? "
+        "ORDER BY file_id, line",
+        (count.id,),
+    )
+    for file_id, line, scanned, seen_at, seen_where in rows:
+        scans.files.append(slot[file_id])
+        scans.lines.append(line)
+        scans.scanned.append(scanned)
+        scans.at.append("" if seen_at is None else _moment_text(seen_at))
+        where = seen_where or ""
+        scans.where.append(places.setdefault(where, where))  # one string per place, not per line
+    return scans
+
+
+def _moment_text(moment: Any) -> str:
+    """A stored time as the driver gives it (text on SQLite, a datetime elsewhere) as UTC ISO text."""
+    from datetime import UTC
+
+    if isinstance(moment, str):
+        moment = datetime.fromisoformat(moment)
+    if moment.tzinfo is None:
+        moment = moment.replace(tzinfo=UTC)
+    return moment.astimezone(UTC).isoformat()
+
+
+def close_count(
+    register: Register,
+    name: str,
+    result: dict[str, Any],
+    *,
+    record: Callable[[Session, Series, datetime], Any] | None = None,
+) -> CountInfo:
+    """Freeze the open count ``name`` with ``result``; ``record`` (sightings, moves) runs
+    in the same transaction, so a count is closed with its record or not at all."""
+
+    def work(session: Session) -> CountInfo:
+        count = get_count(session, name, lock="update")
+        if count.state != COUNT_OPEN:
+            raise Conflict(f"count {count.name!r} was closed already ({count.closed_at:%Y-%m-%d %H:%M} UTC)")
+        series = session.get(Series, count.series_id)
+        assert series is not None
+        now = register.clock()
+        if record is not None:
+            record(session, series, now)
+        count.state, count.closed_at, count.closed_by = COUNT_CLOSED, now, register.actor
+        count.result = json.dumps(result, separators=(",", ":"), default=str)
+        detail = {"count": count.name, **result.get("counts", {})}
+        append_entries(session, [NewEntry("count_close", series.id, None, None, detail)], actor=register.actor, at=now)
+        session.flush()
+        return _info(session, count, series.key)
+
+    return register.write(work)
+
+
+def scope_query_filter(count: StockCount | CountInfo) -> tuple[str, tuple[Any, ...]]:
+    """The SQL condition (on ``issued_code``) of a count's scope, and its parameters."""
+    if count.scope == "where":
+        return "lower(expected_where) = lower(?)", (count.scope_text,)
+    if count.scope == "holder":
+        return "holder = ?", (count.scope_text,)
+    if count.scope == "batch":
+        return "batch_id = ?", (count.scope_first,)
+    if count.scope == "range":
+        return "base BETWEEN ? AND ?", (count.scope_first, count.scope_last)
+    return "1 = 1", ()
+
+
+__all__ = [
+    "SCOPES",
+    "CountInfo",
+    "CountScans",
+    "CountScope",
+    "FileInfo",
+    "ScanFile",
+    "ScanRow",
+    "add_scan_file",
+    "check_count_name",
+    "close_count",
+    "count_files",
+    "count_info",
+    "count_scans",
+    "get_count",
+    "list_counts",
+    "open_count",
+    "scope_query_filter",
+]
