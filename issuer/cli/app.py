@@ -54,6 +54,7 @@ COMMAND_MODULES: dict[str, tuple[str, ...]] = {
     "desk": ("desk",), "demo": ("demo",),
     "layouts": ("labels",), "labels": ("printing",), "reprint": ("printing",),
     "reconcile": ("stocktake",), "import": ("transfer",), "export": ("transfer",),
+    "stocktake": ("counts",), "place": ("counts",),
 }  # fmt: skip
 
 

@@ -47,15 +47,16 @@ IMPORT_ROLES: dict[str, tuple[str, ...]] = {
     "replaces": ("replaces",),
     "last_seen_at": ("last_seen_at",),
     "last_seen_where": ("last_seen_where",),
+    "expected_where": ("expected_where", "expected_place", "place", "home", "location", "shelf"),
 }
 #: column widths of the register
-WIDTHS = {"holder": 200, "issued_by": 120, "voided_by": 120, "last_seen_where": 200}
+WIDTHS = {"holder": 200, "issued_by": 120, "voided_by": 120, "last_seen_where": 200, "expected_where": 200}
 #: bad lines named in a refusal before "and N more"
 NAMED_IN_REFUSAL = 10
 
 ROW_COLUMNS = (
     "series_id", "code", "base", "status", "batch_id", "holder", "note", "issued_at", "issued_by",
-    "void_reason", "voided_at", "voided_by", "print_count", "last_seen_at", "last_seen_where",
+    "void_reason", "voided_at", "voided_by", "print_count", "last_seen_at", "last_seen_where", "expected_where",
 )  # fmt: skip
 
 
@@ -82,6 +83,8 @@ class ImportRow:
     replaces: str | None
     last_seen_at: datetime | None
     last_seen_where: str | None
+    #: where the item belongs (a place column of the file)
+    expected_where: str | None = None
 
 
 @dataclass
@@ -188,6 +191,7 @@ def _row(line: int, code: str, base: int, index: int, cell: Callable[[str, int],
         voided_at=voided_at, voided_by=values["voided_by"],
         void_reason=cell("void_reason", index) if status == VOIDED else None,
         replaces=cell("replaces", index), last_seen_at=seen_at, last_seen_where=values["last_seen_where"],
+        expected_where=" ".join(values["expected_where"].split()) if values["expected_where"] else None,
     )  # fmt: skip
 
 
@@ -254,7 +258,7 @@ def apply_import(
                  bind("issued_at", row.issued_at or now), row.issued_by or register.actor,
                  row.void_reason, bind("voided_at", row.voided_at or now) if row.status == VOIDED else None,
                  (row.voided_by or register.actor) if row.status == VOIDED else None, 0,
-                 bind("last_seen_at", row.last_seen_at), row.last_seen_where)
+                 bind("last_seen_at", row.last_seen_at), row.last_seen_where, row.expected_where)
                 for row in chunk
             ])  # fmt: skip
             if progress is not None:

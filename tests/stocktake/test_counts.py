@@ -182,3 +182,27 @@ def test_closing_freezes_records_and_moves_places_when_asked(
         add_files(register, "c2", [tmp_path / "north-1.txt"])
     frozen = count_status(register, "c2")
     assert frozen.counts["elsewhere"] == 1  # the result kept, though the tag has moved since
+
+
+def test_a_register_with_codes_from_the_previous_schema_is_upgraded(tmp_path: Path) -> None:
+    from alembic import command
+
+    from issuer.register.migrate import alembic_config
+    from issuer.register.store import SCHEMA_HEAD, open_register
+
+    path = str(tmp_path / "older.sqlite")
+    register = open_register(path, actor="test")
+    add_series(register, TOOLS)
+    tags = [info.code for info in issue_codes(register, "tools", 5).codes]
+    config = alembic_config()
+    with register.engine.connect() as connection:
+        config.attributes["connection"] = connection
+        command.downgrade(config, "0001")
+        connection.commit()
+    register.close()
+    reopened = open_register(path, actor="test")
+    assert reopened.schema_revision() == SCHEMA_HEAD
+    place_codes(reopened, tags[:2], "Bay 9")
+    start_count(reopened, "after-upgrade", "tools", CountScope("where", text="bay 9"), tz="UTC")
+    assert count_status(reopened, "after-upgrade").expected == 2
+    reopened.close()
