@@ -64,6 +64,12 @@ class Settings:
     database: str
     actor: str
     raw: dict[str, Any] = field(default_factory=dict)
+    source: Path | None = None  # the user's config file, when one was read
+
+    @property
+    def folder(self) -> Path | None:
+        """The user's config file's folder: relative paths in it (logos, fonts) start there."""
+        return None if self.source is None else self.source.parent
 
     def section(self, name: str) -> dict[str, Any]:
         value = self.raw.get(name, {})
@@ -74,8 +80,10 @@ def load_settings(*, database: str | None = None, actor: str | None = None) -> S
     """Resolve settings; arguments are the command line's values (``None`` = not given)."""
     raw = _read_toml(bundled_config_text(), "(built-in)")
     path = user_config_path()
+    source = None
     if path.is_file():
         raw = _merge(raw, _read_toml(path.read_text("utf-8"), str(path)))
+        source = path.resolve()
     register = raw.get("register", {})
     chosen_db = (
         database
@@ -84,7 +92,7 @@ def load_settings(*, database: str | None = None, actor: str | None = None) -> S
         or str(default_database_path())
     )
     chosen_actor = actor or os.environ.get("ISSUER_ACTOR") or register.get("actor") or _os_user()
-    return Settings(database=str(chosen_db), actor=str(chosen_actor), raw=raw)
+    return Settings(database=str(chosen_db), actor=str(chosen_actor), raw=raw, source=source)
 
 
 def _os_user() -> str:

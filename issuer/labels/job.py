@@ -12,9 +12,11 @@ from dataclasses import dataclass
 
 from issuer.errors import LabelError
 from issuer.labels.barcodes import Symbol, check_symbology, encode, gs1_giai
+from issuer.labels.design import LogoArt, load_logo
+from issuer.labels.fonts import FontSet, font_set
 from issuer.labels.layouts import Box, Layout
 from issuer.labels.painters import Painter, draw_label
-from issuer.labels.plan import CellPlan, plan_cell
+from issuer.labels.plan import CODE_FONT, HEADER_FONT, LINE_FONT, CellPlan, plan_cell
 
 _PROGRESS_EVERY = 100
 
@@ -22,13 +24,14 @@ _PROGRESS_EVERY = 100
 @dataclass(frozen=True)
 class LabelContent:
     """What one label shows: the canonical ``code`` (what the barcode carries), its grouped
-    ``display`` form, optional caption ``lines`` (series title, holder, a short caption)
-    and whether it is marked VOID."""
+    ``display`` form, optional caption ``lines`` (series title, holder, a short caption),
+    whether it is marked VOID, and how many lines come before the code (``code_at``)."""
 
     code: str
     display: str
     lines: tuple[str, ...] = ()
     void: bool = False
+    code_at: int = 0
 
 
 @dataclass(frozen=True)
@@ -51,18 +54,10 @@ class Job:
     symbols: tuple[Symbol, ...]
     lines: tuple[tuple[str, ...], ...]
     plan: CellPlan
-
-
-def _printable(text: str, what: str) -> str:
-    # the built-in PDF fonts cover the Windows-1252 character set
-    try:
-        text.encode("cp1252")
-    except UnicodeEncodeError as exc:
-        raise LabelError(
-            f"{what} {text!r}: character {text[exc.start]!r} cannot be printed with the "
-            "built-in fonts"
-        ) from None
-    return text
+    fonts: FontSet
+    displays: tuple[str, ...]
+    header: str = ""
+    logo: LogoArt | None = None
 
 
 def prepare(
@@ -71,15 +66,22 @@ def prepare(
     symbology: str,
     gs1_company_prefix: str | None = None,
     text_beside: bool = False,
+    fonts: FontSet | None = None,
 ) -> Job:
-    """Encode every symbol and fit one arrangement for all labels; raises before any
-    output exists."""
+    """Encode every symbol, check that the fonts draw every character, and fit one
+    arrangement for all labels; raises before any output exists."""
     if not labels:
         raise LabelError("nothing to print: the selection is empty")
+    fonts = fonts or font_set()
     symbology = check_symbology(symbology)
+    design = layout.design
+    header = fonts.check(design.header, HEADER_FONT, f"the header of layout {layout.name!r}")
+    logo = load_logo(design.logo) if design.logo is not None else None
     symbols: list[Symbol] = []
     all_lines: list[tuple[str, ...]] = []
+    displays: list[str] = []
     gs1 = gs1_company_prefix is not None
+    code_em = 0.0
     for label in labels:
         if gs1:
             data = gs1_giai(str(gs1_company_prefix), label.code)
@@ -87,21 +89,25 @@ def prepare(
         else:
             data, lines = label.code, tuple(label.lines)
         symbols.append(encode(symbology, data, gs1=gs1))
-        _printable(label.display, "code")
-        for line in lines:
-            _printable(line, "line")
-        all_lines.append(lines)
+        whose = f"cannot print the label of {label.display}"
+        display = fonts.check(label.display, CODE_FONT, whose)
+        displays.append(display)
+        code_em = max(code_em, fonts.width(display, CODE_FONT, 1.0))
+        all_lines.append(tuple(fonts.check(line, LINE_FONT, whose) for line in lines))
     plan = plan_cell(
         layout,
         symbology,
         columns=max(s.columns for s in symbols),
         rows=max(s.rows for s in symbols),
-        code_chars=max(len(label.display) for label in labels),
+        code_chars=max(len(display) for display in displays),
         lines=max(len(lines) for lines in all_lines),
         void=any(label.void for label in labels),
         beside=text_beside,
+        code_em=code_em,
     )
-    return Job(tuple(labels), tuple(symbols), tuple(all_lines), plan)
+    return Job(
+        tuple(labels), tuple(symbols), tuple(all_lines), plan, fonts, tuple(displays), header, logo
+    )
 
 
 def _shift(box: Box, dx: float, dy: float) -> Box:
@@ -123,7 +129,8 @@ def draw_job(
     page = 0
     if outlines:
         _outline(painter, layout)
-    for index, (label, symbol, lines) in enumerate(zip(job.labels, job.symbols, job.lines)):
+    shown = zip(job.labels, job.symbols, job.lines, job.displays)
+    for index, (label, symbol, lines, display) in enumerate(shown):
         on_page, row, column = layout.position(skip + index)
         if on_page != page:
             if new_page is not None:
@@ -133,7 +140,12 @@ def draw_job(
                 _outline(painter, layout)
         cell = layout.cell(row, column)
         symbol_box = _shift(plan.symbol_box(symbol.columns, symbol.rows), cell.x, cell.y)
-        draw_label(painter, plan, cell, symbol, symbol_box, label.display, lines, label.void)
+        # a GS1 element string line goes first, so the code moves down one line with it
+        code_at = label.code_at + (len(lines) - len(label.lines))
+        draw_label(
+            painter, plan, cell, symbol, symbol_box, display, lines, label.void, code_at,
+            job.header, job.logo,
+        )  # fmt: skip
         quiet = _shift(plan.quiet_box(symbol.columns, symbol.rows), cell.x, cell.y)
         placements.append(Placement(index, on_page, row, column, cell, symbol_box, quiet))
         if progress is not None and (index + 1) % _PROGRESS_EVERY == 0:
@@ -153,5 +165,3 @@ def _outline(painter: Painter, layout: Layout) -> None:
     for row in range(layout.rows):
         for column in range(layout.columns):
             painter.frame(layout.cell(row, column), OUTLINE_MM, OUTLINE_GREY)
-
-

@@ -15,11 +15,13 @@ from __future__ import annotations
 
 import re
 from collections.abc import Mapping
-from dataclasses import asdict, dataclass
+from dataclasses import asdict, dataclass, field
+from pathlib import Path
 from types import MappingProxyType
 from typing import Any
 
 from issuer.errors import LayoutError, UnknownName
+from issuer.labels.design import DESIGN_KEYS, Design, design_from_table
 
 MM_PER_INCH = 25.4
 # a layout is checked to this tolerance so that inch layouts converted to mm still fit
@@ -93,6 +95,7 @@ class Layout:
     padding: float = 1.5
     description: str = ""
     origin: str = "preset"
+    design: Design = field(default_factory=Design)
 
     def __post_init__(self) -> None:
         where = f"layout {self.name!r}"
@@ -164,6 +167,7 @@ class Layout:
             padding=self.padding,
             description=self.description,
             origin=self.origin,
+            design=self.design,
         )
 
     def summary(self) -> str:
@@ -251,7 +255,9 @@ _LENGTH_KEYS = (
     "gap_y",
     "padding",
 )
-_KNOWN_KEYS = frozenset((*_LENGTH_KEYS, "unit", "page", "rows", "columns", "description"))
+_KNOWN_KEYS = frozenset(
+    (*_LENGTH_KEYS, "unit", "page", "rows", "columns", "description", *DESIGN_KEYS)
+)
 
 
 def _length(name: str, key: str, value: Any, unit: str) -> float:
@@ -271,8 +277,9 @@ def _length(name: str, key: str, value: Any, unit: str) -> float:
     return number if its_unit == "mm" else _mm(number)
 
 
-def layout_from_table(name: str, table: Mapping[str, Any]) -> Layout:
-    """A user layout from one ``[layouts.NAME]`` table of the config."""
+def layout_from_table(name: str, table: Mapping[str, Any], base: Path | None = None) -> Layout:
+    """A user layout from one ``[layouts.NAME]`` table of the config (``base``: the config
+    file's folder, where a relative logo path starts)."""
     if not isinstance(table, Mapping):
         raise LayoutError(f"layout {name!r} must be a table ([layouts.{name}])")
     unknown = sorted(set(table) - _KNOWN_KEYS)
@@ -327,10 +334,13 @@ def layout_from_table(name: str, table: Mapping[str, Any]) -> Layout:
         padding=dims.get("padding", 1.5),
         description=str(table.get("description", "")),
         origin="config",
+        design=design_from_table(
+            name, table, lambda key, value: _length(name, key, value, unit), base
+        ),
     )
 
 
-def user_layouts(tables: Mapping[str, Any] | None) -> dict[str, Layout]:
+def user_layouts(tables: Mapping[str, Any] | None, base: Path | None = None) -> dict[str, Layout]:
     """The ``[layouts.*]`` tables of the config (``settings.section("layouts")``)."""
     found: dict[str, Layout] = {}
     for raw_name, table in (tables or {}).items():
@@ -346,22 +356,26 @@ def user_layouts(tables: Mapping[str, Any] | None) -> dict[str, Layout]:
             )
         if name in found:
             raise LayoutError(f"layout {raw_name!r} is defined twice in the config")
-        found[name] = layout_from_table(name, table)
+        found[name] = layout_from_table(name, table, base)
     return found
 
 
-def available_layouts(tables: Mapping[str, Any] | None = None) -> dict[str, Layout]:
+def available_layouts(
+    tables: Mapping[str, Any] | None = None, base: Path | None = None
+) -> dict[str, Layout]:
     """Presets first, then the user's layouts, by name."""
-    return {**PRESETS, **user_layouts(tables)}
+    return {**PRESETS, **user_layouts(tables, base)}
 
 
-def get_layout(name: str, tables: Mapping[str, Any] | None = None) -> Layout:
+def get_layout(
+    name: str, tables: Mapping[str, Any] | None = None, base: Path | None = None
+) -> Layout:
     """The layout called ``name`` among the presets and the user's ``[layouts.*]`` tables.
 
     Raises :class:`~issuer.errors.UnknownName` naming the known layouts, or
     :class:`~issuer.errors.LayoutError` when the config's layouts are badly described.
     """
-    known = available_layouts(tables)
+    known = available_layouts(tables, base)
     layout = known.get(name.strip().lower())
     if layout is None:
         raise UnknownName(f"unknown layout {name!r} (known: {', '.join(known)})")

@@ -3,6 +3,8 @@
 Both painters take millimetres from the page's top-left corner and turn them into
 PDF points from the bottom-left. The PDF painter draws every symbol as one filled path
 straight on the canvas (no per-label Drawing or widget), which keeps big jobs fast.
+Text is drawn by font role (:mod:`issuer.labels.fonts`), each run in the first face of
+the role's chain that has its letters; the SVG painter draws the glyph outlines as paths.
 """
 
 from __future__ import annotations
@@ -10,9 +12,13 @@ from __future__ import annotations
 from typing import Any, Protocol
 
 from issuer.labels.barcodes import Symbol
+from issuer.labels.design import LogoArt
+from issuer.labels.fonts import FontSet
+from issuer.labels.glyphs import glyph_paths
 from issuer.labels.layouts import Box
 from issuer.labels.plan import (
     CODE_FONT,
+    HEADER_FONT,
     LEADING,
     LINE_FONT,
     MIN_LINE_PT,
@@ -36,17 +42,18 @@ class Painter(Protocol):
 
     def text_width(self, text: str, font: str, size: float) -> float: ...
 
+    def logo(self, art: LogoArt, box: Box) -> None: ...
+
 
 class PdfPainter:
     """Draws on a ``reportlab.pdfgen.canvas.Canvas`` of page height ``page_height`` mm."""
 
-    def __init__(self, canvas: Any, page_height: float) -> None:
-        from reportlab.pdfbase.pdfmetrics import stringWidth
-
+    def __init__(self, canvas: Any, page_height: float, fonts: FontSet) -> None:
         self.canvas = canvas
         self.page_height = page_height
+        self.fonts = fonts
         self._font: tuple[str, float] | None = None
-        self._string_width = stringWidth
+        self._forms: set[str] = set()
 
     def new_page(self) -> None:
         self.canvas.showPage()
@@ -77,14 +84,31 @@ class PdfPainter:
         self, x: float, baseline: float, text: str, font: str, size: float, anchor: str
     ) -> None:
         canvas = self.canvas
-        if self._font != (font, size):
-            canvas.setFont(font, size)
-            self._font = (font, size)
+        runs = self.fonts.runs(text, font)
         px, py = x * PT_PER_MM, (self.page_height - baseline) * PT_PER_MM
         if anchor == "middle":
-            canvas.drawCentredString(px, py, text)
-        else:
-            canvas.drawString(px, py, text)
+            px -= self.fonts.width(text, font, size) / 2
+        for face, run in runs:
+            if self._font != (face.name, size):
+                canvas.setFont(face.name, size)
+                self._font = (face.name, size)
+            canvas.drawString(px, py, run)
+            px += canvas.stringWidth(run, face.name, size)
+
+    def logo(self, art: LogoArt, box: Box) -> None:
+        # drawn once per document as a form, then placed on every label by reference
+        canvas = self.canvas
+        w, h = box.width * PT_PER_MM, box.height * PT_PER_MM
+        name = f"logo{abs(hash((art.path, round(w, 3), round(h, 3))))}"
+        if name not in self._forms:
+            canvas.beginForm(name, lowerx=0, lowery=0, upperx=w, uppery=h)
+            _draw_logo_pdf(canvas, art, w, h)
+            canvas.endForm()
+            self._forms.add(name)
+        canvas.saveState()
+        canvas.translate(box.x * PT_PER_MM, (self.page_height - box.bottom) * PT_PER_MM)
+        canvas.doForm(name)
+        canvas.restoreState()
 
     def frame(self, box: Box, line_width: float, grey: float = 0.0) -> None:
         canvas = self.canvas
@@ -102,19 +126,38 @@ class PdfPainter:
         canvas.restoreState()
 
     def text_width(self, text: str, font: str, size: float) -> float:
-        return float(self._string_width(text, font, size)) / PT_PER_MM
+        return self.fonts.width(text, font, size) / PT_PER_MM
+
+
+def _draw_logo_pdf(canvas: Any, art: LogoArt, w: float, h: float) -> None:
+    if art.kind == "png":
+        canvas.drawImage(art.path, 0, 0, w, h, mask="auto")
+        return
+    from reportlab.graphics import renderPDF
+
+    renderPDF.draw(_scaled_svg(art, w, h), canvas, 0, 0)
+
+
+def _scaled_svg(art: LogoArt, w: float, h: float) -> Any:
+    """The SVG logo's drawing scaled to ``w`` x ``h`` points, as a Group."""
+    from reportlab.graphics.shapes import Drawing, Group
+
+    group = Group(*art.drawing.contents)
+    group.transform = (w / art.width, 0, 0, h / art.height, 0, 0)
+    drawing = Drawing(w, h)
+    drawing.add(group)
+    return drawing
 
 
 class DrawingPainter:
     """Builds a ``reportlab.graphics.shapes.Drawing`` (for SVG)."""
 
-    def __init__(self, page_width: float, page_height: float) -> None:
+    def __init__(self, page_width: float, page_height: float, fonts: FontSet) -> None:
         from reportlab.graphics.shapes import Drawing
-        from reportlab.pdfbase.pdfmetrics import stringWidth
 
         self.page_height = page_height
+        self.fonts = fonts
         self.drawing = Drawing(page_width * PT_PER_MM, page_height * PT_PER_MM)
-        self._string_width = stringWidth
 
     def symbol(self, symbol: Symbol, box: Box, module: float) -> None:
         from reportlab.graphics.shapes import Rect
@@ -144,18 +187,23 @@ class DrawingPainter:
     def text(
         self, x: float, baseline: float, text: str, font: str, size: float, anchor: str
     ) -> None:
-        from reportlab.graphics.shapes import String
+        px, py = x * PT_PER_MM, (self.page_height - baseline) * PT_PER_MM
+        if anchor == "middle":
+            px -= self.fonts.width(text, font, size) / 2
+        for path in glyph_paths(self.fonts.runs(text, font), px, py, size):
+            self.drawing.add(path)
 
-        self.drawing.add(
-            String(
-                x * PT_PER_MM,
-                (self.page_height - baseline) * PT_PER_MM,
-                text,
-                fontName=font,
-                fontSize=size,
-                textAnchor=anchor,
-            )
-        )
+    def logo(self, art: LogoArt, box: Box) -> None:
+        from reportlab.graphics.shapes import Group, Image
+
+        w, h = box.width * PT_PER_MM, box.height * PT_PER_MM
+        x, y = box.x * PT_PER_MM, (self.page_height - box.bottom) * PT_PER_MM
+        if art.kind == "png":
+            self.drawing.add(Image(x, y, w, h, art.path))
+            return
+        group = Group(*_scaled_svg(art, w, h).contents)
+        group.transform = (1, 0, 0, 1, x, y)
+        self.drawing.add(group)
 
     def frame(self, box: Box, line_width: float, grey: float = 0.0) -> None:
         from reportlab.graphics.shapes import Rect
@@ -174,19 +222,36 @@ class DrawingPainter:
         )
 
     def text_width(self, text: str, font: str, size: float) -> float:
-        return float(self._string_width(text, font, size)) / PT_PER_MM
+        return self.fonts.width(text, font, size) / PT_PER_MM
 
 
-def fit_line(painter: Painter, text: str, width: float, size: float) -> tuple[str, float]:
+def fit_line(
+    painter: Painter, text: str, width: float, size: float, font: str = LINE_FONT
+) -> tuple[str, float]:
     """Shrink a caption line to ``width`` mm, down to the smallest legible size; beyond
     that, cut it and end it with an ellipsis (the label shows that it was cut)."""
-    measured = painter.text_width(text, LINE_FONT, size)
+    measured = painter.text_width(text, font, size)
     if measured <= width:
         return text, size
     size = max(MIN_LINE_PT, size * width / measured)
-    while text and painter.text_width(text, LINE_FONT, size) > width:
+    while text and painter.text_width(text, font, size) > width:
         text = text[:-2] + "\u2026" if len(text) > 1 else ""
     return text, size
+
+
+def _draw_head(
+    painter: Painter, plan: CellPlan, cell: Box, header: str, logo: LogoArt | None
+) -> None:
+    """The design's logo and header line."""
+    if logo is not None and plan.logo_box is not None:
+        box = plan.logo_box
+        painter.logo(logo, Box(cell.x + box.x, cell.y + box.y, box.width, box.height))
+    if header and plan.header_box is not None:
+        box = plan.header_box
+        text, size = fit_line(painter, header, box.width, plan.header_pt, HEADER_FONT)
+        x = cell.x + box.x + (box.width / 2 if plan.header_anchor == "middle" else 0.0)
+        baseline = cell.y + box.y + ASCENT * plan.header_pt / PT_PER_MM
+        painter.text(x, baseline, text, HEADER_FONT, size, plan.header_anchor)
 
 
 def draw_label(
@@ -198,8 +263,14 @@ def draw_label(
     display: str,
     lines: tuple[str, ...],
     void: bool,
+    code_at: int = 0,
+    header: str = "",
+    logo: LogoArt | None = None,
 ) -> None:
-    """One label in ``cell``: symbol, then (VOID,) the code, then the caption lines."""
+    """One label in ``cell``: header and logo, symbol, then (VOID,) the text lines with the
+    code after the first ``code_at`` of them."""
+    _draw_head(painter, plan, cell, header, logo)
+    code_at = min(code_at, len(lines))
     painter.symbol(symbol, symbol_box, plan.module)
     box = plan.text_box
     if plan.text_anchor == "middle":
@@ -215,12 +286,14 @@ def draw_label(
         cursor += LEADING * size / PT_PER_MM
         # a frame in the label's blank padding: the middle half of it, clear of the symbol
         painter.frame(cell.inset(plan.padding / 2), plan.padding / 2)
-    size = plan.code_pt
-    painter.text(x, cursor + ASCENT * size / PT_PER_MM, display, CODE_FONT, size, plan.text_anchor)
-    cursor += LEADING * size / PT_PER_MM
-    for line in lines:
-        text, fitted = fit_line(painter, line, box.width, plan.line_pt)
-        painter.text(
-            x, cursor + ASCENT * plan.line_pt / PT_PER_MM, text, LINE_FONT, fitted, plan.text_anchor
-        )
-        cursor += LEADING * plan.line_pt / PT_PER_MM
+    for index in range(len(lines) + 1):
+        if index == code_at:
+            size = plan.code_pt
+            baseline = cursor + ASCENT * size / PT_PER_MM
+            painter.text(x, baseline, display, CODE_FONT, size, plan.text_anchor)
+            cursor += LEADING * size / PT_PER_MM
+        if index < len(lines):
+            text, fitted = fit_line(painter, lines[index], box.width, plan.line_pt)
+            baseline = cursor + ASCENT * plan.line_pt / PT_PER_MM
+            painter.text(x, baseline, text, LINE_FONT, fitted, plan.text_anchor)
+            cursor += LEADING * plan.line_pt / PT_PER_MM

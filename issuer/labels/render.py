@@ -19,10 +19,12 @@ import tempfile
 from collections.abc import Callable, Iterator, Sequence
 from contextlib import contextmanager
 from dataclasses import dataclass, field
+from html import escape
 from pathlib import Path
 from typing import Any
 
 from issuer.errors import LabelError
+from issuer.labels.fonts import FontSet
 from issuer.labels.job import Job, LabelContent, Placement, draw_job, prepare
 from issuer.labels.layouts import Layout
 from issuer.labels.painters import DrawingPainter, PdfPainter
@@ -87,7 +89,10 @@ def _pdf(
     from reportlab.pdfgen.canvas import Canvas
 
     canvas = Canvas(
-        target, pagesize=(layout.page_width * PT_PER_MM, layout.page_height * PT_PER_MM)
+        target,
+        pagesize=(layout.page_width * PT_PER_MM, layout.page_height * PT_PER_MM),
+        # no built-in Type 1 font even as the page's unused default: every font is embedded
+        initialFontName=job.fonts.face("text").name,
     )
     canvas.setTitle(title or f"issuer labels ({layout.name})")
     canvas.setSubject(f"{PRINT_NOTE} Layout {layout.name}: {layout.summary()}.")
@@ -97,7 +102,7 @@ def _pdf(
         f"label {layout.label_width:g} x {layout.label_height:g} mm"
     )
     canvas.setCreator("issuer")
-    painter = PdfPainter(canvas, layout.page_height)
+    painter = PdfPainter(canvas, layout.page_height, job.fonts)
     pages, placements = draw_job(painter, job, layout, skip, painter.new_page, progress, outlines)
     canvas.showPage()
     canvas.save()
@@ -115,6 +120,7 @@ def render_sheet(
     title: str | None = None,
     outlines: bool = False,
     text_beside: bool = False,
+    fonts: FontSet | None = None,
     progress: Callable[[int], None] | None = None,
 ) -> RenderResult:
     """Render ``labels`` in order onto sheets of ``layout`` as one PDF at ``out``.
@@ -130,7 +136,7 @@ def render_sheet(
             f"the start position (skip) must be 0 to {layout.per_page - 1} for layout "
             f"{layout.name!r} ({layout.per_page} labels a sheet)"
         )
-    job = prepare(labels, layout, symbology, gs1_company_prefix, text_beside)
+    job = prepare(labels, layout, symbology, gs1_company_prefix, text_beside, fonts)
     with _atomic(out) as temp:
         pages, placements = _pdf(str(temp), job, layout, skip, title, progress, outlines)
     return RenderResult(
@@ -148,10 +154,15 @@ def render_sheet(
 
 
 def _single(
-    label: LabelContent, layout: Layout, symbology: str, gs1: str | None, beside: bool
+    label: LabelContent,
+    layout: Layout,
+    symbology: str,
+    gs1: str | None,
+    beside: bool,
+    fonts: FontSet | None,
 ) -> tuple[Job, Layout]:
     single = layout.single()
-    return prepare([label], single, symbology, gs1, beside), single
+    return prepare([label], single, symbology, gs1, beside, fonts), single
 
 
 def render_png(
@@ -163,13 +174,14 @@ def render_png(
     dpi: int = 300,
     gs1_company_prefix: str | None = None,
     text_beside: bool = False,
+    fonts: FontSet | None = None,
 ) -> RenderResult:
     """One label of ``layout``'s label size as a PNG at ``dpi`` (the file records its dpi,
     so it prints at the label's size): the label is drawn as a one-page PDF and rasterised
     with pdfium."""
     if not 72 <= dpi <= 2400:
         raise LabelError("dpi must be between 72 and 2400")
-    job, single = _single(label, layout, symbology, gs1_company_prefix, text_beside)
+    job, single = _single(label, layout, symbology, gs1_company_prefix, text_beside, fonts)
     import pypdfium2 as pdfium
 
     buffer = io.BytesIO()
@@ -194,15 +206,19 @@ def render_svg(
     symbology: str = "code128",
     gs1_company_prefix: str | None = None,
     text_beside: bool = False,
+    fonts: FontSet | None = None,
 ) -> RenderResult:
-    """One label as SVG (reportlab's SVG renderer), sized in millimetres."""
-    job, single = _single(label, layout, symbology, gs1_company_prefix, text_beside)
+    """One label as SVG (reportlab's SVG renderer), sized in millimetres. Its letters are
+    glyph outlines of issuer's fonts; its title holds the label's text, for search."""
+    job, single = _single(label, layout, symbology, gs1_company_prefix, text_beside, fonts)
     from reportlab.graphics import renderSVG
 
-    painter = DrawingPainter(single.page_width, single.page_height)
+    painter = DrawingPainter(single.page_width, single.page_height, job.fonts)
     _, placements = draw_job(painter, job, single, 0, None, None)
     text = renderSVG.drawToString(painter.drawing)
-    text = _svg_physical_size(text, single)
+    words = [job.header] if job.header else []
+    words += [*job.lines[0][: label.code_at], job.displays[0], *job.lines[0][label.code_at :]]
+    text = _svg_physical_size(text, single, " \u00b7 ".join(words))
     with _atomic(out) as temp:
         temp.write_text(text, encoding="utf-8")
     return RenderResult(
@@ -210,23 +226,14 @@ def render_svg(
     )
 
 
-def _svg_physical_size(text: str, layout: Layout) -> str:
-    """Give the SVG's width and height in mm (the viewBox stays in points), and name
-    real font families for the built-in PDF font names."""
+def _svg_physical_size(text: str, layout: Layout, title: str) -> str:
+    """Give the SVG's width and height in mm (the viewBox stays in points) and its title."""
     head, sep, rest = text.partition("<svg ")
     tag, close, body = rest.partition(">")
     tag = re.sub(r'\bwidth="[^"]*"', f'width="{layout.page_width:g}mm"', tag, count=1)
     tag = re.sub(r'\bheight="[^"]*"', f'height="{layout.page_height:g}mm"', tag, count=1)
-    for name, family in _SVG_FONTS.items():
-        body = body.replace(f"font-family: {name};", family)
+    body = body.replace("<title>...</title>", f"<title>{escape(title, quote=False)}</title>", 1)
     return head + sep + tag + close + body
-
-
-_SVG_FONTS = {
-    "Courier-Bold": "font-family: Courier, monospace; font-weight: bold;",
-    "Helvetica-Bold": "font-family: Helvetica, Arial, sans-serif; font-weight: bold;",
-    "Helvetica": "font-family: Helvetica, Arial, sans-serif;",
-}
 
 
 def render_labels(
@@ -241,6 +248,7 @@ def render_labels(
     title: str | None = None,
     outlines: bool = False,
     text_beside: bool = False,
+    fonts: FontSet | None = None,
     progress: Callable[[int], None] | None = None,
 ) -> RenderResult:
     """Render to ``out`` in the format its suffix names: ``.pdf`` a sheet of any number of
@@ -257,6 +265,7 @@ def render_labels(
             title=title,
             outlines=outlines,
             text_beside=text_beside,
+            fonts=fonts,
             progress=progress,
         )
     if not labels:
@@ -277,6 +286,7 @@ def render_labels(
             dpi=dpi,
             gs1_company_prefix=gs1_company_prefix,
             text_beside=text_beside,
+            fonts=fonts,
         )
     else:
         result = render_svg(
@@ -286,6 +296,7 @@ def render_labels(
             symbology=symbology,
             gs1_company_prefix=gs1_company_prefix,
             text_beside=text_beside,
+            fonts=fonts,
         )
     if progress is not None:
         progress(1)
