@@ -14,7 +14,7 @@ def _layout_rows() -> list[dict[str, Any]]:
 
     settings = load_settings()
     rows = []
-    for layout in available_layouts(settings.section("layouts")).values():
+    for layout in available_layouts(settings.section("layouts"), settings.folder).values():
         data = layout.to_dict()
         data["labels_per_page"] = layout.per_page
         rows.append(data)

@@ -87,12 +87,14 @@ SkipOption = Annotated[
     ),
 ]
 LinesOption = Annotated[
-    str,
+    str | None,
     typer.Option(
         "--lines",
-        help="Lines beneath the code, comma-separated, from title (the series' title), "
-        "holder, note; or none. The holder is personal data: print it only where your "
-        "policy allows.",
+        help="The text lines in order, comma-separated, from title (the series' title), "
+        "holder, note, caption and code (where the code goes; first if not named); or none. "
+        "Default: the layout's fields, else title. The holder is personal data: print it "
+        "only where your policy allows.",
+        show_default=False,
     ),
 ]
 CaptionOption = Annotated[
@@ -152,7 +154,7 @@ def _run(
     barcode: str,
     layout: str | None,
     skip: int,
-    lines: str,
+    lines: str | None,
     caption: str | None,
     void: str,
     gs1_prefix: str | None,
@@ -167,6 +169,7 @@ def _run(
 ) -> None:
     from issuer.config import load_settings
     from issuer.labels import get_layout, output_format
+    from issuer.labels.fonts import fallbacks_from_config
     from issuer.labels.printjob import LabelOptions, parse_lines, print_selection
     from issuer.register.lifecycle import require_reason
     from issuer.register.printing import select_for_printing
@@ -177,12 +180,14 @@ def _run(
     kind = output_format(out)
     settings = load_settings(database=db, actor=actor)
     name = layout or (DEFAULT_SHEET_LAYOUT if kind == "pdf" else DEFAULT_SINGLE_LAYOUT)
-    chosen = get_layout(name, settings.section("layouts"))
+    chosen = get_layout(name, settings.section("layouts"), settings.folder)
+    fields = chosen.design.fields if lines is None else None
     options = LabelOptions(
         layout=chosen,
         symbology=barcode,
         skip=skip,
-        lines=parse_lines(lines),
+        lines=fields if fields is not None else parse_lines(lines or "title"),
+        fonts=fallbacks_from_config(settings.section("labels"), settings.folder),
         caption=caption,
         gs1_company_prefix=gs1_prefix,
         outlines=outlines,
@@ -304,7 +309,7 @@ def labels(
     barcode: BarcodeOption = "code128",
     layout: LayoutOption = None,
     skip: SkipOption = 0,
-    lines: LinesOption = "title",
+    lines: LinesOption = None,
     caption: CaptionOption = None,
     void_labels: VoidLabelsOption = False,
     without_void: Annotated[
@@ -352,7 +357,7 @@ def reprint(
     barcode: BarcodeOption = "code128",
     layout: LayoutOption = None,
     skip: SkipOption = 0,
-    lines: LinesOption = "title",
+    lines: LinesOption = None,
     caption: CaptionOption = None,
     void_labels: VoidLabelsOption = False,
     gs1_prefix: GS1Option = None,

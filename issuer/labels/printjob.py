@@ -24,12 +24,14 @@ from typing import Any
 
 from issuer.errors import InvalidFormat, LabelError
 from issuer.labels import LabelContent, Layout, output_format, render_labels
+from issuer.labels.design import FIELDS
+from issuer.labels.fonts import font_set
 from issuer.register.lifecycle import require_reason
 from issuer.register.printing import PrintRow, PrintSelection, record_prints
 from issuer.register.store import Register
 
-#: what the register can put on a label beneath the code, in the order asked for
-LINE_FIELDS = ("title", "holder", "note")
+#: what a label's text block can show, in the order asked for ("code": where the code goes)
+LINE_FIELDS = FIELDS
 
 
 def parse_lines(text: str | None) -> tuple[str, ...]:
@@ -53,17 +55,27 @@ def parse_lines(text: str | None) -> tuple[str, ...]:
 def label_contents(
     rows: Sequence[PrintRow], lines: Sequence[str] = ("title",), caption: str | None = None
 ) -> list[LabelContent]:
-    """The labels for ``rows``: the canonical code in the symbol, the grouped code as
-    text, then the asked-for ``lines`` a row has (an empty one is skipped) and the
-    ``caption`` on every label. Voided rows are marked VOID."""
+    """The labels for ``rows``: the canonical code in the symbol, and as text the asked-for
+    ``lines`` a row has (an empty one is skipped) in order, the grouped code where ``"code"``
+    stands (first when it is not named) and the ``caption`` where ``"caption"`` stands (last
+    when it is not named). Voided rows are marked VOID."""
     caption = (caption or "").strip() or None
+    order = list(lines) if "code" in lines else ["code", *lines]
+    if caption and "caption" not in order:
+        order.append("caption")
     labels = []
     for row in rows:
-        values = {"title": row.series_title, "holder": row.holder, "note": row.note}
-        shown = [str(values[name]).strip() for name in lines if (values[name] or "").strip()]
-        if caption:
-            shown.append(caption)
-        labels.append(LabelContent(row.code, row.display, tuple(shown), row.void))
+        values = {
+            "title": row.series_title, "holder": row.holder, "note": row.note, "caption": caption
+        }  # fmt: skip
+        shown: list[str] = []
+        code_at = 0
+        for name in order:
+            if name == "code":
+                code_at = len(shown)
+            elif (values[name] or "").strip():
+                shown.append(str(values[name]).strip())
+        labels.append(LabelContent(row.code, row.display, tuple(shown), row.void, code_at))
     return labels
 
 
@@ -81,6 +93,7 @@ class LabelOptions:
     text_beside: bool = False
     dpi: int = 300
     title: str | None = None
+    fonts: tuple[str, ...] = ()  # fallback font files, in order, after the bundled faces
 
 
 @dataclass(frozen=True)
@@ -156,6 +169,7 @@ def print_selection(
             title=options.title,
             outlines=options.outlines,
             text_beside=options.text_beside,
+            fonts=font_set(options.fonts),
             progress=progress,
         )
         extra: dict[str, Any] = {}
