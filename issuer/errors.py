@@ -50,6 +50,12 @@ class InvalidComponent(InvalidFormat):
     default_message = "the text contains a character or part that is not allowed"
 
 
+class OutOfLimits(InvalidFormat):
+    """A value outside its field's limit (see :mod:`issuer.limits`)."""
+
+    default_message = "the value is outside its field's limit"
+
+
 class InvalidCheck(IssuerError, ValueError):
     default_message = "the check character does not match"
 

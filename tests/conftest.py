@@ -15,6 +15,7 @@ def isolated_environment(tmp_path_factory: pytest.TempPathFactory, monkeypatch: 
     home = tmp_path_factory.mktemp("home")
     monkeypatch.setenv("XDG_DATA_HOME", str(home / "data"))
     monkeypatch.setenv("XDG_CONFIG_HOME", str(home / "config"))
+    monkeypatch.setenv("XDG_STATE_HOME", str(home / "state"))
     monkeypatch.setenv("ISSUER_CONFIG", str(home / "no-such-config.toml"))
     monkeypatch.delenv("ISSUER_DB", raising=False)
     monkeypatch.setenv("ISSUER_ACTOR", "test-clerk")

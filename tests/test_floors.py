@@ -90,7 +90,7 @@ def _floor(module: str) -> str:
     part = parts[1] if len(parts) > 1 else ""
     if part in PURE:
         return "pure"
-    if part in {"errors", "config", ""}:
+    if part in {"errors", "config", "limits", "outputs", ""}:
         return "base"
     if part == "register":
         return "register"

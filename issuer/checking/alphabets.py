@@ -174,6 +174,11 @@ ALPHABETS: Mapping[str, Alphabet] = MappingProxyType(
 )
 
 CUSTOM_PREFIX = "custom:"
+#: symbols a custom alphabet may use besides A-Z and 0-9: printable ASCII (every barcode
+#: and label font carries it) minus separators, quotes, CSV delimiters, the comment mark
+#: and JSON brackets, so a code reads back from every file the tool writes or reads
+CUSTOM_PUNCTUATION = "!$%&*+<=>?@^~()"
+CUSTOM_SYMBOLS = frozenset("ABCDEFGHIJKLMNOPQRSTUVWXYZ0123456789" + CUSTOM_PUNCTUATION)
 
 
 def get_alphabet(name: str) -> Alphabet:
@@ -184,6 +189,13 @@ def get_alphabet(name: str) -> Alphabet:
     """
     if name.startswith(CUSTOM_PREFIX):
         symbols = name[len(CUSTOM_PREFIX):]
+        for ch in symbols:
+            if ch.upper() not in CUSTOM_SYMBOLS:
+                shown = repr(ch) if ch.isprintable() else f"U+{ord(ch):04X}"
+                raise InvalidComponent(
+                    f"custom alphabet symbol {shown} is not allowed: use A-Z, 0-9 and "
+                    f"{' '.join(CUSTOM_PUNCTUATION)} (what barcodes, label fonts and code lists carry)"
+                )
         return Alphabet(name=name, symbols=symbols.upper(), title="user-defined")
     try:
         return ALPHABETS[name]

@@ -44,6 +44,14 @@ ActorOption = Annotated[
     ),
 ]
 
+ForceOption = Annotated[
+    bool,
+    typer.Option(
+        "--force",
+        help="Replace the output file if it exists (never the register, its journals or a non-file).",
+    ),
+]
+
 CHECK_CAUTION = "A check character catches mistakes, not fraud: anyone can compute a valid one."
 SCATTER_CAUTION = (
     "Scattered numbers are hard to guess, not secret: treat them as public once printed."

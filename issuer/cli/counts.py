@@ -4,7 +4,7 @@
 from __future__ import annotations
 
 from pathlib import Path
-from typing import TYPE_CHECKING, Annotated, Any
+from typing import TYPE_CHECKING, Annotated
 
 import typer
 
@@ -12,6 +12,7 @@ from issuer.cli.app import app
 from issuer.cli.common import (
     ActorOption,
     DbOption,
+    ForceOption,
     JsonOption,
     console,
     err_console,
@@ -223,7 +224,7 @@ def report(
     *,
     out: Annotated[Path | None, typer.Option("--out", help="Write the report to this file (default: standard output for csv and json).", dir_okay=False)] = None,
     fmt: Annotated[str | None, typer.Option("--format", help="pdf, csv or json (default: from --out's suffix, else json).")] = None,
-    force: Annotated[bool, typer.Option("--force", help="Replace --out if it exists.")] = False,
+    force: ForceOption = False,
     db: DbOption = None,
     actor: ActorOption = None,
 ) -> None:
@@ -237,15 +238,20 @@ def report(
         fail(f"--format is pdf, csv or json, not {kind!r}")
     if kind == "pdf" and out is None:
         fail("a PDF report needs --out FILE.pdf")
-    if out is not None and out.exists() and not force:
-        fail(f"{out} exists; add --force to replace it")
     register = open_register_from_options(db, actor)
+    if out is not None:
+        from issuer.outputs import check_target
+
+        check_target(out, force=force, what="--out")
     with err_console().status("Reading the count..."):
         info, files, result = count_result(register, name)
     if kind == "pdf":
+        from issuer.outputs import staged_path
         from issuer.stocktake.pdf import write_pdf
 
-        _write_binary(out, lambda stream: write_pdf(info, files, result, stream))  # type: ignore[arg-type]
+        assert out is not None
+        with staged_path(out, force=force, what="--out") as temporary, open(temporary, "wb") as stream:
+            write_pdf(info, files, result, stream)
     else:
         from issuer.stocktake.summary import write_csv, write_json
 
@@ -253,32 +259,11 @@ def report(
         if out is None:
             writer(info, files, result, sys.stdout)
             return
-        from issuer.cli.transfer import atomic_output
+        from issuer.outputs import output_text
 
-        with atomic_output(out) as stream:
+        with output_text(out, force=force, what="--out") as stream:
             writer(info, files, result, stream)
     err_console().print(f"Report written to {out}")
-
-
-def _write_binary(path: Path, write: Any) -> None:
-    """Write a binary file whole, or leave ``path`` untouched."""
-    import os
-    import tempfile
-
-    from issuer.errors import RegisterError
-
-    target = path.expanduser()
-    try:
-        handle, temporary = tempfile.mkstemp(dir=target.resolve().parent, prefix=".issuer-", suffix=".part")
-    except OSError as exc:
-        raise RegisterError(f"cannot write {path}: {exc.strerror}") from None
-    try:
-        with os.fdopen(handle, "wb") as stream:
-            write(stream)
-        os.replace(temporary, target)
-    except BaseException:
-        Path(temporary).unlink(missing_ok=True)
-        raise
 
 
 @app.command("place", epilog="A place is where an item belongs; a count that sees it elsewhere says so.")

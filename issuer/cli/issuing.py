@@ -12,6 +12,7 @@ from issuer.cli.common import (
     PERSONAL_DATA_CAUTION,
     ActorOption,
     DbOption,
+    ForceOption,
     JsonOption,
     console,
     open_register_from_options,
@@ -42,6 +43,7 @@ def issue(
     out: Annotated[
         Path | None, typer.Option("--out", help="Also write the batch's codes to this CSV file.", dir_okay=False)
     ] = None,
+    force: ForceOption = False,
     db: DbOption = None,
     actor: ActorOption = None,
     as_json: JsonOption = False,
@@ -53,11 +55,12 @@ def issue(
     from issuer.register.issuing import issue_codes
 
     register = open_register_from_options(db, actor)
+    # the output file is checked before anything is issued; it appears once the batch commits
+    csv_out = CodesCsv(out, force=force) if out is not None else None
     # the table and --json list every code; a big batch's summary needs only first and last
     collect = as_json or count <= LIST_UP_TO
     with progress_bar(count, f"Issuing {count:,} codes") as advance, ExitStack() as stack:
-        # the CSV appears only once the batch has committed
-        sink = stack.enter_context(CodesCsv(out)) if out is not None else None
+        sink = stack.enter_context(csv_out) if csv_out is not None else None
         result = issue_codes(
             register, key, count, holder=holder, note=note, request_id=request_id,
             progress=advance, collect=collect, sink=sink,

@@ -2,14 +2,13 @@
 
 from __future__ import annotations
 
-from datetime import UTC, datetime
+from datetime import datetime
 from typing import Annotated
 
 import typer
 
 from issuer.cli.app import app
 from issuer.cli.common import DbOption, JsonOption, console, open_register_from_options, print_json
-from issuer.errors import InvalidFormat
 
 log_app = typer.Typer(
     help="Show the log of who did what and when; 'log verify' checks that nobody edited it.",
@@ -20,13 +19,9 @@ app.add_typer(log_app, name="log")
 
 
 def parse_since(text: str | None) -> datetime | None:
-    if text is None:
-        return None
-    try:
-        moment = datetime.fromisoformat(text)
-    except ValueError:
-        raise InvalidFormat(f"--since {text!r} is not a date like 2026-03-01 or 2026-03-01T09:30") from None
-    return moment.replace(tzinfo=UTC) if moment.tzinfo is None else moment
+    from issuer import limits
+
+    return None if text is None else limits.moment("--since", text)
 
 
 @log_app.callback()
@@ -47,8 +42,10 @@ def show_log(
     """List logged acts, oldest first (filter with --series, --actor, --since, --last)."""
     if ctx.invoked_subcommand is not None:
         return
+    from issuer import limits
     from issuer.register.lifecycle import log_entries
 
+    limits.number("entries", last, label="--last")
     register = open_register_from_options(db, None)
     with register.reading() as session:
         events = log_entries(session, series=series, actor=by, since=parse_since(since), limit=last)

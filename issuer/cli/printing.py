@@ -16,6 +16,7 @@ from issuer.cli.common import (
     PERSONAL_DATA_CAUTION,
     ActorOption,
     DbOption,
+    ForceOption,
     JsonOption,
     console,
     open_register_from_options,
@@ -166,7 +167,9 @@ def _run(
     as_json: bool,
     reason: str | None = None,
     reprint: bool = False,
+    force: bool = False,
 ) -> None:
+    from issuer import limits
     from issuer.config import load_settings
     from issuer.labels import get_layout, output_format
     from issuer.labels.fonts import fallbacks_from_config
@@ -177,6 +180,8 @@ def _run(
     # everything that needs no register is checked first
     if reprint:
         reason = require_reason(reason)
+    limits.number("batch", batch, label="--batch")
+    limits.text("title", caption, label="--caption")
     kind = output_format(out)
     settings = load_settings(database=db, actor=actor)
     name = layout or (DEFAULT_SHEET_LAYOUT if kind == "pdf" else DEFAULT_SINGLE_LAYOUT)
@@ -210,7 +215,7 @@ def _run(
 
             outcome = print_selection(
                 register, selection, out, options, reason=reason, reprint=reprint,
-                progress=progress,
+                progress=progress, force=force,
             )  # fmt: skip
     finally:
         register.close()
@@ -322,6 +327,7 @@ def labels(
     outlines: OutlinesOption = False,
     text_beside: BesideOption = False,
     dpi: DpiOption = 300,
+    force: ForceOption = False,
     db: DbOption = None,
     actor: ActorOption = None,
     as_json: JsonOption = False,
@@ -332,7 +338,7 @@ def labels(
         barcode=barcode, layout=layout, skip=skip, lines=lines, caption=caption,
         void=_void_mode(void_labels, without_void), gs1_prefix=gs1_prefix,
         outlines=outlines, text_beside=text_beside, dpi=dpi, db=db, actor=actor,
-        as_json=as_json,
+        as_json=as_json, force=force,
     )  # fmt: skip
 
 
@@ -364,6 +370,7 @@ def reprint(
     outlines: OutlinesOption = False,
     text_beside: BesideOption = False,
     dpi: DpiOption = 300,
+    force: ForceOption = False,
     db: DbOption = None,
     actor: ActorOption = None,
     as_json: JsonOption = False,
@@ -374,5 +381,5 @@ def reprint(
         barcode=barcode, layout=layout, skip=skip, lines=lines, caption=caption,
         void=_void_mode(void_labels, False), gs1_prefix=gs1_prefix, outlines=outlines,
         text_beside=text_beside, dpi=dpi, db=db, actor=actor, as_json=as_json,
-        reason=reason, reprint=True,
+        reason=reason, reprint=True, force=force,
     )  # fmt: skip

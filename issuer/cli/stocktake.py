@@ -12,6 +12,7 @@ from issuer.cli.app import app
 from issuer.cli.common import (
     ActorOption,
     DbOption,
+    ForceOption,
     JsonOption,
     console,
     err_console,
@@ -19,6 +20,7 @@ from issuer.cli.common import (
     print_json,
     progress_bar,
 )
+from issuer.outputs import check_target, output_text
 
 if TYPE_CHECKING:
     from issuer.stocktake.reconcile import Reconciliation
@@ -71,6 +73,7 @@ def reconcile_command(
         typer.Option("--record", help="Log a 'seen' event for every scanned code the register holds, with the scan's time "
                      "and place ('issuer history' then shows when a tag was last seen)."),
     ] = False,
+    force: ForceOption = False,
     db: DbOption = None,
     actor: ActorOption = None,
     as_json: JsonOption = False,
@@ -84,14 +87,14 @@ def reconcile_command(
     from issuer.stocktake.report import write_report
 
     register = open_register_from_options(db, actor)
+    if out is not None:
+        check_target(out, force=force, what="--out")
     with err_console().status("Reading the scans and comparing them with the register..."):
         table = read_scans(scanfile, column=column, time_column=time_column, where_column=where_column)
         recon = reconcile(register, key, table)
     found = sightings(recon) if record else None  # a bad scan time stops us before any write
     if out is not None:
-        from issuer.cli.transfer import atomic_output
-
-        with atomic_output(out) as stream:
+        with output_text(out, force=force, what="--out") as stream:
             write_report(recon, stream)
     recorded = None
     if found is not None:

@@ -3,12 +3,9 @@ systems."""
 
 from __future__ import annotations
 
-import os
 import sys
-from collections.abc import Iterator
-from contextlib import contextmanager
 from pathlib import Path
-from typing import IO, TYPE_CHECKING, Annotated
+from typing import TYPE_CHECKING, Annotated
 
 import typer
 
@@ -17,6 +14,7 @@ from issuer.cli.common import (
     PERSONAL_DATA_CAUTION,
     ActorOption,
     DbOption,
+    ForceOption,
     JsonOption,
     console,
     err_console,
@@ -25,34 +23,13 @@ from issuer.cli.common import (
     print_json,
     progress_bar,
 )
-from issuer.errors import RegisterError
+from issuer.outputs import check_target, output_text
 
 if TYPE_CHECKING:
     from issuer.register.importing import ImportPlan, ImportResult
 
 #: rows shown in the terminal per list before "and N more"
 SHOW_ROWS = 10
-
-
-@contextmanager
-def atomic_output(path: Path) -> Iterator[IO[str]]:
-    """A text file that appears at ``path`` whole when the block succeeds, and not at
-    all (``path`` untouched) when it fails."""
-    import tempfile
-
-    target = path.expanduser()
-    try:
-        handle, name = tempfile.mkstemp(dir=target.resolve().parent, prefix=".issuer-", suffix=".part")
-    except OSError as exc:
-        raise RegisterError(f"cannot write {path}: {exc.strerror}") from None
-    temporary = Path(name)
-    try:
-        with os.fdopen(handle, "w", newline="", encoding="utf-8") as stream:
-            yield stream
-        os.replace(temporary, target)
-    except BaseException:
-        temporary.unlink(missing_ok=True)
-        raise
 
 
 @app.command(
@@ -70,6 +47,7 @@ def export(
         Path | None,
         typer.Option("--out", help="Write to this file (whole or not at all) instead of standard output.", dir_okay=False),
     ] = None,
+    force: ForceOption = False,
     db: DbOption = None,
 ) -> None:
     """Stream a series' codes out to CSV, JSON or JSON Lines.
@@ -83,13 +61,15 @@ def export(
     if status not in STATUS_CHOICES:
         fail(f"--status must be one of {', '.join(STATUS_CHOICES)}, not {status!r}")
     register = open_register_from_options(db, None)
+    if out is not None:
+        check_target(out, force=force, what="--out")
     total = count_codes(register, key, status)
     with progress_bar(total, f"Exporting {total:,} codes") as advance:
         if out is None:
             written = export_codes(register, key, sys.stdout, fmt=fmt, status=status, progress=advance)
             sys.stdout.flush()
             return
-        with atomic_output(out) as stream:
+        with output_text(out, force=force, what="--out") as stream:
             written = export_codes(register, key, stream, fmt=fmt, status=status, progress=advance)
     err_console().print(f"Exported {written:,} codes of series {key} to {out}")
 
@@ -119,6 +99,7 @@ def import_(
         Path | None,
         typer.Option("--rejects", help="With --skip-bad: write the skipped rows and why to this CSV.", dir_okay=False),
     ] = None,
+    force: ForceOption = False,
     db: DbOption = None,
     actor: ActorOption = None,
     as_json: JsonOption = False,
@@ -133,6 +114,8 @@ def import_(
     if rejects is not None and not skip_bad:
         fail("--rejects lists skipped rows: give it with --skip-bad")
     register = open_register_from_options(db, actor)
+    if rejects is not None:
+        check_target(rejects, force=force, what="--rejects")
     with err_console().status("Reading and checking every row..."):
         table = read_table(file, column=column, roles=IMPORT_ROLES)
         plan = plan_import(register, key, table)
@@ -143,10 +126,10 @@ def import_(
         if not plan.rows:
             fail(f"{file}: every row was bad, nothing imported")
         if rejects is not None and plan.rejected:
-            import csv
+            from issuer.outputs import SafeCsvWriter
 
-            with atomic_output(rejects) as stream:
-                csv.writer(stream).writerows(rejects_rows(plan, table))
+            with output_text(rejects, force=force, what="--rejects") as stream:
+                SafeCsvWriter(stream).writerows(rejects_rows(plan, table))
         with progress_bar(len(plan.rows), f"Importing {len(plan.rows):,} codes") as advance:
             result = apply_import(register, plan, progress=advance)
     if as_json:

@@ -16,7 +16,6 @@ file of the same name is left as it was).
 from __future__ import annotations
 
 import os
-import secrets
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass
 from pathlib import Path
@@ -26,6 +25,7 @@ from issuer.errors import InvalidFormat, LabelError
 from issuer.labels import LabelContent, Layout, output_format, render_labels
 from issuer.labels.design import FIELDS
 from issuer.labels.fonts import font_set
+from issuer.outputs import OutputRefused, check_target, place, temporary_beside
 from issuer.register.lifecycle import require_reason
 from issuer.register.printing import PrintRow, PrintSelection, record_prints
 from issuer.register.store import Register
@@ -124,16 +124,6 @@ class PrintOutcome:
         return data
 
 
-def _temporary_beside(target: Path, kind: str) -> Path:
-    folder = target.parent if str(target.parent) else Path(".")
-    if not folder.is_dir():
-        raise LabelError(f"folder {os.fspath(folder)!r} does not exist")
-    if target.is_dir():
-        raise LabelError(f"{os.fspath(target)!r} is a folder")
-    # the suffix stays, so the renderer writes the same format
-    return folder / f".{target.stem}.{secrets.token_hex(6)}.{kind}"
-
-
 def print_selection(
     register: Register,
     selection: PrintSelection,
@@ -143,19 +133,22 @@ def print_selection(
     reason: str | None = None,
     reprint: bool = False,
     progress: Callable[[int], None] | None = None,
+    force: bool = False,
 ) -> PrintOutcome:
     """Draw ``selection`` to ``out`` (``.pdf`` sheet, or one label as ``.png``/``.svg``)
     and record one print per code — or a reprint, which needs a ``reason``.
 
     ``progress`` is called with the number of labels drawn so far. On any error nothing
-    is logged and no new file is left behind.
+    is logged and no new file is left behind. An existing ``out`` is replaced only with
+    ``force`` (never a register or a non-file: :mod:`issuer.outputs`).
     """
     if reprint:
         reason = require_reason(reason)
     kind = output_format(out)
-    target = Path(out)
+    target = check_target(out, force=force, what="--out")
     labels = label_contents(selection.rows, options.lines, options.caption)
-    temp = _temporary_beside(target, kind)
+    # the suffix stays, so the renderer writes the same format
+    temp, note = temporary_beside(target, suffix=f".{kind}")
     keep = False
     try:
         result = render_labels(
@@ -187,16 +180,19 @@ def print_selection(
             extra=extra,
         )
         try:
-            os.replace(temp, target)
-        except OSError as exc:
+            place(temp, target, force=force)
+        except (OSError, OutputRefused) as exc:
             keep = True
+            why = exc.message if isinstance(exc, OutputRefused) else exc.strerror
             raise LabelError(
                 f"the labels were drawn and recorded as printed, but could not be moved to "
-                f"{os.fspath(target)!r} ({exc.strerror}); they are in {os.fspath(temp)!r}"
+                f"{os.fspath(target)!r} ({why}); they are in {os.fspath(temp)!r}"
             ) from None
     finally:
         if not keep:
             temp.unlink(missing_ok=True)
+        if note is not None:
+            note.unlink(missing_ok=True)
     return PrintOutcome(
         path=target,
         format=kind,

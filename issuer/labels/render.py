@@ -15,7 +15,6 @@ from __future__ import annotations
 import io
 import os
 import re
-import tempfile
 from collections.abc import Callable, Iterator, Sequence
 from contextlib import contextmanager
 from dataclasses import dataclass, field
@@ -59,22 +58,13 @@ def output_format(out: str | os.PathLike[str]) -> str:
 
 @contextmanager
 def _atomic(out: str | os.PathLike[str]) -> Iterator[Path]:
-    """A temporary path beside ``out``, moved onto ``out`` only when the block succeeds."""
-    target = Path(out)
-    folder = target.parent if str(target.parent) else Path(".")
-    if not folder.is_dir():
-        raise LabelError(f"folder {os.fspath(folder)!r} does not exist")
-    if target.is_dir():
-        raise LabelError(f"{os.fspath(target)!r} is a folder")
-    fd, name = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".part", dir=folder)
-    os.close(fd)
-    temp = Path(name)
-    try:
+    """A temporary path beside ``out``, moved onto ``out`` only when the block succeeds
+    (the caller decides whether ``out`` may be replaced; a register, a folder or a device
+    never is: :mod:`issuer.outputs`)."""
+    from issuer.outputs import staged_path
+
+    with staged_path(out, force=True, what="label file") as temp:
         yield temp
-        os.replace(temp, target)
-    finally:
-        if temp.exists():
-            temp.unlink()
 
 
 def _pdf(

@@ -10,6 +10,7 @@ from __future__ import annotations
 import os
 import shlex
 import sqlite3
+import stat
 from collections.abc import Callable, Iterator, Sequence
 from contextlib import contextmanager
 from dataclasses import dataclass
@@ -21,7 +22,9 @@ from sqlalchemy.engine import make_url
 from sqlalchemy.exc import DBAPIError
 from sqlalchemy.orm import Session
 
+from issuer import limits
 from issuer.errors import Conflict, InvalidFormat, NoRegister, PermissionDenied, RegisterError
+from issuer.outputs import is_register_file, temporary_beside
 from issuer.register.log import ChainReport, verify_chain
 from issuer.register.models import IssuedCode, LogEntry, Series
 from issuer.register.store import (
@@ -239,6 +242,31 @@ class BackupResult:
         return dict(self.__dict__)
 
 
+def _backup_target(destination: str | Path, force: bool) -> Path:
+    """Where a backup may go: a new file, or with ``force`` an older backup (a regular
+    file that is no open register nor its journal)."""
+    limits.file_name("backup file", destination)
+    target = Path(os.path.abspath(Path(destination).expanduser()))
+    try:
+        info = os.stat(target)
+    except FileNotFoundError:
+        info = None
+    except OSError as exc:
+        raise InvalidFormat(f"cannot use {target}: {exc.strerror}") from None
+    if info is not None:
+        if stat.S_ISDIR(info.st_mode):
+            raise InvalidFormat(f"{target} is a folder; give a file name for the backup")
+        if not stat.S_ISREG(info.st_mode):
+            raise InvalidFormat(f"{target} is not a regular file (a device, pipe or socket)")
+        if not force:
+            raise Conflict(f"{target} exists already; use --force to overwrite it")
+        if is_register_file(target):
+            raise InvalidFormat(f"{target} is an open register or one of its journals; a backup never replaces it")
+    if target.parent.exists() and not target.parent.is_dir():
+        raise InvalidFormat(f"{target.parent} is not a folder")
+    return target
+
+
 def _create_private(path: Path) -> None:
     descriptor = os.open(path, os.O_CREAT | os.O_EXCL | os.O_WRONLY, 0o600)
     os.close(descriptor)
@@ -270,28 +298,24 @@ def backup_sqlite(
     source = sqlite_path(register)
     if source is None:
         raise InvalidFormat("online backup works on a SQLite register file")
-    target = Path(destination).expanduser().resolve()
-    if target == source.resolve():
+    if Path(os.path.abspath(Path(destination).expanduser())) == source.resolve():
         raise InvalidFormat("the backup cannot overwrite the register itself")
-    if target.is_dir():
-        raise InvalidFormat(f"{target} is a folder; give a file name for the backup")
-    if target.exists() and not force:
-        raise Conflict(f"{target} exists already; use --force to overwrite it")
-    if not target.parent.is_dir():
-        raise InvalidFormat(f"the folder {target.parent} does not exist")
-    partial = target.parent / f".{target.name}.{os.getpid()}.partial"
-    try:
-        _create_private(partial)
-    except OSError as exc:
-        raise RegisterError(f"cannot write the backup in {target.parent}: {exc.strerror}") from None
+    # a backup is itself a register: refusing SQLite files would refuse every --force
+    target = _backup_target(destination, force)
+    partial, note = temporary_beside(target)
     try:
         head_id, head_hash = _copy(source, partial, progress)
+        if not force and os.path.lexists(target):
+            raise Conflict(f"{target} appeared meanwhile; use --force to overwrite it")
         os.replace(partial, target)
         _fsync_directory(target.parent)
     except BaseException:
         for leftover in (partial, Path(f"{partial}-journal"), Path(f"{partial}-wal"), Path(f"{partial}-shm")):
             leftover.unlink(missing_ok=True)
         raise
+    finally:
+        if note is not None:
+            note.unlink(missing_ok=True)
     return BackupResult(str(source), str(target), target.stat().st_size, head_id, head_hash)
 
 

@@ -166,39 +166,40 @@ class CodeSink(Protocol):
 class CodesCsv:
     """A batch's codes as a CSV file, written whole or not at all.
 
-    ``with CodesCsv(path) as sink: issue_codes(..., sink=sink)``: the rows go to a
-    hidden file beside ``path``, which replaces ``path`` only when the block ends
-    without an error; otherwise it is removed and ``path`` is left as it was.
+    ``with CodesCsv(path) as sink: issue_codes(..., sink=sink)``: the target is checked
+    when the object is made (an existing file without ``force``, the register, a folder
+    are refused before anything is issued); the rows go to a hidden file beside it,
+    which is moved into place only when the block ends without an error, and removed
+    otherwise.
     """
 
     COLUMNS = ("code", "display", "base", "series", "batch")
 
-    def __init__(self, path: Path | str) -> None:
-        self.path = Path(path)
+    def __init__(self, path: Path | str, *, force: bool = False) -> None:
+        from issuer.outputs import check_target
+
+        self.path = check_target(path, force=force, what="--out")
+        self.force = force
         self._temporary: Path | None = None
+        self._note: Path | None = None
         self._stream: Any = None
         self._writer: Any = None
         self.rows = 0
 
     def __enter__(self) -> Self:
-        import tempfile
+        from issuer.outputs import temporary_beside
 
-        directory = self.path.expanduser().resolve().parent
-        try:
-            handle, name = tempfile.mkstemp(dir=directory, prefix=".issuer-", suffix=".csv")
-        except OSError as exc:
-            raise RegisterError(f"cannot write {self.path}: {exc.strerror}") from None
-        self._temporary = Path(name)
-        self._stream = os.fdopen(handle, "w", newline="", encoding="utf-8")
+        self._temporary, self._note = temporary_beside(self.path)
+        self._stream = open(self._temporary, "w", newline="", encoding="utf-8")
         self.restart()
         return self
 
     def restart(self) -> None:
-        import csv
+        from issuer.outputs import SafeCsvWriter
 
         self._stream.seek(0)
         self._stream.truncate()
-        self._writer = csv.writer(self._stream)
+        self._writer = SafeCsvWriter(self._stream)
         self._writer.writerow(self.COLUMNS)
         self.rows = 0
 
@@ -209,12 +210,29 @@ class CodesCsv:
         self.rows += len(chunk.codes)
 
     def __exit__(self, exc_type: object, *_: object) -> None:
+        from issuer.outputs import OutputRefused, place
+
         assert self._temporary is not None
+        temporary, note = self._temporary, self._note
+        self._stream.flush()
+        os.fsync(self._stream.fileno())
         self._stream.close()
-        if exc_type is None:
-            os.replace(self._temporary, self.path)
-        else:
-            self._temporary.unlink(missing_ok=True)
+        try:
+            if exc_type is not None:
+                temporary.unlink(missing_ok=True)
+                return
+            try:
+                place(temporary, self.path, force=self.force)
+            except (OSError, OutputRefused) as exc:
+                # the batch has committed: keep its list where the clerk can find it
+                why = exc.message if isinstance(exc, OutputRefused) else exc.strerror
+                raise RegisterError(
+                    f"the batch was issued, but its codes could not be written to {self.path} ({why}); "
+                    f"they are in {temporary}"
+                ) from None
+        finally:
+            if note is not None:
+                note.unlink(missing_ok=True)
 
 
 # --- the database side ---------------------------------------------------------------------

@@ -19,12 +19,13 @@ from __future__ import annotations
 import hashlib
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
-from datetime import UTC, datetime
+from datetime import datetime
 from typing import Any
 
 from sqlalchemy.orm import Session
 
-from issuer.errors import Conflict, InvalidFormat
+from issuer import limits
+from issuer.errors import Conflict, InvalidFormat, OutOfLimits
 from issuer.readers.bulkread import BAD_CHECK, MALFORMED, read_codes
 from issuer.readers.scanfile import Table
 from issuer.register.driver import bind_value, execute_many, insert_many
@@ -49,8 +50,11 @@ IMPORT_ROLES: dict[str, tuple[str, ...]] = {
     "last_seen_where": ("last_seen_where",),
     "expected_where": ("expected_where", "expected_place", "place", "home", "location", "shelf"),
 }
-#: column widths of the register
-WIDTHS = {"holder": 200, "issued_by": 120, "voided_by": 120, "last_seen_where": 200, "expected_where": 200}
+#: each text column and the field whose limit it keeps (see issuer.limits)
+FIELDS = {
+    "holder": "holder", "note": "note", "issued_by": "actor", "voided_by": "actor",
+    "void_reason": "reason", "last_seen_where": "location", "expected_where": "location",
+}  # fmt: skip
 #: bad lines named in a refusal before "and N more"
 NAMED_IN_REFUSAL = 10
 
@@ -110,10 +114,9 @@ class ImportPlan:
 
 def _time(text: str, what: str) -> datetime:
     try:
-        moment = datetime.fromisoformat(text)
-    except ValueError:
-        raise ValueError(f"{what} {text!r} is not a date like 2019-04-01 or 2019-04-01T09:30:00Z") from None
-    return moment.replace(tzinfo=UTC) if moment.tzinfo is None else moment.astimezone(UTC)
+        return limits.moment(what, text)
+    except OutOfLimits as exc:
+        raise ValueError(exc.message) from None
 
 
 def plan_import(register: Register, key: str, table: Table) -> ImportPlan:
@@ -180,16 +183,17 @@ def _row(line: int, code: str, base: int, index: int, cell: Callable[[str, int],
     if voided_at is not None and issued_at is not None and voided_at < issued_at:
         raise ValueError("voided_at is before issued_at")
     seen_at = _time(text, "last_seen_at") if (text := cell("last_seen_at", index)) else None
-    values = {name: cell(name, index) for name in WIDTHS}
-    for name, width in WIDTHS.items():
-        value = values[name]
-        if value is not None and len(value) > width:
-            raise ValueError(f"{name} is longer than {width} characters")
+    values = {name: cell(name, index) for name in FIELDS}
+    for name, field_name in FIELDS.items():
+        try:
+            limits.text(field_name, values[name])
+        except OutOfLimits as exc:
+            raise ValueError(f"{name}: {exc.message}") from None
     return ImportRow(
         line=line, code=code, base=base, status=status, issued_at=issued_at,
-        issued_by=values["issued_by"], holder=values["holder"], note=cell("note", index),
+        issued_by=values["issued_by"], holder=values["holder"], note=values["note"],
         voided_at=voided_at, voided_by=values["voided_by"],
-        void_reason=cell("void_reason", index) if status == VOIDED else None,
+        void_reason=values["void_reason"] if status == VOIDED else None,
         replaces=cell("replaces", index), last_seen_at=seen_at, last_seen_where=values["last_seen_where"],
         expected_where=" ".join(values["expected_where"].split()) if values["expected_where"] else None,
     )  # fmt: skip

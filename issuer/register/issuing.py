@@ -19,6 +19,7 @@ from sqlalchemy import Table, bindparam, insert, select, update
 from sqlalchemy.exc import IntegrityError
 from sqlalchemy.orm import Session
 
+from issuer import limits
 from issuer.errors import Conflict, Exhausted, InvalidFormat, NotFound
 from issuer.register.bulk import CHUNK, CodeSink, IssuedChunk, check_room, store_bulk
 from issuer.register.log import NewEntry, append_entry
@@ -253,8 +254,10 @@ def issue_codes(
     A bulk batch of a scattered series lists its codes in number order (they are all
     issued at one instant; see :func:`~issuer.register.bulk.allocate_chunks`).
     """
-    if count < 1:
-        raise InvalidFormat("the count must be at least 1")
+    limits.number("count", count)
+    limits.text("holder", holder)
+    limits.text("note", note)
+    limits.text("request id", request_id)
     if request_id is not None and not request_id.strip():
         raise InvalidFormat("a request id cannot be empty")
 

@@ -13,6 +13,7 @@ from typing import Any
 from sqlalchemy import or_, select
 from sqlalchemy.orm import Session
 
+from issuer import limits
 from issuer.checking.codes import normalise_text
 from issuer.errors import Conflict, InvalidCheck, InvalidFormat, NotFound
 from issuer.register.issuing import allocate, store_codes
@@ -23,7 +24,7 @@ from issuer.register.store import Register
 
 
 def require_reason(reason: str | None) -> str:
-    text = (reason or "").strip()
+    text = (limits.text("reason", reason) or "").strip()
     if not text:
         raise InvalidFormat("a reason is required (say why, for the log)")
     return text
@@ -288,15 +289,16 @@ def log_entries(
     """Logged events, oldest first, filtered."""
     statement = select(LogEntry).order_by(LogEntry.id)
     if series is not None:
-        series_id = session.scalar(select(Series.id).where(Series.key == series))
+        series_id = session.scalar(select(Series.id).where(Series.key == limits.text("series key", series)))
         if series_id is None:
             raise NotFound(f"no series {series!r} in this register")
         statement = statement.where(LogEntry.series_id == series_id)
     if actor is not None:
-        statement = statement.where(LogEntry.actor == actor)
+        statement = statement.where(LogEntry.actor == limits.text("actor", actor))
     if since is not None:
-        statement = statement.where(LogEntry.at >= since)
+        statement = statement.where(LogEntry.at >= limits.moment("since", since))
     if limit is not None:
+        limits.number("entries", limit)
         statement = statement.order_by(None).order_by(LogEntry.id.desc()).limit(limit)
         return list(reversed(_events(session, statement)))
     return _events(session, statement)

@@ -11,9 +11,10 @@ from typing import TYPE_CHECKING
 from sqlalchemy import func, select, text
 from sqlalchemy.orm import Session
 
+from issuer import limits
 from issuer.checking.codes import CodeFormat, normalise_affix
 from issuer.checking.schemes import get_scheme
-from issuer.errors import Conflict, InvalidFormat, NotFound
+from issuer.errors import Conflict, InvalidFormat, NotFound, OutOfLimits
 from issuer.register.log import NewEntry, append_entry
 from issuer.register.models import ISSUED, SCATTERED, SEQUENTIAL, VOIDED, IssuedCode, Series
 
@@ -119,14 +120,29 @@ def could_coincide(one: CodeFormat, other: CodeFormat) -> bool:
     return len(first) == len(second) and all(a & b for a, b in zip(first, second))
 
 
+def check_spec_limits(spec: SeriesSpec) -> None:
+    """Every field of a series within its limit (:mod:`issuer.limits`)."""
+    limits.text("title", spec.title)
+    limits.text("prefix", spec.prefix)
+    limits.text("suffix", spec.suffix)
+    limits.text("separator", spec.sep)
+    limits.text("alphabet", spec.alphabet)
+    limits.number("length", spec.length)
+    limits.number("start", spec.start)
+    limits.number("end", spec.end)
+    for size in spec.group:
+        limits.number("group size", size)
+
+
 def build_format(spec: SeriesSpec) -> tuple[CodeFormat, int, int]:
     """Validate a spec; return its shape and inclusive base range."""
-    if not KEY_PATTERN.match(spec.key):
+    if not isinstance(spec.key, str) or not KEY_PATTERN.fullmatch(spec.key):
         raise InvalidFormat(
-            f"series key {spec.key!r} must be 1-64 lower-case letters, digits, - or _"
+            f"series key {spec.key[:70]!r} must be 1-64 lower-case letters, digits, - or _"
         )
     if spec.mode not in MODES:
         raise InvalidFormat(f"mode must be one of {', '.join(MODES)}, not {spec.mode!r}")
+    check_spec_limits(spec)
     scheme = get_scheme(spec.scheme, spec.alphabet)
     max_length = getattr(scheme, "max_body_length", None)
     if max_length is not None and spec.length > max_length:
@@ -141,6 +157,11 @@ def build_format(spec: SeriesSpec) -> tuple[CodeFormat, int, int]:
         spec.group,
         spec.sep,
     )
+    if shape.total_width > limits.MAX_CODE_CHARS:
+        raise OutOfLimits(
+            f"a code of this shape has {shape.total_width} characters (prefix, body, check, suffix); "
+            f"the limit is {limits.MAX_CODE_CHARS}"
+        )
     top = shape.capacity - 1
     start = 1 if spec.start is None else spec.start
     end = min(top, MAX_BASE) if spec.end is None else spec.end
@@ -261,6 +282,7 @@ def change_series(register: Register, key: str, **changes: object) -> Series:
         raise InvalidFormat(f"cannot change {', '.join(sorted(unknown))} of a series")
     if not wanted:
         raise InvalidFormat("nothing to change: name at least one field")
+    limits.text("title", wanted.get("title"))  # type: ignore[arg-type]
 
     def work(session: Session) -> Series:
         lock_definitions(session)
@@ -307,6 +329,7 @@ def change_series(register: Register, key: str, **changes: object) -> Series:
 
 
 def get_series(session: Session, key: str, *, lock: bool = False) -> Series:
+    limits.text("series key", key)
     statement = select(Series).where(Series.key == key)
     if lock:
         # FOR NO KEY UPDATE: a plain FOR UPDATE would also block the key-share locks

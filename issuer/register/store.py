@@ -30,7 +30,9 @@ from sqlalchemy.engine import make_url
 from sqlalchemy.exc import ArgumentError, DBAPIError, OperationalError
 from sqlalchemy.orm import Session
 
+from issuer import limits
 from issuer.errors import IssuerError, NoRegister, PermissionDenied, RegisterError, redact
+from issuer.outputs import private_folder, protect
 
 T = TypeVar("T")
 
@@ -65,9 +67,10 @@ def _prepare_sqlite_file(url: str) -> None:
     if not database or database == ":memory:":
         return
     path = Path(database)
+    protect(path)
     try:
         # a folder made for a register is the owner's alone, like the file in it
-        path.parent.mkdir(mode=0o700, parents=True, exist_ok=True)
+        private_folder(path.parent)
         if not path.exists():
             descriptor = os.open(path, os.O_CREAT | os.O_WRONLY, 0o600)
             os.close(descriptor)
@@ -221,6 +224,7 @@ def open_register(
     raises :class:`NoRegister` and nothing is made: a mistyped path must not become an
     empty register. ``create=True`` makes the register there when there is none.
     """
+    limits.text("actor", actor)
     url = database_url(database)
     if not create:
         _refuse_missing_file(url)

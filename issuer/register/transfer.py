@@ -135,9 +135,9 @@ class _Writer:
             raise InvalidFormat(f"--format must be one of {', '.join(FORMATS)}, not {fmt!r}")
         self.stream, self.fmt, self.first = stream, fmt, True
         if fmt == "csv":
-            import csv
+            from issuer.outputs import SafeCsvWriter
 
-            self.csv = csv.writer(stream)
+            self.csv = SafeCsvWriter(stream)
             self.csv.writerow(EXPORT_COLUMNS)
         elif fmt == "json":
             stream.write("[")

@@ -38,14 +38,22 @@ from datetime import datetime
 from pathlib import Path
 from typing import Any
 
+from issuer import limits
 from issuer.checking.codes import CodeFormat
+from issuer.errors import InvalidFormat, OutOfLimits
 from issuer.readers.bulkread import BAD_CHECK, MALFORMED, read_codes
 from issuer.readers.scanfile import Table, read_table
 from issuer.register.counting import CountInfo, scope_query_filter
 from issuer.register.models import ISSUED, VOIDED
 from issuer.register.places import codes_of_other_series, expected_places, same_place, scope_codes
 from issuer.register.series import code_format, get_series
-from issuer.register.stocktake import Sighting, held_codes, last_seen, record_sightings, void_details
+from issuer.register.stocktake import (
+    Sighting,
+    held_codes,
+    last_seen,
+    record_sightings,
+    void_details,
+)
 from issuer.register.store import Register
 from issuer.stocktake.results import (
     COUNT_KEYS,
@@ -259,6 +267,10 @@ def sightings(recon: Reconciliation) -> list[Sighting]:
         if times_text is not None and times_text[index]:
             when = parse_scan_time(times_text[index], number, zone)
         where = where_text[index] or None if where_text is not None else None
+        try:
+            limits.text("location", where)
+        except OutOfLimits as exc:
+            raise InvalidFormat(f"line {number}: {exc.message}") from None
         before = latest.get(code)
         if before is None or when is None or (before[0] is not None and when >= before[0]):
             latest[code] = (when, where, VOIDED if status == VOIDED else ISSUED)

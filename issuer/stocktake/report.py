@@ -3,11 +3,11 @@ missing code) and as JSON (counts, and the list of each class beside them)."""
 
 from __future__ import annotations
 
-import csv
 from collections.abc import Iterator
 from datetime import datetime
 from typing import IO, Any
 
+from issuer.outputs import SafeCsvWriter
 from issuer.stocktake.results import LINE_CLASSES, Reconciliation, ScanLine
 
 #: the report's own columns; the scan file's other columns follow them
@@ -69,7 +69,7 @@ def report_rows(recon: Reconciliation) -> Iterator[list[Any]]:
 
 def write_report(recon: Reconciliation, stream: IO[str]) -> int:
     """Write the CSV report; returns the number of data rows."""
-    writer = csv.writer(stream)
+    writer = SafeCsvWriter(stream)
     rows = report_rows(recon)
     writer.writerow(next(rows))
     writer.writerows(rows)

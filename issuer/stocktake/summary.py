@@ -3,11 +3,11 @@ PDF report prints, for spreadsheets and other programs."""
 
 from __future__ import annotations
 
-import csv
 import json
 from collections.abc import Iterator, Sequence
 from typing import IO, Any
 
+from issuer.outputs import SafeCsvWriter
 from issuer.register.counting import CountInfo, FileInfo
 
 #: the CSV's columns
@@ -53,7 +53,7 @@ def summary_rows(result: dict[str, Any]) -> Iterator[list[Any]]:
 
 
 def write_csv(info: CountInfo, files: Sequence[FileInfo], result: dict[str, Any], stream: IO[str]) -> None:
-    writer = csv.writer(stream)
+    writer = SafeCsvWriter(stream)
     writer.writerows(summary_rows(result))
 
 

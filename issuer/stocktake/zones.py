@@ -73,15 +73,13 @@ def resolve_zone(name: str | None) -> str:
 def parse_scan_time(text: str, line: int, zone: tzinfo = UTC) -> datetime:
     """A scan's time in UTC: ISO 8601 (``2026-03-14T09:30:00+01:00``, ``2026-03-14 09:30``,
     ``2026-03-14``); a time without a zone is read in ``zone``."""
+    from issuer import limits
+    from issuer.errors import OutOfLimits
+
     try:
-        moment = datetime.fromisoformat(text.strip())
-    except ValueError:
-        raise InvalidFormat(
-            f"line {line}: {text!r} is not a date and time like 2026-03-14T09:30:00Z"
-        ) from None
-    if moment.tzinfo is None:
-        moment = moment.replace(tzinfo=zone)
-    return moment.astimezone(UTC)
+        return limits.moment("scan time", text, zone=zone)
+    except OutOfLimits as exc:
+        raise InvalidFormat(f"line {line}: {exc.message.removeprefix('scan time ')}") from None
 
 
 __all__ = ["machine_zone_name", "parse_scan_time", "resolve_zone", "zone_named"]

@@ -91,12 +91,18 @@ def test_backup_refuses_to_overwrite_without_force(cli: Any, db_path: Path, tmp_
     assert assert_consistent(str(target)).series_next == {"tools": 121, "members": 80}
 
 
-def test_backup_refuses_the_register_itself_and_a_missing_folder(cli: Any, db_path: Path, tmp_path: Path) -> None:
+def test_backup_refuses_the_register_itself_and_makes_a_missing_folder_private(
+    cli: Any, db_path: Path, tmp_path: Path
+) -> None:
     fill(str(db_path))
     itself = cli("backup", str(db_path), "--force")
     assert itself.exit_code == 2 and "register itself" in itself.stderr
-    nowhere = cli("backup", str(tmp_path / "no" / "such" / "folder" / "b.sqlite"))
-    assert nowhere.exit_code == 2 and "does not exist" in nowhere.stderr
+    journal = cli("backup", f"{db_path}-wal", "--force")
+    assert journal.exit_code == 2 and "journal" in journal.stderr
+    made = cli("backup", str(tmp_path / "no" / "such" / "folder" / "b.sqlite"))
+    assert made.exit_code == 0, made.output
+    for folder in (tmp_path / "no", tmp_path / "no" / "such", tmp_path / "no" / "such" / "folder"):
+        assert stat.S_IMODE(folder.stat().st_mode) == 0o700
 
 
 def test_backup_while_a_desk_keeps_issuing(db_path: Path, tmp_path: Path) -> None:

@@ -325,7 +325,8 @@ def test_layout_that_does_not_fit(
     before = _state(db_path)
     out = folder / "labels.pdf"
     out.write_bytes(b"an earlier sheet")
-    _refused(cli("labels", "--series", "tools", "--layout", layout, "--out", str(out)), words)
+    # --force: the drawing is what fails here, not the existing file
+    _refused(cli("labels", "--series", "tools", "--layout", layout, "--out", str(out), "--force"), words)
     # the earlier file is untouched, no half-written file is left beside it
     assert out.read_bytes() == b"an earlier sheet"
     assert [p.name for p in folder.iterdir()] == ["labels.pdf"]
@@ -339,10 +340,11 @@ def test_output_problems(cli: Any, db_path: Path, folder: Path) -> None:
     _refused(
         cli("labels", "--series", "tools", "--out", str(folder / "tags.png")), "holds one label"
     )
-    _refused(
-        cli("labels", "--series", "tools", "--out", str(folder / "no" / "t.pdf")), "does not exist"
-    )
-    assert list(folder.iterdir()) == [] and _state(db_path) == before
+    (folder / "sheet.pdf").mkdir()
+    _refused(cli("labels", "--series", "tools", "--out", str(folder / "sheet.pdf")), "is a folder")
+    (folder / "device.pdf").symlink_to("/dev/null")
+    _refused(cli("labels", "--series", "tools", "--out", str(folder / "device.pdf"), "--force"), "not a regular file")
+    assert sorted(p.name for p in folder.iterdir()) == ["device.pdf", "sheet.pdf"] and _state(db_path) == before
 
 
 def test_gs1_giai_on_request(cli: Any, folder: Path) -> None:

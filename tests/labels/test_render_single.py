@@ -173,9 +173,12 @@ def test_bad_input_is_refused_and_nothing_is_written(
     assert _nothing_written(tmp_path)
 
 
-def test_missing_folder_is_refused(tmp_path: Path) -> None:
-    with pytest.raises(LabelError, match="does not exist"):
-        render_labels(tool_tags(1), get_layout("a4-3x8"), tmp_path / "nowhere" / "tags.pdf")
+def test_missing_folder_is_made_owner_only(tmp_path: Path) -> None:
+    import stat
+
+    render_labels(tool_tags(1), get_layout("a4-3x8"), tmp_path / "nowhere" / "tags.pdf")
+    assert (tmp_path / "nowhere" / "tags.pdf").is_file()
+    assert stat.S_IMODE((tmp_path / "nowhere").stat().st_mode) == 0o700
 
 
 def test_failure_while_drawing_leaves_no_file(

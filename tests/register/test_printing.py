@@ -311,9 +311,9 @@ def test_failed_drawing_writes_nothing_and_logs_nothing(register: Any, folder: P
         {"tiny": {"page": "a4", "rows": 1, "columns": 1, "label_width": 20, "label_height": 10}},
     )
     with pytest.raises(LabelError, match="too small"):
-        print_selection(register, selection, old, LabelOptions(tiny))
+        print_selection(register, selection, old, LabelOptions(tiny), force=True)
     with pytest.raises(LabelError, match="skip"):
-        print_selection(register, selection, old, LabelOptions(get_layout("a4-3x8"), skip=24))
+        print_selection(register, selection, old, LabelOptions(get_layout("a4-3x8"), skip=24), force=True)
     assert old.read_bytes() == b"an earlier sheet"
     assert sorted(p.name for p in folder.iterdir()) == ["tags.pdf"]
     assert _log_size(register) == before and _print_counts(register, codes) == [0, 0, 0]
