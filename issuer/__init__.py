@@ -5,4 +5,4 @@ return values; only :mod:`issuer.register` touches a database and only
 :mod:`issuer.cli` touches a terminal.
 """
 
-__version__ = "0.1.0"
+__version__ = "0.2.0"

@@ -55,6 +55,7 @@ COMMAND_MODULES: dict[str, tuple[str, ...]] = {
     "layouts": ("labels",), "labels": ("printing",), "reprint": ("printing",),
     "reconcile": ("stocktake",), "import": ("transfer",), "export": ("transfer",),
     "stocktake": ("counts",), "place": ("counts",),
+    "serve": ("service",), "tokens": ("service",),
 }  # fmt: skip
 
 

@@ -24,8 +24,8 @@ from issuer.cli.common import (
     progress_bar,
 )
 
-DEFAULT_SHEET_LAYOUT = "a4-3x8"
-DEFAULT_SINGLE_LAYOUT = "roll-50x25"
+# the defaults live with the print job; named here for --help
+from issuer.labels.layouts import DEFAULT_SHEET_LAYOUT, DEFAULT_SINGLE_LAYOUT  # noqa: E402
 #: jobs of at least this many labels show a progress bar (about a second of drawing)
 PROGRESS_FROM = 1000
 _SYMBOLOGY_NAMES = {"code128": "Code 128", "qr": "QR Code", "datamatrix": "Data Matrix"}
@@ -171,9 +171,8 @@ def _run(
 ) -> None:
     from issuer import limits
     from issuer.config import load_settings
-    from issuer.labels import get_layout, output_format
-    from issuer.labels.fonts import fallbacks_from_config
-    from issuer.labels.printjob import LabelOptions, parse_lines, print_selection
+    from issuer.labels import output_format
+    from issuer.labels.printjob import options_from_settings, print_selection
     from issuer.register.lifecycle import require_reason
     from issuer.register.printing import select_for_printing
 
@@ -184,21 +183,10 @@ def _run(
     limits.text("title", caption, label="--caption")
     kind = output_format(out)
     settings = load_settings(database=db, actor=actor)
-    name = layout or (DEFAULT_SHEET_LAYOUT if kind == "pdf" else DEFAULT_SINGLE_LAYOUT)
-    chosen = get_layout(name, settings.section("layouts"), settings.folder)
-    fields = chosen.design.fields if lines is None else None
-    options = LabelOptions(
-        layout=chosen,
-        symbology=barcode,
-        skip=skip,
-        lines=fields if fields is not None else parse_lines(lines or "title"),
-        fonts=fallbacks_from_config(settings.section("labels"), settings.folder),
-        caption=caption,
-        gs1_company_prefix=gs1_prefix,
-        outlines=outlines,
-        text_beside=text_beside,
-        dpi=dpi,
-    )
+    options = options_from_settings(
+        settings, kind, layout, lines, symbology=barcode, skip=skip, caption=caption,
+        gs1_company_prefix=gs1_prefix, outlines=outlines, text_beside=text_beside, dpi=dpi,
+    )  # fmt: skip
     register = open_register_from_options(db, actor)
     try:
         selection = select_for_printing(

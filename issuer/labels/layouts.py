@@ -380,3 +380,12 @@ def get_layout(
     if layout is None:
         raise UnknownName(f"unknown layout {name!r} (known: {', '.join(known)})")
     return layout
+
+
+#: the layout a job uses when none is named: a sheet for a PDF, one roll label otherwise
+DEFAULT_SHEET_LAYOUT = "a4-3x8"
+DEFAULT_SINGLE_LAYOUT = "roll-50x25"
+
+
+def default_layout(kind: str) -> str:
+    return DEFAULT_SHEET_LAYOUT if kind == "pdf" else DEFAULT_SINGLE_LAYOUT

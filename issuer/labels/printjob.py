@@ -96,6 +96,24 @@ class LabelOptions:
     fonts: tuple[str, ...] = ()  # fallback font files, in order, after the bundled faces
 
 
+def options_from_settings(
+    settings: Any, kind: str, layout: str | None = None, lines: str | None = None, **extra: Any
+) -> LabelOptions:
+    """A job's options as the config says: the named layout (or the default for the file
+    kind), its fields unless ``lines`` are given, and the configured fallback fonts."""
+    from issuer.labels.fonts import fallbacks_from_config
+    from issuer.labels.layouts import default_layout, get_layout
+
+    chosen = get_layout(layout or default_layout(kind), settings.section("layouts"), settings.folder)
+    fields = chosen.design.fields if lines is None else None
+    return LabelOptions(
+        layout=chosen,
+        lines=fields if fields is not None else parse_lines(lines or "title"),
+        fonts=fallbacks_from_config(settings.section("labels"), settings.folder),
+        **extra,
+    )
+
+
 @dataclass(frozen=True)
 class PrintOutcome:
     """A finished job: the file, what is on it, and how many prints were logged."""

@@ -241,3 +241,20 @@ class StockCountScan(Base):
     scanned: Mapped[str] = mapped_column(String(200))
     seen_at: Mapped[datetime | None] = mapped_column(UTCDateTime(), default=None)
     seen_where: Mapped[str | None] = mapped_column(String(200), default=None)
+class AccessToken(Base):
+    """A bearer token for the HTTP service. Only a slow hash of its secret is kept; the
+    token's name is the actor the log records for what it does."""
+
+    __tablename__ = "access_token"
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    name: Mapped[str] = mapped_column(String(64), unique=True)
+    #: the public half of the token, to find its row without trying every hash
+    lookup: Mapped[str] = mapped_column(String(32), unique=True)
+    role: Mapped[str] = mapped_column(String(16))
+    salt: Mapped[bytes] = mapped_column(LargeBinary)
+    digest: Mapped[bytes] = mapped_column(LargeBinary)
+    created_at: Mapped[datetime] = mapped_column(UTCDateTime())
+    created_by: Mapped[str] = mapped_column(String(120))
+    revoked_at: Mapped[datetime | None] = mapped_column(UTCDateTime(), default=None)
+    revoked_by: Mapped[str | None] = mapped_column(String(120), default=None)

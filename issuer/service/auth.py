@@ -1,0 +1,43 @@
+"""Who is calling: a bearer token in the ``Authorization`` header (the API) or a session
+cookie (the web page), and whether their role allows the act."""
+
+from __future__ import annotations
+
+import time
+
+from fastapi import HTTPException, Request
+
+from issuer.service.state import Caller, ServiceState, client_address
+
+#: a failed token costs its sender this much more waiting per recent failure (capped)
+FAILURE_DELAY_S = 0.2
+FAILURE_DELAY_CAP_S = 2.0
+
+
+def caller_from_header(request: Request) -> Caller:
+    state: ServiceState = request.app.state.issuer
+    address = client_address(request.client)
+    if state.blocked(address):
+        raise HTTPException(429, "too many failed tokens from this address; wait a minute")
+    header = request.headers.get("authorization", "")
+    scheme, _, presented = header.partition(" ")
+    if scheme.lower() != "bearer" or not presented.strip():
+        raise HTTPException(401, "send a token: 'Authorization: Bearer <token>' (issuer tokens add)",
+                            headers={"WWW-Authenticate": 'Bearer realm="issuer"'})  # fmt: skip
+    caller = state.caller_for(presented.strip())
+    if caller is None:
+        slow_down(state, address)
+        raise HTTPException(401, "the token is not valid (unknown, mistyped or revoked)",
+                            headers={"WWW-Authenticate": 'Bearer realm="issuer", error="invalid_token"'})  # fmt: skip
+    return caller
+
+
+def slow_down(state: ServiceState, address: str) -> None:
+    """Count a failure from ``address`` and make its sender wait: guessing gets slower."""
+    failures = state.failed(address)
+    time.sleep(min(FAILURE_DELAY_S * failures, FAILURE_DELAY_CAP_S))
+
+
+def require(caller: Caller, act: str) -> None:
+    if not caller.may(act):
+        raise HTTPException(403, f"the {caller.role} role may not {act}: ask an admin")
