@@ -1,0 +1,157 @@
+"""The web desk page: sign-in, cookies, CSRF on every changing form, the role's buttons;
+then the same in a real browser (Debian's chromium driven by Playwright)."""
+
+from __future__ import annotations
+
+import os
+import re
+import shutil
+from typing import Any
+
+import pytest
+
+from tests.service.client import Api
+
+
+def _csrf(html: str) -> str:
+    found = re.search(r'name="csrf" value="([^"]+)"', html)
+    assert found, html
+    return found.group(1)
+
+
+def _sign_in(api: Api, token: str) -> str:
+    page = api.get("/")
+    assert page.status_code == 200 and "Sign in" in page.text
+    response = api.post("/login", data={"csrf": _csrf(page.text), "token": token}, follow_redirects=False)
+    assert response.status_code == 303, response.text
+    cookie = response.headers["set-cookie"]
+    assert "HttpOnly" in cookie and "SameSite=strict" in cookie.replace("Strict", "strict")
+    desk = api.get("/")
+    assert "Scan or type a code" in desk.text
+    return _csrf(desk.text)
+
+
+def test_sign_in_needs_the_form_token_and_a_valid_token(served: tuple[Api, dict[str, str], Any]) -> None:
+    api, tokens, _ = served
+    page = api.get("/")
+    assert page.headers["content-security-policy"].startswith("default-src 'none'")
+    forged = Api(api.app).post("/login", data={"csrf": "made-up", "token": tokens["clerk"]}, follow_redirects=False)
+    assert forged.status_code == 403
+    wrong = api.post("/login", data={"csrf": _csrf(page.text), "token": "not a token"}, follow_redirects=False)
+    assert wrong.status_code == 401 and "not valid" in wrong.text
+    assert "Scan or type a code" not in Api(api.app).get("/").text
+
+
+def test_desk_answers_and_acts_with_csrf(served: tuple[Api, dict[str, str], Any]) -> None:
+    from issuer.register.issuing import issue_codes
+    from issuer.register.lifecycle import code_history
+
+    api, tokens, register = served
+    csrf = _sign_in(api, tokens["admin"])
+    code = issue_codes(register, "tools", 1, holder="workshop shelf B").codes[0]
+    answer = api.get("/", params={"code": code.display})
+    assert "In use" in answer.text and "workshop shelf B" in answer.text and "✓" in answer.text
+    # a changing form without the session's CSRF token is refused and changes nothing
+    refused = api.post("/desk/void", data={"code": code.code, "reason": "lost", "csrf": "guess"})
+    assert refused.status_code == 403
+    with register.reading() as session:
+        assert code_history(session, code.code)[0].status == "issued"
+    done = api.post("/desk/void", data={"code": code.code, "reason": "tag snapped", "csrf": csrf})
+    assert done.status_code == 200 and "Voided" in done.text
+    with register.reading() as session:
+        record, events = code_history(session, code.code)
+    assert record.status == "voided" and events[-1].actor == "admin-desk"
+    issued = api.post("/desk/issue", data={"series": "members", "holder": "", "note": "", "csrf": csrf,
+                                           "request": "form-1"})  # fmt: skip
+    assert issued.status_code == 200 and "Issued" in issued.text
+    again = api.post("/desk/issue", data={"series": "members", "csrf": csrf, "request": "form-1"})
+    assert "Already issued for this form" in again.text  # a resent form issues once
+
+
+def test_clerk_sees_no_void_button_and_cannot_post_one(served: tuple[Api, dict[str, str], Any]) -> None:
+    from issuer.register.issuing import issue_codes
+
+    api, tokens, register = served
+    csrf = _sign_in(api, tokens["clerk"])
+    code = issue_codes(register, "tools", 1).codes[0]
+    page = api.get("/", params={"code": code.code})
+    assert "Reprint label" in page.text and "Void for good" not in page.text
+    refused = api.post("/desk/void", data={"code": code.code, "reason": "x", "csrf": csrf})
+    assert refused.status_code == 403 and "may not void" in refused.text
+    reprint = api.post("/desk/reprint", data={"code": code.code, "reason": "label faded", "csrf": csrf})
+    assert reprint.status_code == 200 and reprint.content.startswith(b"%PDF")
+
+
+def _chromium() -> str | None:
+    for name in ("chromium", "chromium-browser"):
+        found = shutil.which(name)
+        if found:
+            return found
+    return None
+
+
+def test_desk_in_a_real_browser(register: Any) -> None:
+    browser_path = _chromium()
+    if browser_path is None:
+        if os.environ.get("ISSUER_REQUIRE_BROWSER") == "1":
+            pytest.fail("no chromium installed, and ISSUER_REQUIRE_BROWSER=1 says this test must run")
+        pytest.skip("no chromium on this machine (Debian: apt-get install chromium)")
+    playwright = pytest.importorskip("playwright.sync_api")
+    from issuer.register.issuing import issue_codes
+    from tests.service.conftest import build_service
+    from tests.service.server import running
+
+    app, tokens = build_service(register)
+    tags = [info for info in issue_codes(register, "tools", 40).codes]
+    target = tags[12]
+    # one adjacent swap of the body: a slip a person makes reading a tag aloud
+    body = target.code[2:]
+    swapped = next(
+        target.code[:2] + body[:i] + body[i + 1] + body[i] + body[i + 2:]
+        for i in range(len(body) - 2, -1, -1) if body[i] != body[i + 1]
+    )
+    with running(app) as base, playwright.sync_playwright() as p:
+        browser = p.chromium.launch(executable_path=browser_path, args=["--no-sandbox"], headless=True)
+        try:
+            page = browser.new_page()
+            page.goto(base + "/")
+            page.fill("#token", tokens["admin"])
+            page.click("button[type=submit]")
+            page.wait_for_selector("#code")
+            assert page.evaluate("document.activeElement.id") == "code"  # the scan field has focus
+            page.keyboard.type(target.display)
+            page.keyboard.press("Enter")
+            page.wait_for_selector("#answer")
+            assert "In use" in page.inner_text("#answer")
+            # a typo: the page offers the intended code, and picking it answers it
+            page.fill("#code", swapped)
+            page.keyboard.press("Enter")
+            page.wait_for_selector(".suggestions a")
+            assert target.display in page.inner_text(".suggestions")
+            page.click(f".suggestions a:has-text('{target.display}')")
+            page.wait_for_selector("#answer")
+            assert "In use" in page.inner_text("#answer")
+            # issue one with a holder
+            page.select_option("#series", "tools")
+            page.fill("#holder", "Quillmere workshop, bench 3")
+            page.click("section.issue button[type=submit]")
+            page.wait_for_selector("p.answer.done")
+            assert "Issued" in page.inner_text("p.answer.done")
+            # void the answered code
+            page.fill("form[action='/desk/void'] input[name=reason]", "tag snapped")
+            page.click("form[action='/desk/void'] button")
+            page.wait_for_selector("p.answer.done")
+            assert "Voided" in page.inner_text("p.answer.done")
+        finally:
+            browser.close()
+    from issuer.register.desk import check_codes
+
+    with register.reading() as session:
+        statuses = [a.status for a in check_codes(session, [target.code])]
+        tools = check_codes(session, [tags[-1].code])
+    assert statuses == ["issued"] and tools[0].status == "issued"
+    from issuer.register.lifecycle import log_entries
+
+    with register.reading() as session:
+        acts = [(e.action, e.actor) for e in log_entries(session)][-2:]
+    assert acts == [("issue", "admin-desk"), ("void", "admin-desk")]
