@@ -20,7 +20,8 @@ import unicodedata
 from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
-from issuer.checking.alphabets import SEPARATORS
+from issuer.checking.alphabets import SEPARATORS, Alphabet
+from issuer.checking.reading import MAX_TYPED, fold_symbols, split_typed, typed_form
 from issuer.checking.schemes.base import Scheme
 from issuer.errors import InvalidCheck, InvalidComponent, InvalidFormat, InvalidLength
 
@@ -30,10 +31,13 @@ if TYPE_CHECKING:
 
 
 def normalise_text(text: str) -> str:
-    """Compatibility-fold, drop separators and spaces, upper-case: the form a prefix or a
-    whole typed code is compared in before the alphabet's own folding."""
-    text = unicodedata.normalize("NFKC", text)
-    return "".join(ch for ch in text if ch not in SEPARATORS).upper()
+    """The typed form of ``text`` (:func:`issuer.checking.reading.typed_form`), or, for text
+    that cannot be read, the same cleaning without refusing, so that it can be named."""
+    try:
+        return typed_form(text)
+    except InvalidFormat:
+        text = unicodedata.normalize("NFKC", text[:MAX_TYPED])
+        return "".join(ch for ch in text if ch not in SEPARATORS and not ch.isspace()).upper()
 
 
 def normalise_affix(text: str) -> str:
@@ -52,6 +56,8 @@ class ParsedCode:
     body: str
     check: str
     suffix: str
+    #: the prefix or suffix was left off and supplied by the reading rules
+    completed: bool = False
 
     @property
     def canonical(self) -> str:
@@ -125,26 +131,24 @@ class CodeFormat:
 
     # -- reading codes ---------------------------------------------------------
     def parse(self, text: str) -> ParsedCode:
-        """Take typed text apart; raise :class:`InvalidFormat` saying what is wrong.
+        """Take typed text apart by the reading rules (:mod:`issuer.checking.reading`);
+        raise :class:`InvalidFormat` saying what is wrong.
 
-        The check character is not verified here (see :meth:`validate`).
+        The check character is not verified here (see :meth:`validate`), but a congruent
+        alternative check the method also accepts is read as the computed one.
         """
-        cleaned = normalise_text(text)
-        if not cleaned:
-            raise InvalidLength("the code is empty")
-        if self.prefix and not cleaned.startswith(self.prefix):
-            raise InvalidComponent(f"does not start with the prefix {self.prefix}")
-        if self.suffix and not cleaned.endswith(self.suffix):
-            raise InvalidComponent(f"does not end with the suffix {self.suffix}")
-        middle = cleaned[len(self.prefix): len(cleaned) - len(self.suffix)]
-        if len(middle) != self.width:
-            raise InvalidLength(
-                f"has {len(middle)} characters between prefix and suffix, expected {self.width}"
-            )
+        middle, completed = split_typed(self, typed_form(text))
         scheme = self.scheme
-        body = scheme.alphabet.canonical(middle[: self.length])
-        check = scheme.check_alphabet.canonical(middle[self.length:])
-        return ParsedCode(self.prefix, body, check, self.suffix)
+        body = self._symbols(middle[: self.length], scheme.alphabet)
+        check = self._symbols(middle[self.length:], scheme.check_alphabet)
+        if scheme.has_alternative_checks:
+            check = scheme.canonical_check(body, check)
+        return ParsedCode(self.prefix, body, check, self.suffix, completed)
+
+    @staticmethod
+    def _symbols(text: str, alphabet: Alphabet) -> str:
+        folded = fold_symbols(text, alphabet.symbols, alphabet.folding)
+        return alphabet.canonical(folded)
 
     def validate(self, text: str) -> ParsedCode:
         """Parse and verify the check character(s)."""

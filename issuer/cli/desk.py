@@ -38,6 +38,8 @@ def _detail(answer: Any) -> str:
         parts.append(answer.reason)
     for suggestion in answer.suggestions:
         parts.append(f"did you mean [bold]{suggestion.display}[/bold]? ({suggestion.description})")
+    if getattr(answer, "advice", None):
+        parts.append(f"[bold]{answer.advice}[/bold]")
     return "\n".join(parts)
 
 

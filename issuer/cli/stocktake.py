@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from itertools import islice
 from pathlib import Path
 from typing import TYPE_CHECKING, Annotated, Any
@@ -130,10 +131,8 @@ def _render(recon: Reconciliation, out: Path | None, recorded: int | None) -> No
         for name in ("line", "scanned", "result", "detail", "probably meant"):
             table.add_column(name)
         for line in problems[:SHOW_LINES]:
-            likely = line.likely[0] if line.likely else None
             table.add_row(
-                str(line.line), line.scanned, line.status.replace("_", " "), line.detail,
-                f"{likely.display} ({likely.description})" if likely else "",
+                str(line.line), line.scanned, line.status.replace("_", " "), line.detail, _meant(line.likely),
             )  # fmt: skip
         terminal.print(table)
         more = len(recon.statuses) - recon.statuses.count("issued") - SHOW_LINES
@@ -152,6 +151,20 @@ def _render(recon: Reconciliation, out: Path | None, recorded: int | None) -> No
         terminal.print("Write every line to a CSV with --out REPORT.csv", style="dim")
     if recorded is not None:
         terminal.print(f"Recorded {recorded:,} sightings in the log")
+
+
+def _meant(likely: Sequence[Any]) -> str:
+    """The likeliest code, or every close one and the advice to read it again."""
+    from issuer.stocktake.results import close_advice
+
+    if not likely:
+        return ""
+    words = close_advice(likely)
+    if words is None:
+        return f"{likely[0].display} ({likely[0].description})"
+    top = [item for item in likely if item.missing == likely[0].missing]
+    close = [item for item in top if item.likelihood >= top[0].likelihood / 2]
+    return " or ".join(f"{item.display} ({item.description})" for item in close) + f"; {words}"
 
 
 def _render_duplicates(terminal: Any, recon: Reconciliation) -> None:

@@ -11,14 +11,14 @@ from sqlalchemy import select
 from sqlalchemy.orm import Session
 
 from issuer.checking.codes import CodeFormat, normalise_text
+from issuer.checking.likely import Ranked, advice
+from issuer.checking.reading import read_code
 from issuer.errors import InvalidFormat
 from issuer.register.models import ISSUED, VOIDED, IssuedCode, Series
 from issuer.register.series import all_series, code_format
 
 #: statuses a desk check answers with
 STATUSES = ("issued", "voided", "not_issued", "bad_check", "malformed")
-#: at most this many suggestions per input
-MAX_SUGGESTIONS = 5
 
 
 @dataclass(frozen=True)
@@ -27,6 +27,8 @@ class Suggestion:
     display: str
     error: str
     description: str
+    #: the probability of the slip that turns this code into the input (see issuer.checking.likely)
+    likelihood: float = 0.0
 
     def as_dict(self) -> dict[str, Any]:
         return dict(self.__dict__)
@@ -44,6 +46,8 @@ class DeskAnswer:
     #: the replacement's display form, for a voided code that was replaced
     replacement: str | None = None
     suggestions: list[Suggestion] = field(default_factory=list)
+    #: words for the clerk when two or more suggestions are about equally likely
+    advice: str | None = None
 
     def as_dict(self) -> dict[str, Any]:
         data = dict(self.__dict__)
@@ -72,59 +76,39 @@ def _stored(session: Session, codes: Iterable[str]) -> dict[str, IssuedCode]:
 
 
 def _readings(shapes: Sequence[tuple[Series, CodeFormat]], text: str) -> tuple[list[_Reading], list[str]]:
-    """Every series the text fits, and otherwise what is wrong: only the problems of
-    series whose prefix and suffix it carries, when there are any."""
-    readings: list[_Reading] = []
-    problems: list[tuple[bool, str]] = []
-    cleaned = normalise_text(text)
-    for series, shape in shapes:
-        try:
-            parsed = shape.parse(text)
-        except InvalidFormat as exc:
-            affixes_fit = cleaned.startswith(shape.prefix) and cleaned.endswith(shape.suffix)
-            problems.append((affixes_fit, f"{series.key}: {exc.message}" if len(shapes) > 1 else exc.message))
-            continue
-        valid = shape.check_matches(parsed)
-        readings.append(_Reading(series, shape, parsed.canonical, valid))
-    closest = [message for fits, message in problems if fits] or [message for _, message in problems]
-    return readings, closest
+    """Every series the text reads as a code of (:func:`issuer.checking.reading.read_code`),
+    and otherwise what is wrong."""
+    by_key = {series.key: (series, shape) for series, shape in shapes}
+    read = read_code([(series.key, shape) for series, shape in shapes], text)
+    readings = [
+        _Reading(by_key[r.series][0], by_key[r.series][1], r.canonical, r.valid) for r in read.readings
+    ]
+    return readings, [read.problem] if read.problem else []
 
 
-def _suggest(session: Session, reading: _Reading) -> list[Suggestion]:
-    from issuer.checking.neighbours import neighbours
+def _ranked(session: Session, shape: CodeFormat, typed: str) -> list[Ranked]:
+    from issuer.checking.likely import suggest
 
-    candidates = neighbours(reading.shape, reading.canonical)
-    stored = _stored(session, (c.code for c in candidates))
-    out = []
-    for candidate in candidates:
-        row = stored.get(candidate.code)
-        if row is not None and row.status == ISSUED:
-            out.append(
-                Suggestion(candidate.code, reading.shape.display(candidate.code),
-                           candidate.error, candidate.description)
-            )
-        if len(out) == MAX_SUGGESTIONS:
-            break
-    return out
+    def issued(codes: list[str]) -> set[str]:
+        return {code for code, row in _stored(session, codes).items() if row.status == ISSUED}
+
+    return suggest(shape, typed, issued)
+
+
+def _suggestions(shape: CodeFormat, ranked: Sequence[Ranked]) -> list[Suggestion]:
+    return [Suggestion(r.code, shape.display(r.code), r.error, r.description, r.likelihood) for r in ranked]
 
 
 def _suggest_length(session: Session, shapes: Sequence[tuple[Series, CodeFormat]], text: str) -> list[Suggestion]:
     """For a text one character short or long: issued codes with one left out or added."""
-    from issuer.checking.neighbours import omission_insertion_candidates
-
     cleaned = normalise_text(text)
     found: list[Suggestion] = []
     for _series, shape in shapes:
         if abs(len(cleaned) - shape.total_width) != 1:
             continue
-        candidates = omission_insertion_candidates(shape, cleaned)
-        stored = _stored(session, (c.code for c in candidates))
-        for candidate in candidates:
-            row = stored.get(candidate.code)
-            if row is not None and row.status == ISSUED:
-                found.append(Suggestion(candidate.code, shape.display(candidate.code),
-                                        candidate.error, candidate.description))
-    return found[:MAX_SUGGESTIONS]
+        found.extend(_suggestions(shape, _ranked(session, shape, cleaned)))
+    found.sort(key=lambda s: -s.likelihood)
+    return found
 
 
 def check_codes(session: Session, inputs: Sequence[str]) -> list[DeskAnswer]:
@@ -170,6 +154,7 @@ def _answer(
             reason = "; ".join(problems) if problems else "does not fit any series"
         answer = DeskAnswer(text, "malformed", reason=reason)
         answer.suggestions = _suggest_length(session, shapes, text)
+        answer.advice = advice([s.likelihood for s in answer.suggestions])
         return answer
     for reading in readings:
         row = stored.get(reading.canonical)
@@ -192,13 +177,18 @@ def _answer(
         if valid
         else "the check character does not match: a typing or reading error"
     )
+    if problems:  # the text fits several series once its prefix is added
+        reason = f"{problems[0]}; {reason}"
     answer = DeskAnswer(
         text, status, reading.canonical, reading.shape.display(reading.canonical),
         reading.series.key, reason=reason,
     )
     for candidate_reading in (valid or readings):
-        answer.suggestions.extend(_suggest(session, candidate_reading))
-    answer.suggestions = answer.suggestions[:MAX_SUGGESTIONS]
+        answer.suggestions.extend(
+            _suggestions(candidate_reading.shape, _ranked(session, candidate_reading.shape, candidate_reading.canonical))
+        )
+    answer.suggestions.sort(key=lambda s: -s.likelihood)
+    answer.advice = advice([s.likelihood for s in answer.suggestions])
     return answer
 
 

@@ -25,6 +25,7 @@ from typing import Any
 from sqlalchemy.orm import Session
 
 from issuer import limits
+from issuer.checking.reading import read_code
 from issuer.errors import Conflict, InvalidFormat, OutOfLimits
 from issuer.readers.bulkread import BAD_CHECK, MALFORMED, read_codes
 from issuer.readers.scanfile import Table
@@ -144,9 +145,9 @@ def plan_import(register: Register, key: str, table: Table) -> ImportPlan:
     for index, (line, text, code, state) in enumerate(zip(table.lines, table.codes, read.canonical, states)):
         try:
             if state == MALFORMED:
-                owner = next((name for name, other in others if other.matches_shape(text)), None)
-                if owner is not None:
-                    raise ValueError(f"{text} is a code of series {owner}, not {key}")
+                other = read_code([(key, shape), *others], text, series=key)
+                if other.other_series is not None:
+                    raise ValueError(other.problem)
                 raise ValueError(f"{text!r} {read.reasons.get(index, 'is not a code of this series')}")
             assert code is not None
             if state == BAD_CHECK:

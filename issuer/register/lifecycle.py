@@ -14,7 +14,7 @@ from sqlalchemy import or_, select
 from sqlalchemy.orm import Session
 
 from issuer import limits
-from issuer.checking.codes import normalise_text
+from issuer.checking.reading import Read, Reading, read_code, shown
 from issuer.errors import Conflict, InvalidCheck, InvalidFormat, NotFound
 from issuer.register.issuing import allocate, store_codes
 from issuer.register.log import NewEntry, append_entry
@@ -30,24 +30,23 @@ def require_reason(reason: str | None) -> str:
     return text
 
 
-def canonical_candidates(session: Session, text: str) -> list[tuple[Series, str]]:
-    """Each series whose shape ``text`` fits, with the text's canonical form in it."""
-    found = []
-    for series in all_series(session):
-        shape = code_format(series)
-        try:
-            found.append((series, shape.parse(text).canonical))
-        except InvalidFormat:
-            continue
-    return found
+def read_typed(session: Session, text: str, *, series: str | None = None) -> tuple[list[tuple[Series, Reading]], Read]:
+    """Each series ``text`` reads as a code of (by :func:`issuer.checking.reading.read_code`),
+    with that reading; and the whole reading, for its problem when there is none."""
+    known = {one.key: one for one in all_series(session)}
+    read = read_code([(key, code_format(one)) for key, one in known.items()], text, series=series)
+    return [(known[r.series], r) for r in read.readings], read
 
 
-def find_code(session: Session, text: str, *, lock: bool = False) -> IssuedCode:
-    """The stored code a typed text names; raise when it names none."""
-    candidates = canonical_candidates(session, text)
+def find_code(session: Session, text: str, *, lock: bool = False, series: str | None = None) -> IssuedCode:
+    """The stored code a typed text names; raise when it names none. With ``series``, a
+    code of another series is refused, naming the series it belongs to."""
+    candidates, read = read_typed(session, text, series=series)
     if not candidates:
-        raise InvalidFormat(f"{text.strip()!r} does not have the shape of any series' codes")
-    statement = select(IssuedCode).where(IssuedCode.code.in_([code for _, code in candidates]))
+        if read.other_series is not None:
+            raise InvalidFormat(f"{shown(text)}: {read.problem}")
+        raise InvalidFormat(f"{shown(text)} does not have the shape of a code ({read.problem or 'empty'})")
+    statement = select(IssuedCode).where(IssuedCode.code.in_([r.canonical for _, r in candidates]))
     if lock:
         # NO KEY UPDATE, like the series lock: rows referring to this one must not wait
         statement = statement.with_for_update(key_share=True).execution_options(
@@ -55,9 +54,12 @@ def find_code(session: Session, text: str, *, lock: bool = False) -> IssuedCode:
         )
     row = session.scalars(statement).first()
     if row is None:
-        if not any(code_format(series).matches_check(code) for series, code in candidates):
-            raise InvalidCheck(f"{normalise_text(text)}: the check character does not match (a typo?)")
-        raise NotFound(f"{normalise_text(text)} was never issued by this register")
+        first = candidates[0][1]
+        if read.ambiguous:
+            raise InvalidFormat(f"{shown(text)}: {read.problem}")
+        if not any(r.valid for _, r in candidates):
+            raise InvalidCheck(f"{first.display}: the check character does not match (a typo?)")
+        raise NotFound(f"{first.display} was never issued by this register")
     return row
 
 

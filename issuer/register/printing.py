@@ -151,13 +151,11 @@ def _by_batch(session: Session, batch_id: int) -> tuple[list[PrintRow], str]:
 
 
 def _end_of_range(session: Session, series: Series, text: str, option: str) -> IssuedCode:
-    code = find_code(session, text)
-    if code.series_id != series.id:
+    code = find_code(session, text, series=series.key)
+    if code.series_id != series.id:  # the same shape in two series: read as this one's, held by the other
         other = session.get(Series, code.series_id)
         assert other is not None
-        raise InvalidFormat(
-            f"{option} {text.strip()!r} is a code of series {other.key}, not of {series.key}"
-        )
+        raise InvalidFormat(f"{option} {text.strip()!r} belongs to series {other.key}, not {series.key}")
     return code
 
 

@@ -39,7 +39,8 @@ from pathlib import Path
 from typing import Any
 
 from issuer import limits
-from issuer.checking.codes import CodeFormat
+from issuer.checking.codes import CodeFormat, normalise_text
+from issuer.checking.likely import rank
 from issuer.errors import InvalidFormat, OutOfLimits
 from issuer.readers.bulkread import BAD_CHECK, MALFORMED, read_codes
 from issuer.readers.scanfile import Table, read_table
@@ -58,9 +59,9 @@ from issuer.register.store import Register
 from issuer.stocktake.results import (
     COUNT_KEYS,
     LINE_CLASSES,
-    MAX_SUGGESTIONS,
     Likely,
     MissingCode,
+    close_advice,
     Reconciliation,
     ScanLine,
 )
@@ -92,19 +93,17 @@ def read_scans(
 
 
 def _likely(
-    shape: CodeFormat, candidates: Sequence[Any], issued: set[str], scanned: Counter[str]
+    shape: CodeFormat, typed: str, candidates: Sequence[Any], issued: set[str], scanned: Counter[str]
 ) -> tuple[Likely, ...]:
-    found = []
-    for candidate in candidates:
-        if candidate.code in issued:
-            found.append(
-                Likely(candidate.code, shape.display(candidate.code), candidate.error,
-                       candidate.description, candidate.code not in scanned)
-            )
-            if len(found) == MAX_SUGGESTIONS:
-                break
-    # a code that is also missing from the scan is the likelier one; order is kept otherwise
-    return tuple(sorted(found, key=lambda item: not item.missing))
+    """The issued candidates ranked as at the desk (:mod:`issuer.checking.likely`), except
+    that a code also missing from the scan comes before codes found on the shelf: a tag
+    scanned in its place is not the one that was misread."""
+    ranked = rank(shape, typed, candidates, issued)
+    found = [
+        Likely(r.code, shape.display(r.code), r.error, r.description, r.code not in scanned, r.likelihood)
+        for r in ranked
+    ]
+    return tuple(sorted(found, key=lambda item: (not item.missing, -item.likelihood)))
 
 
 def _seen_where(table: Table, count: CountInfo | None) -> list[str] | None:
@@ -183,20 +182,21 @@ def reconcile(
                 first_line[scanned] = number
     likely: dict[str, tuple[Likely, ...]] = {}
     for code in sorted(unknown, key=first_line.__getitem__):  # in file order
-        likely[code] = _likely(shape, neighbours(shape, code), issued, times)
+        likely[code] = _likely(shape, code, neighbours(shape, code), issued, times)
     likely_by_line: dict[int, tuple[Likely, ...]] = {}
     for index in read.reasons:
         if index in others:
             continue
         candidates = omission_insertion_candidates(shape, table.codes[index])
         if candidates:
-            likely_by_line[index] = _likely(shape, candidates, issued, times)
+            typed = normalise_text(table.codes[index])
+            likely_by_line[index] = _likely(shape, typed, candidates, issued, times)
     perhaps: dict[str, int] = {}
     for code, options in likely.items():
-        if options and options[0].missing:
+        if options and options[0].missing and close_advice(options) is None:
             perhaps.setdefault(options[0].code, first_line[code])
     for index, options in likely_by_line.items():
-        if options and options[0].missing:
+        if options and options[0].missing and close_advice(options) is None:
             perhaps.setdefault(options[0].code, table.lines[index])
     counts = _counts(statuses, canonical, others, times, len(missing))
     counts["blank_lines"], counts["comment_lines"] = table.blank_lines, table.comment_lines

@@ -8,7 +8,7 @@ from datetime import datetime
 from typing import IO, Any
 
 from issuer.outputs import SafeCsvWriter
-from issuer.stocktake.results import LINE_CLASSES, Reconciliation, ScanLine
+from issuer.stocktake.results import LINE_CLASSES, Reconciliation, ScanLine, close_advice
 
 #: the report's own columns; the scan file's other columns follow them
 REPORT_COLUMNS = (
@@ -51,9 +51,13 @@ def report_rows(recon: Reconciliation) -> Iterator[list[Any]]:
             continue
         likely = recon.likely.get(code, ()) if code is not None else recon.likely_by_line.get(index, ())
         first = likely[0] if likely else None
+        detail = recon.detail(index, code, status)
+        words = close_advice(likely)
+        if words:
+            detail = f"{detail}; {words}" if detail else words
         yield [
             number, text, code or "", status, times[code] if code is not None else 1,
-            recon.detail(index, code, status), first.code if first else "",
+            detail, first.code if first else "",
             first.description if first else "", "", "", place, *cells,
         ]  # fmt: skip
     blanks = [""] * len(extras)
@@ -109,6 +113,7 @@ def _entry(recon: Reconciliation, index: int, line: ScanLine) -> dict[str, Any]:
     elif line.status in ("bad_check", "not_issued"):
         entry["scanned"] = line.scanned
         entry["likely"] = [item.as_dict() for item in line.likely]
+        entry["advice"] = close_advice(line.likely)
     return entry
 
 
@@ -143,7 +148,8 @@ def as_json(recon: Reconciliation) -> dict[str, Any]:
         if status == "malformed":
             lists["malformed"].append({
                 "line": line.line, "scanned": line.scanned, "reason": line.detail,
-                "likely": [item.as_dict() for item in line.likely], **_scan_fields(recon, line),
+                "likely": [item.as_dict() for item in line.likely], "advice": close_advice(line.likely),
+                **_scan_fields(recon, line),
             })  # fmt: skip
             continue
         entry = _entry(recon, index, line)

@@ -4,12 +4,13 @@ scanned, and the likely intended code of each typo (see :mod:`issuer.stocktake.r
 from __future__ import annotations
 
 from collections import Counter
-from collections.abc import Iterator
+from collections.abc import Iterator, Sequence
 from dataclasses import dataclass, field
 from datetime import datetime
 from typing import Any
 
 from issuer.checking.codes import CodeFormat
+from issuer.checking.likely import advice
 from issuer.readers.scanfile import Table
 from issuer.register.models import ISSUED, VOIDED
 from issuer.register.places import OtherSeries
@@ -39,8 +40,13 @@ MEANINGS = {
     "duplicates": "codes scanned more than once",
     "missing": "expected, but not scanned",
 }
-#: suggestions kept per line
-MAX_SUGGESTIONS = 5
+
+
+def close_advice(likely: Sequence[Likely]) -> str | None:
+    """Words for the clerk when two or more likely codes (among the missing ones, if any
+    is missing) are about equally likely (:func:`issuer.checking.likely.advice`)."""
+    first = [item for item in likely if item.missing] or list(likely)
+    return advice([item.likelihood for item in first])
 
 
 @dataclass(frozen=True)
@@ -52,6 +58,8 @@ class Likely:
     error: str
     description: str
     missing: bool
+    #: the probability of the slip that turns this code into the scan (issuer.checking.likely)
+    likelihood: float = 0.0
 
     def as_dict(self) -> dict[str, Any]:
         return dict(self.__dict__)

@@ -83,7 +83,8 @@ def test_export_to_stdout_and_file_then_import_elsewhere(cli: Any, register: Reg
 def test_import_refuses_a_file_naming_each_bad_line(cli: Any, register: Register, tmp_path: Path) -> None:
     add_series(register, TOOLS)
     add_series(register, MEMBERS)
-    card = issue_codes(register, "members").codes[0].code
+    card_issued = issue_codes(register, "members").codes[0]
+    card = card_issued.code
     bad_check = tool(7)[:-1] + str((int(tool(7)[-1]) + 1) % 10)
     path = tmp_path / "legacy.csv"
     path.write_text(f"code,holder\n{tool(5)},Workshop\n{tool(6)},\n{tool(5)},\n{bad_check},\n{card},\n")
@@ -92,7 +93,7 @@ def test_import_refuses_a_file_naming_each_bad_line(cli: Any, register: Register
     assert "3 bad rows" in message and "nothing imported" in message
     assert f"line 4: {tool(5)} is a duplicate of line 2" in message
     assert f"line 5: {bad_check}: the check character does not match" in message
-    assert f"line 6: {card} is a code of series members, not tools" in message
+    assert f"line 6: {card_issued.display} belongs to series members, not tools" in message
     assert counts(register) == before
     assert "--rejects lists skipped rows" in one_error_line(
         cli("import", "tools", str(path), "--rejects", str(tmp_path / "r.csv")))

@@ -140,7 +140,8 @@ def state(register: Register) -> tuple[int, int, tuple[int, str]]:
 def test_a_bad_file_is_refused_whole_naming_each_line(register: Register, tmp_path: Path) -> None:
     add_series(register, TOOLS)
     add_series(register, PASSES)
-    pass_code = issue_codes(register, "passes").codes[0].code
+    pass_issued = issue_codes(register, "passes").codes[0]
+    pass_code = pass_issued.code
     good = luhn_code("QTL", "0004001")
     path = write_csv(tmp_path / "legacy.csv", ["code", "issued_at", "holder"], [
         [good, "2019-04-01", "Workshop"],                      # line 2
@@ -159,7 +160,7 @@ def test_a_bad_file_is_refused_whole_naming_each_line(register: Register, tmp_pa
     assert "\n" not in message
     assert f"line 4: {good} is a duplicate of line 2" in message
     assert "line 5: QTL0004003" in message and "check character does not match" in message
-    assert f"line 6: {pass_code} is a code of series passes, not tools" in message
+    assert f"line 6: {pass_issued.display} belongs to series passes, not tools" in message
     assert "line 7: 'QTL1234' has 4 characters between prefix and suffix" in message
     assert "line 8: issued_at 2999-01-01 is in the future" in message
     assert state(register) == before

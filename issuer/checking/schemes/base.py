@@ -52,6 +52,9 @@ class Scheme(ABC):
     #: error classes the method detects in every case (names as in ``issuer.checking.assess``:
     #: single, adjacent, jump, twin, jump_twin, phonetic); a promise the tests hold it to
     guaranteed: ClassVar[frozenset[str]] = frozenset()
+    #: whether the published condition accepts more than one check for a body (ISO/IEC
+    #: 7064 pure systems with two check characters); such codes are read in one form
+    has_alternative_checks: ClassVar[bool] = False
 
     def __init__(self, alphabet: Alphabet) -> None:
         reason = self.unsupported_reason(alphabet)
@@ -90,6 +93,18 @@ class Scheme(ABC):
         characters) overrides this with its own congruence.
         """
         return tuple(check) == self.compute_values(body)
+
+    def canonical_check(self, body: str, check: str) -> str:
+        """``check`` for canonical ``body``, with a congruent alternative the method also
+        accepts replaced by the check it computes (one code per number)."""
+        if not self.has_alternative_checks or len(check) != self.check_length:
+            return check
+        body_values = self.alphabet.values(body)
+        if not all(ch in self.check_alphabet.symbols for ch in check):
+            return check
+        if self.verify_values(body_values, self.check_alphabet.values(check)):
+            return self.check_alphabet.text(self.compute_values(body_values))
+        return check
 
     def make_check_alphabet(self, alphabet: Alphabet) -> Alphabet:
         """The set the check character(s) come from; the body alphabet by default."""

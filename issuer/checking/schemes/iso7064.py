@@ -10,7 +10,8 @@ over the body, then once more times r per check character; the check value is th
 ``c`` with ``P + c ≡ 1`` and, for two check characters, is written as two base-r
 digits. MOD 11-2 writes the check value 10 as ``X``; MOD 37-2 writes 36 as ``*``.
 Where r² > M a congruent second value also satisfies the condition, and the standard
-accepts it; for MOD 97-10 the value computed is ``98 - (body · 100 mod 97)``, in
+accepts it; issuer reads such a pair as the computed one (one code per number, see
+:mod:`issuer.checking.reading`); for MOD 97-10 the value computed is ``98 - (body · 100 mod 97)``, in
 02..98, as the standard's simplified procedure (and IBAN) computes it.
 
 Hybrid systems MOD (M+1, M) (11-10, 27-26, 37-36): ``P = M``; for each character
@@ -199,6 +200,7 @@ class Iso7064Mod97_10(PureSystem):
     published = DIGITS
     modulus, radix = 97, 10
     check_length = 2
+    has_alternative_checks = True
     # the standard's simplified procedure: 98 - (body followed by 00, mod 97)
     check_offset = 98
 
@@ -210,6 +212,7 @@ class Iso7064Mod661_26(PureSystem):
     published = LETTERS
     modulus, radix = 661, 26
     check_length = 2
+    has_alternative_checks = True
 
 
 class Iso7064Mod1271_36(PureSystem):
@@ -219,6 +222,7 @@ class Iso7064Mod1271_36(PureSystem):
     published = ALNUM
     modulus, radix = 1271, 36
     check_length = 2
+    has_alternative_checks = True
 
 
 class Iso7064Mod11_10(HybridSystem):
