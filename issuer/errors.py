@@ -92,6 +92,13 @@ class Conflict(RegisterError):
     default_message = "the request conflicts with the register's contents"
 
 
+class DuplicateRow(Conflict):
+    """A row the database refused because it would repeat a unique value (the register's
+    one line for a constraint violation; never the driver's traceback)."""
+
+    default_message = "the register holds that value already"
+
+
 class Exhausted(RegisterError):
     default_message = "the series has no numbers left"
 

@@ -44,6 +44,7 @@ from __future__ import annotations
 
 from collections.abc import Callable, Iterator, Mapping, Sequence
 from dataclasses import dataclass
+from functools import partial
 from types import MappingProxyType
 
 from issuer.checking.codes import CodeFormat, normalise_text
@@ -139,44 +140,41 @@ class _Shape:
         return ordinal(position + self.offset + 1)
 
 
-def _swap(middle: str, i: int, j: int) -> str:
-    chars = list(middle)
-    chars[i], chars[j] = chars[j], chars[i]
-    return "".join(chars)
+#: a candidate from a generator: the code meant, and how to describe the slip (only
+#: called for valid candidates, so that the hundreds of invalid ones cost no words)
+_Candidate = tuple[str, Callable[[], str]]
 
 
-def _put(middle: str, changes: Mapping[int, str]) -> str:
-    chars = list(middle)
-    for position, ch in changes.items():
-        chars[position] = ch
-    return "".join(chars)
-
-
-def _singles(shape: _Shape, typed: str) -> Iterator[tuple[str, str]]:
+def _singles(shape: _Shape, typed: str) -> Iterator[_Candidate]:
     for i, was_typed in enumerate(typed):
+        head, tail = typed[:i], typed[i + 1 :]
         for ch in shape.symbols[i]:
             if ch != was_typed:
-                yield _put(typed, {i: ch}), f"{shape.place(i)} character: {ch} typed as {was_typed}"
+                yield head + ch + tail, partial(_single_words, shape, i, ch, was_typed)
 
 
-def _transpositions(shape: _Shape, typed: str, gap: int) -> Iterator[tuple[str, str]]:
+def _single_words(shape: _Shape, i: int, ch: str, was_typed: str) -> str:
+    return f"{shape.place(i)} character: {ch} typed as {was_typed}"
+
+
+def _transpositions(shape: _Shape, typed: str, gap: int) -> Iterator[_Candidate]:
     for i in range(len(typed) - gap):
         j = i + gap
         a, b = typed[i], typed[j]
         if a == b or not (shape.allowed(i, b) and shape.allowed(j, a)):
             continue
-        meant = _swap(typed, i, j)
-        yield (
-            meant,
-            (
-                f"{shape.place(i)} and {shape.place(j)} characters swapped "
-                f"({meant[i : j + 1]} typed as {typed[i : j + 1]})"
-            ),
-        )
+        meant = typed[:i] + b + typed[i + 1 : j] + a + typed[j + 1 :]
+        yield meant, partial(_swap_words, shape, typed, meant, i, j)
 
 
-def _twins(shape: _Shape, typed: str, gap: int) -> Iterator[tuple[str, str]]:
-    label = "twin" if gap == 1 else "jump twin"
+def _swap_words(shape: _Shape, typed: str, meant: str, i: int, j: int) -> str:
+    return (
+        f"{shape.place(i)} and {shape.place(j)} characters swapped "
+        f"({meant[i : j + 1]} typed as {typed[i : j + 1]})"
+    )
+
+
+def _twins(shape: _Shape, typed: str, gap: int) -> Iterator[_Candidate]:
     for i in range(len(typed) - gap):
         j = i + gap
         b = typed[i]
@@ -184,17 +182,19 @@ def _twins(shape: _Shape, typed: str, gap: int) -> Iterator[tuple[str, str]]:
             continue
         for a in shape.symbols[i]:
             if a != b and shape.allowed(j, a):
-                meant = _put(typed, {i: a, j: a})
-                yield (
-                    meant,
-                    (
-                        f"{label} {meant[i : j + 1]} typed as {typed[i : j + 1]} "
-                        f"at {shape.place(i)}\u2013{shape.place(j)} characters"
-                    ),
-                )
+                meant = typed[:i] + a + typed[i + 1 : j] + a + typed[j + 1 :]
+                yield meant, partial(_twin_words, shape, typed, meant, i, j, gap)
 
 
-def _phonetics(shape: _Shape, typed: str) -> Iterator[tuple[str, str]]:
+def _twin_words(shape: _Shape, typed: str, meant: str, i: int, j: int, gap: int) -> str:
+    label = "twin" if gap == 1 else "jump twin"
+    return (
+        f"{label} {meant[i : j + 1]} typed as {typed[i : j + 1]} "
+        f"at {shape.place(i)}\u2013{shape.place(j)} characters"
+    )
+
+
+def _phonetics(shape: _Shape, typed: str) -> Iterator[_Candidate]:
     if not shape.decimal:
         return
     for i in range(len(typed) - 1):
@@ -207,16 +207,14 @@ def _phonetics(shape: _Shape, typed: str) -> Iterator[tuple[str, str]]:
             continue
         if not (shape.allowed(i, meant_pair[0]) and shape.allowed(i + 1, meant_pair[1])):
             continue
-        yield (
-            _put(typed, {i: meant_pair[0], i + 1: meant_pair[1]}),
-            (
-                f"phonetic: {meant_pair} heard as {x}{y} "
-                f"at {shape.place(i)}\u2013{shape.place(i + 1)} characters"
-            ),
-        )
+        yield typed[:i] + meant_pair + typed[i + 2 :], partial(_phonetic_words, shape, i, meant_pair, x + y)
 
 
-def _generators(shape: _Shape, typed: str) -> dict[str, Iterator[tuple[str, str]]]:
+def _phonetic_words(shape: _Shape, i: int, meant_pair: str, heard: str) -> str:
+    return f"phonetic: {meant_pair} heard as {heard} at {shape.place(i)}\u2013{shape.place(i + 1)} characters"
+
+
+def _generators(shape: _Shape, typed: str) -> dict[str, Iterator[_Candidate]]:
     return {
         "single": _singles(shape, typed),
         "adjacent": _transpositions(shape, typed, 1),
@@ -242,9 +240,9 @@ def neighbours(fmt: CodeFormat, text: str) -> list[Neighbour]:
     found: dict[str, Neighbour] = {}
     generators = _generators(shape, typed)
     for error in sorted(generators, key=lambda key: -ERROR_WEIGHTS[key]):
-        for meant, description in generators[error]:
+        for meant, words in generators[error]:
             if meant != typed and meant not in found and shape.valid(meant):
-                found[meant] = Neighbour(parsed.prefix + meant + parsed.suffix, error, description)
+                found[meant] = Neighbour(parsed.prefix + meant + parsed.suffix, error, words())
     return list(found.values())
 
 

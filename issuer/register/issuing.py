@@ -16,11 +16,10 @@ from dataclasses import dataclass, field
 from typing import Any, cast
 
 from sqlalchemy import Table, bindparam, insert, select, update
-from sqlalchemy.exc import IntegrityError
 from sqlalchemy.orm import Session
 
 from issuer import limits
-from issuer.errors import Conflict, Exhausted, InvalidFormat, NotFound
+from issuer.errors import Conflict, DuplicateRow, Exhausted, InvalidFormat, NotFound
 from issuer.register.bulk import CHUNK, CodeSink, IssuedChunk, check_room, store_bulk
 from issuer.register.log import NewEntry, append_entry
 from issuer.register.models import ISSUED, SCATTERED, Batch, IssuedCode, Series
@@ -328,7 +327,7 @@ def issue_codes(
             return plain
     try:
         return register.write(work)
-    except IntegrityError:
+    except DuplicateRow:
         # two desks sent the same request id at once: the other one won; replay it
         if request_id is None:
             raise

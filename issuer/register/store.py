@@ -27,11 +27,11 @@ from typing import Any, TypeVar
 
 from sqlalchemy import Engine, create_engine, event, text
 from sqlalchemy.engine import make_url
-from sqlalchemy.exc import ArgumentError, DBAPIError, OperationalError
+from sqlalchemy.exc import ArgumentError, DBAPIError, IntegrityError, OperationalError
 from sqlalchemy.orm import Session
 
 from issuer import limits
-from issuer.errors import IssuerError, NoRegister, PermissionDenied, RegisterError, redact
+from issuer.errors import DuplicateRow, IssuerError, NoRegister, PermissionDenied, RegisterError, redact
 from issuer.outputs import private_folder, protect
 
 T = TypeVar("T")
@@ -41,6 +41,18 @@ SCHEMA_HEAD = "access_tokens"
 
 #: how often a writing transaction is tried when another desk holds the lock
 WRITE_ATTEMPTS = 20
+
+
+def _constraint_line(exc: IntegrityError) -> str:
+    """One line for a refused row: which value repeated, where the driver says."""
+    lines = [line.strip() for line in str(exc.orig).splitlines() if line.strip()]
+    detail = next((line for line in lines if line.startswith("DETAIL:")), None)
+    if detail:  # PostgreSQL: "Key (code)=(C00003202) already exists."
+        return "the register refused a row: " + detail.removeprefix("DETAIL:").strip()
+    first = lines[0] if lines else "a constraint failed"
+    if first.startswith("UNIQUE constraint failed: "):  # SQLite
+        return f"the register refused a row: its {first.split(': ', 1)[1]} is held already"
+    return f"the register refused a row: {first}"
 
 
 def utc_now() -> datetime:
@@ -179,6 +191,8 @@ class Register:
             try:
                 with self.writing() as session:
                     return work(session)
+            except IntegrityError as exc:
+                raise DuplicateRow(_constraint_line(exc)) from exc
             except DBAPIError as exc:
                 if _is_permission_error(exc):
                     raise PermissionDenied(
