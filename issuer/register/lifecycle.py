@@ -44,7 +44,7 @@ def find_code(session: Session, text: str, *, lock: bool = False, series: str | 
     candidates, read = read_typed(session, text, series=series)
     if not candidates:
         if read.other_series is not None:
-            raise InvalidFormat(f"{shown(text)}: {read.problem}")
+            raise InvalidFormat(read.problem)
         raise InvalidFormat(f"{shown(text)} does not have the shape of a code ({read.problem or 'empty'})")
     statement = select(IssuedCode).where(IssuedCode.code.in_([r.canonical for _, r in candidates]))
     if lock:

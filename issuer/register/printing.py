@@ -151,7 +151,10 @@ def _by_batch(session: Session, batch_id: int) -> tuple[list[PrintRow], str]:
 
 
 def _end_of_range(session: Session, series: Series, text: str, option: str) -> IssuedCode:
-    code = find_code(session, text, series=series.key)
+    try:
+        code = find_code(session, text, series=series.key)
+    except InvalidFormat as exc:
+        raise InvalidFormat(f"{option} {exc.message}") from None
     if code.series_id != series.id:  # the same shape in two series: read as this one's, held by the other
         other = session.get(Series, code.series_id)
         assert other is not None

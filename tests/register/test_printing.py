@@ -169,7 +169,7 @@ def test_exactly_one_way_of_choosing(register: Any) -> None:
 def test_range_end_from_another_series_is_refused(register: Any) -> None:
     _tools(register, 3)
     card = _cards(register, 1).codes[0].code
-    with pytest.raises(InvalidFormat, match="series cards, not of tools"):
+    with pytest.raises(InvalidFormat, match="--from QMC-.* belongs to series cards, not tools"):
         select_for_printing(register, series="tools", first=card)
 
 
