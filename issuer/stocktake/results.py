@@ -154,7 +154,7 @@ class Reconciliation:
             return "a valid code this register never issued"
         if status == "other_series":
             other = self.others.get(index)
-            return f"a code of series {other.series} ({other.status})" if other else "a code of another series"
+            return f"belongs to series {other.series} ({other.status})" if other else "belongs to another series"
         if status == "elsewhere" and code is not None:
             seen = self.seen_where[index] if self.seen_where is not None else ""
             return f"expected at {self.places.get(code, '?')}, seen at {seen or '?'}"

@@ -33,7 +33,7 @@ def _detail(kind: str, entry: dict[str, Any]) -> str:
         reason = entry.get("reason") or ""
         return f"voided: {reason}" + (f"; replaced by {entry['replacement']}" if entry.get("replacement") else "")
     if kind == "other_series":
-        return f"a code of series {entry['series']} ({entry['status']})"
+        return f"belongs to series {entry['series']} ({entry['status']})"
     if kind == "malformed":
         return str(entry.get("reason") or "")
     return ""

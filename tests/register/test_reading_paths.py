@@ -63,7 +63,7 @@ def test_another_series_code_is_named_in_reconcile_and_import(register: Register
     path.write_text("\n".join([*tools, card.code]) + "\n")
     recon = reconcile(register, "tools", read_scans(path))
     (line,) = [line for line in recon.lines() if line.scanned == card.code]
-    assert line.detail == f"{card.display} belongs to series members, not tools"
+    assert (line.status, line.detail) == ("other_series", "belongs to series members (issued)")
     with pytest.raises(InvalidFormat, match=f"{card.display} belongs to series members, not tools"):
         import_codes(register, "tools", read_table(path, roles=IMPORT_ROLES))
 

@@ -122,7 +122,7 @@ def plant(register: Register) -> Planted:
     scan("QTL-1121-30A5", "malformed", None,
          detail="character 'A' at position 7 is not in the digits alphabet")
     # a day pass turned up in the tool count: named as the other series' code
-    scan(pass_code, "other_series", None, detail="a code of series passes (issued)")
+    scan(pass_code, "other_series", None, detail="belongs to series passes (issued)")
     scan("QXL11213005", "malformed", None, detail="does not start with the prefix QTL")
     scanned_codes = {row["code"] for row in expected if row["code"]}
     missing = sorted(code for code in [*issued, replacement]
