@@ -56,9 +56,11 @@ from typing import Protocol
 
 from issuer.checking.alphabets import SEPARATORS
 from issuer.errors import InvalidComponent, InvalidFormat, InvalidLength
+from issuer.limits import MAX_CODE_CHARS
 
-#: no code is longer than this many typed characters (separators included)
-MAX_TYPED = 200
+#: no code is longer than this many typed characters: the register's code limit
+#: (:data:`issuer.limits.MAX_CODE_CHARS`) with room for a separator after each character
+MAX_TYPED = 2 * MAX_CODE_CHARS
 
 #: Greek and Cyrillic capitals drawn exactly like a Latin capital (after upper-casing)
 LOOKALIKES: Mapping[str, str] = MappingProxyType(
