@@ -23,6 +23,7 @@ from issuer.cli.common import (
     print_json,
     progress_bar,
 )
+from issuer.cli.proofs import PrintOption, ProofOption
 
 # the defaults live with the print job; named here for --help
 from issuer.labels.layouts import DEFAULT_SHEET_LAYOUT, DEFAULT_SINGLE_LAYOUT  # noqa: E402
@@ -52,12 +53,12 @@ REPRINT_HELP = (
 )
 
 OutOption = Annotated[
-    Path,
+    Path | None,
     typer.Option(
         "--out",
         "-o",
         help="File to write: .pdf for a sheet of any number of labels, .png or .svg for "
-        "exactly one label. Written whole or not at all.",
+        "exactly one label. Written whole or not at all. Needed unless --print or --proof.",
         show_default=False,
     ),
 ]
@@ -151,7 +152,7 @@ def _run(
     series: str | None,
     first: str | None,
     last: str | None,
-    out: Path,
+    out: Path | None,
     barcode: str,
     layout: str | None,
     skip: int,
@@ -168,10 +169,14 @@ def _run(
     reason: str | None = None,
     reprint: bool = False,
     force: bool = False,
+    proof: Path | None = None,
+    send: bool = False,
 ) -> None:
     from issuer import limits
+    from issuer.cli.proofs import check_targets, run_proof
     from issuer.config import load_settings
     from issuer.labels import output_format
+    from issuer.labels.printer import print_command
     from issuer.labels.printjob import options_from_settings, print_selection
     from issuer.register.lifecycle import require_reason
     from issuer.register.printing import select_for_printing
@@ -181,18 +186,23 @@ def _run(
         reason = require_reason(reason)
     limits.number("batch", batch, label="--batch")
     limits.text("title", caption, label="--caption")
-    kind = output_format(out)
+    check_targets(out, proof, send)
+    kind = output_format(out) if out is not None else "pdf"
     settings = load_settings(database=db, actor=actor)
     options = options_from_settings(
         settings, kind, layout, lines, symbology=barcode, skip=skip, caption=caption,
         gs1_company_prefix=gs1_prefix, outlines=outlines, text_beside=text_beside, dpi=dpi,
     )  # fmt: skip
+    printer = print_command(options.layout, settings.section("printing")) if send else None
     register = open_register_from_options(db, actor)
     try:
         selection = select_for_printing(
             register, codes=codes or (), batch=batch, series=series, first=first, last=last,
             void=void,
         )  # fmt: skip
+        if proof is not None:
+            run_proof(register, selection, proof, options, as_json, force)
+            return
         total = len(selection.rows)
         with progress_bar(total, f"Drawing {total:,} labels", show_from=PROGRESS_FROM) as advance:
             drawn = [0]
@@ -203,7 +213,7 @@ def _run(
 
             outcome = print_selection(
                 register, selection, out, options, reason=reason, reprint=reprint,
-                progress=progress, force=force,
+                progress=progress, printer=printer, force=force,
             )  # fmt: skip
     finally:
         register.close()
@@ -226,8 +236,11 @@ def _summary(outcome: Any, actor: str, reason: str | None, holder: bool) -> None
         pages = f" on {outcome.pages} page{'s' if outcome.pages != 1 else ''}"
     else:
         pages = ""
+    where = [] if outcome.path is None else [f"written to {outcome.path}"]
+    if outcome.printed_with:
+        where.append(f"sent to the printer with {outcome.printed_with}")
     out.print(
-        f"{labels}{pages} written to {outcome.path} ({outcome.description}; layout "
+        f"{labels}{pages} {' and '.join(where)} ({outcome.description}; layout "
         f"{outcome.layout}, {symbology}). Print at 100 % scale (actual size).",
         markup=False,
         soft_wrap=True,
@@ -271,7 +284,7 @@ def labels(
         ),
     ] = None,
     *,
-    out: OutOption,
+    out: OutOption = None,
     batch: Annotated[
         int | None,
         typer.Option(
@@ -315,6 +328,8 @@ def labels(
     outlines: OutlinesOption = False,
     text_beside: BesideOption = False,
     dpi: DpiOption = 300,
+    proof: ProofOption = None,
+    send: PrintOption = False,
     force: ForceOption = False,
     db: DbOption = None,
     actor: ActorOption = None,
@@ -326,7 +341,7 @@ def labels(
         barcode=barcode, layout=layout, skip=skip, lines=lines, caption=caption,
         void=_void_mode(void_labels, without_void), gs1_prefix=gs1_prefix,
         outlines=outlines, text_beside=text_beside, dpi=dpi, db=db, actor=actor,
-        as_json=as_json, force=force,
+        as_json=as_json, proof=proof, send=send, force=force,
     )  # fmt: skip
 
 
@@ -339,7 +354,7 @@ def reprint(
         ),
     ],
     *,
-    out: OutOption,
+    out: OutOption = None,
     reason: Annotated[
         str,
         typer.Option(
@@ -358,6 +373,8 @@ def reprint(
     outlines: OutlinesOption = False,
     text_beside: BesideOption = False,
     dpi: DpiOption = 300,
+    proof: ProofOption = None,
+    send: PrintOption = False,
     force: ForceOption = False,
     db: DbOption = None,
     actor: ActorOption = None,
@@ -369,5 +386,5 @@ def reprint(
         barcode=barcode, layout=layout, skip=skip, lines=lines, caption=caption,
         void=_void_mode(void_labels, False), gs1_prefix=gs1_prefix, outlines=outlines,
         text_beside=text_beside, dpi=dpi, db=db, actor=actor, as_json=as_json,
-        reason=reason, reprint=True, force=force,
+        reason=reason, reprint=True, proof=proof, send=send, force=force,
     )  # fmt: skip

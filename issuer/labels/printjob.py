@@ -16,15 +16,25 @@ file of the same name is left as it was).
 from __future__ import annotations
 
 import os
+import tempfile
 from collections.abc import Callable, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import Any
 
 from issuer.errors import InvalidFormat, LabelError
-from issuer.labels import LabelContent, Layout, output_format, render_labels
+from issuer.labels import (
+    LabelContent,
+    Layout,
+    RenderResult,
+    output_format,
+    render_labels,
+    render_page_png,
+    render_png,
+)
 from issuer.labels.design import FIELDS
 from issuer.labels.fonts import font_set
+from issuer.labels.printer import PrintCommand
 from issuer.outputs import OutputRefused, check_target, place, temporary_beside
 from issuer.register.lifecycle import require_reason
 from issuer.register.printing import PrintRow, PrintSelection, record_prints
@@ -118,7 +128,7 @@ def options_from_settings(
 class PrintOutcome:
     """A finished job: the file, what is on it, and how many prints were logged."""
 
-    path: Path
+    path: Path | None  # None: sent to the printer without keeping a file
     format: str
     layout: str
     symbology: str
@@ -132,10 +142,11 @@ class PrintOutcome:
     description: str
     codes: tuple[str, ...]
     omitted_void: tuple[str, ...] = ()
+    printed_with: str | None = None
 
     def as_dict(self) -> dict[str, Any]:
         data = dict(self.__dict__)
-        data["path"] = str(self.path)
+        data["path"] = None if self.path is None else str(self.path)
         data["codes"] = list(self.codes)
         data["omitted_void"] = list(self.omitted_void)
         data["module_mm"] = round(self.module_mm, 4)
@@ -145,16 +156,21 @@ class PrintOutcome:
 def print_selection(
     register: Register,
     selection: PrintSelection,
-    out: str | os.PathLike[str],
+    out: str | os.PathLike[str] | None,
     options: LabelOptions,
     *,
     reason: str | None = None,
     reprint: bool = False,
     progress: Callable[[int], None] | None = None,
+    printer: PrintCommand | None = None,
     force: bool = False,
 ) -> PrintOutcome:
     """Draw ``selection`` to ``out`` (``.pdf`` sheet, or one label as ``.png``/``.svg``)
     and record one print per code — or a reprint, which needs a ``reason``.
+
+    With a ``printer``, the finished PDF is handed to that print command once the prints
+    are written, before they are committed: a failed command counts nothing. ``out`` may
+    then be None (the PDF is kept only while the command reads it).
 
     ``progress`` is called with the number of labels drawn so far. On any error nothing
     is logged and no new file is left behind. An existing ``out`` is replaced only with
@@ -162,8 +178,44 @@ def print_selection(
     """
     if reprint:
         reason = require_reason(reason)
-    kind = output_format(out)
-    target = check_target(out, force=force, what="--out")
+    if out is not None:
+        check_target(out, force=force, what="--out")
+    if out is None and printer is None:
+        raise LabelError("name a file to write (--out) or send the labels to a printer (--print)")
+    with tempfile.TemporaryDirectory(prefix="issuer-print-") as spool:
+        # without --out, the PDF lives in a private folder only while the printer takes it
+        target = Path(out) if out is not None else Path(spool) / "labels.pdf"
+        outcome = _print_to(
+            register,
+            selection,
+            target,
+            options,
+            reason,
+            reprint,
+            progress,
+            printer,
+            out is not None,
+            force,
+        )
+        return outcome if out is not None else replace(outcome, path=None)
+
+
+def _print_to(
+    register: Register,
+    selection: PrintSelection,
+    target: Path,
+    options: LabelOptions,
+    reason: str | None,
+    reprint: bool,
+    progress: Callable[[int], None] | None,
+    printer: PrintCommand | None,
+    named: bool,
+    force: bool,
+) -> PrintOutcome:
+    kind = output_format(target)
+    if printer is not None and kind != "pdf":
+        raise LabelError(f"--print sends a PDF; write the labels to a .pdf, not a .{kind}")
+    target = check_target(target, force=force, what="--out")
     labels = label_contents(selection.rows, options.lines, options.caption)
     # the suffix stays, so the renderer writes the same format
     temp, note = temporary_beside(target, suffix=f".{kind}")
@@ -186,6 +238,8 @@ def print_selection(
         extra: dict[str, Any] = {}
         if options.gs1_company_prefix is not None:
             extra["gs1_company_prefix"] = options.gs1_company_prefix
+        if printer is not None:
+            extra["printed_with"] = printer.name
         logged = record_prints(
             register,
             selection.codes,
@@ -193,9 +247,10 @@ def print_selection(
             reprint=reprint,
             layout=options.layout.name,
             symbology=result.symbology,
-            file=target.name,
+            file=target.name if named else None,
             void_labels=[row.code for row in selection.rows if row.void],
             extra=extra,
+            before_commit=None if printer is None else lambda: printer.send(temp),
         )
         try:
             place(temp, target, force=force)
@@ -226,4 +281,33 @@ def print_selection(
         description=selection.description,
         codes=tuple(selection.codes),
         omitted_void=selection.omitted_void,
+        printed_with=None if printer is None else printer.name,
     )
+
+
+def proof_selection(
+    selection: PrintSelection,
+    out: str | os.PathLike[str],
+    options: LabelOptions,
+    *,
+    force: bool = False,
+) -> RenderResult:
+    """A proof to look at before printing: the first label (or, with ``options.outlines``,
+    the first sheet with its cell outlines) as a PNG at 100 % scale. Nothing is recorded:
+    a proof is not a print. An existing file is replaced only with ``force``."""
+    if output_format(out) != "png":
+        raise LabelError(f"a proof is a PNG image: name it ….png, not {os.fspath(out)!r}")
+    check_target(out, force=force, what="--proof")
+    labels = label_contents(selection.rows, options.lines, options.caption)
+    if not labels:
+        raise LabelError("nothing to print: the selection is empty")
+    common: dict[str, Any] = {
+        "symbology": options.symbology,
+        "dpi": options.dpi,
+        "gs1_company_prefix": options.gs1_company_prefix,
+        "text_beside": options.text_beside,
+        "fonts": font_set(options.fonts),
+    }
+    if options.outlines:
+        return render_page_png(labels, options.layout, out, skip=options.skip, **common)
+    return render_png(labels[0], options.layout, out, **common)

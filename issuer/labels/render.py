@@ -121,11 +121,7 @@ def render_sheet(
     test print on plain paper). ``progress`` is called with the number of labels drawn
     so far (every 100 labels and at the end).
     """
-    if not 0 <= skip < layout.per_page:
-        raise LabelError(
-            f"the start position (skip) must be 0 to {layout.per_page - 1} for layout "
-            f"{layout.name!r} ({layout.per_page} labels a sheet)"
-        )
+    _check_skip(layout, skip)
     job = prepare(labels, layout, symbology, gs1_company_prefix, text_beside, fonts)
     with _atomic(out) as temp:
         pages, placements = _pdf(str(temp), job, layout, skip, title, progress, outlines)
@@ -169,23 +165,69 @@ def render_png(
     """One label of ``layout``'s label size as a PNG at ``dpi`` (the file records its dpi,
     so it prints at the label's size): the label is drawn as a one-page PDF and rasterised
     with pdfium."""
-    if not 72 <= dpi <= 2400:
-        raise LabelError("dpi must be between 72 and 2400")
+    _check_dpi(dpi)
     job, single = _single(label, layout, symbology, gs1_company_prefix, text_beside, fonts)
-    import pypdfium2 as pdfium
-
     buffer = io.BytesIO()
     _, placements = _pdf(buffer, job, single, 0, None, None)
+    _rasterise_first_page(buffer.getvalue(), out, dpi)
+    return RenderResult(
+        Path(out), "png", single, job.plan.symbology, 1, 1, 0, job.plan.module, dpi, placements
+    )
+
+
+def render_page_png(
+    labels: Sequence[LabelContent],
+    layout: Layout,
+    out: str | os.PathLike[str],
+    *,
+    symbology: str = "code128",
+    skip: int = 0,
+    dpi: int = 150,
+    gs1_company_prefix: str | None = None,
+    outlines: bool = True,
+    text_beside: bool = False,
+    fonts: FontSet | None = None,
+) -> RenderResult:
+    """The first sheet of a job as a PNG of the page's size at ``dpi`` (a proof of the page:
+    the labels that fit on it after ``skip`` used cells, with cell ``outlines``)."""
+    _check_dpi(dpi)
+    _check_skip(layout, skip)
+    first = list(labels[: layout.per_page - skip])
+    job = prepare(first, layout, symbology, gs1_company_prefix, text_beside, fonts)
+    buffer = io.BytesIO()
+    _, placements = _pdf(buffer, job, layout, skip, None, None, outlines)
+    _rasterise_first_page(buffer.getvalue(), out, dpi)
+    return RenderResult(
+        Path(out), "png", layout, job.plan.symbology, len(first), 1, skip, job.plan.module, dpi,
+        placements,
+    )  # fmt: skip
+
+
+def _check_skip(layout: Layout, skip: int) -> None:
+    if not 0 <= skip < layout.per_page:
+        raise LabelError(
+            f"the start position (skip) must be 0 to {layout.per_page - 1} for layout "
+            f"{layout.name!r} ({layout.per_page} labels a sheet)"
+        )
+
+
+def _check_dpi(dpi: int) -> None:
+    if not 72 <= dpi <= 2400:
+        raise LabelError("dpi must be between 72 and 2400")
+
+
+def _rasterise_first_page(pdf: bytes, out: str | os.PathLike[str], dpi: int) -> None:
+    """Page one of ``pdf`` as a greyscale PNG at ``dpi``; the file records its dpi, so it
+    shows and prints at 100 % scale."""
+    import pypdfium2 as pdfium
+
     with _atomic(out) as temp:
-        document = pdfium.PdfDocument(buffer.getvalue())
+        document = pdfium.PdfDocument(pdf)
         try:
             bitmap = document[0].render(scale=dpi / 72.0, grayscale=True)
             bitmap.to_pil().save(temp, format="PNG", dpi=(dpi, dpi))
         finally:
             document.close()
-    return RenderResult(
-        Path(out), "png", single, job.plan.symbology, 1, 1, 0, job.plan.module, dpi, placements
-    )
 
 
 def render_svg(

@@ -13,7 +13,7 @@ order of their own.
 
 from __future__ import annotations
 
-from collections.abc import Iterable, Mapping, Sequence
+from collections.abc import Callable, Iterable, Mapping, Sequence
 from dataclasses import dataclass
 from pathlib import PurePath
 from typing import Any
@@ -265,6 +265,7 @@ def record_prints(
     file: str | PurePath | None = None,
     void_labels: Iterable[str] = (),
     extra: Mapping[str, Any] | None = None,
+    before_commit: Callable[[], None] | None = None,
 ) -> int:
     """Count one print of each canonical code in ``codes`` and log it ("print", or
     "reprint" with its ``reason``), all in one transaction; returns how many were logged.
@@ -273,6 +274,10 @@ def record_prints(
     symbology and the file's name (never its folder). ``void_labels`` are the codes whose
     labels were printed marked VOID; any other code found voided (voided by another desk
     since it was selected) is refused, and nothing is recorded.
+
+    ``before_commit`` runs once the entries are written, inside the transaction (e.g. handing
+    the file to a printer): when it raises, nothing is counted or logged. It runs once even
+    if the transaction is retried.
     """
     if not codes:
         raise InvalidFormat("no codes to record as printed")
@@ -292,6 +297,7 @@ def record_prints(
     base_detail.update(extra or {})
     action = REPRINT if reprint else PRINT
     marked = frozenset(void_labels)
+    done = [False]
 
     def work(session: Session) -> int:
         stored: dict[str, tuple[int, int, str]] = {}
@@ -327,6 +333,10 @@ def record_prints(
             if code in marked:
                 detail["void_label"] = True
             entries.append(NewEntry(action, series_id, code, None, detail))
-        return append_entries(session, entries, actor=register.actor, at=register.clock())
+        logged = append_entries(session, entries, actor=register.actor, at=register.clock())
+        if before_commit is not None and not done[0]:
+            before_commit()
+            done[0] = True
+        return logged
 
     return register.write(work)
