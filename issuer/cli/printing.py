@@ -26,7 +26,8 @@ from issuer.cli.common import (
 from issuer.cli.proofs import PrintOption, ProofOption
 
 # the defaults live with the print job; named here for --help
-from issuer.labels.layouts import DEFAULT_SHEET_LAYOUT, DEFAULT_SINGLE_LAYOUT  # noqa: E402
+from issuer.labels.layouts import DEFAULT_SHEET_LAYOUT, DEFAULT_SINGLE_LAYOUT
+
 #: jobs of at least this many labels show a progress bar (about a second of drawing)
 PROGRESS_FROM = 1000
 _SYMBOLOGY_NAMES = {"code128": "Code 128", "qr": "QR Code", "datamatrix": "Data Matrix"}
