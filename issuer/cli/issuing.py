@@ -73,7 +73,15 @@ def issue(
             "codes": [info.as_dict() for info in result.codes],
         })
         return
-    _render_issue(result, out, holder is not None)
+    _render_issue(result, out, holder is not None and _holds_people(register, key))
+
+
+def _holds_people(register: Any, key: str) -> bool:
+    """Whether ``key``'s holders are people (the personal-data caution shows then)."""
+    from issuer.register.series import get_series
+
+    with register.reading() as session:
+        return bool(get_series(session, key).holds_people)
 
 
 def _render_issue(result: Any, out: Path | None, has_holder: bool) -> None:

@@ -225,7 +225,11 @@ def _run(
             data["reason"] = reason
         print_json(data)
         return
-    _summary(outcome, register.actor, reason, "holder" in options.lines)
+    # the caution where it means something: people's names on labels, not a shelf's
+    people = "holder" in options.lines and any(
+        row.holds_people and row.holder for row in selection.rows
+    )
+    _summary(outcome, register.actor, reason, people)
 
 
 def _summary(outcome: Any, actor: str, reason: str | None, holder: bool) -> None:

@@ -19,6 +19,17 @@ from issuer.cli.common import (
 )
 from issuer.errors import InvalidFormat
 
+PeopleOption = Annotated[
+    bool | None,
+    typer.Option(
+        "--people/--no-people",
+        help="Whether holders are people (member cards: personal data) or places and things "
+        "(a workshop shelf). Decides where the personal-data caution shows. Default for a "
+        "new series: people if scattered, not if in order.",
+        show_default=False,
+    ),
+]
+
 series_app = typer.Typer(help="Define series (the shape of their codes) and see how full they are.")
 app.add_typer(series_app, name="series")
 
@@ -51,6 +62,7 @@ def add(
     group: Annotated[str | None, typer.Option("--group", help="How to group body+check for people, e.g. 4,4.")] = None,
     sep: Annotated[str, typer.Option("--sep", help="Separator between prefix, groups and suffix.")] = "-",
     title: Annotated[str, typer.Option("--title", help="A title for people and labels.")] = "",
+    people: PeopleOption = None,
     db: DbOption = None,
     actor: ActorOption = None,
     as_json: JsonOption = False,
@@ -61,6 +73,7 @@ def add(
     spec = SeriesSpec(
         key=key, scheme=scheme, length=length, alphabet=alphabet, prefix=prefix, suffix=suffix,
         mode=mode, start=start, end=end, group=parse_group(group), sep=sep, title=title,
+        holds_people=people,
     )
     register = open_register_from_options(db, actor, create=True)
     series = add_series(register, spec)
@@ -96,6 +109,7 @@ def change(
     end: Annotated[int | None, typer.Option("--end", help="A new highest base number (only before the first code).", min=0)] = None,
     group: Annotated[str | None, typer.Option("--group", help="New grouping for people, e.g. 4,4.")] = None,
     sep: Annotated[str | None, typer.Option("--sep", help="A new separator between groups.")] = None,
+    people: PeopleOption = None,
     db: DbOption = None,
     actor: ActorOption = None,
     as_json: JsonOption = False,
@@ -107,7 +121,7 @@ def change(
     series = change_series(
         register, key, title=title, scheme=scheme, alphabet=alphabet, length=length,
         prefix=prefix, suffix=suffix, mode=mode, start=start, end=end,
-        group=parse_group(group) if group is not None else None, sep=sep,
+        group=parse_group(group) if group is not None else None, sep=sep, holds_people=people,
     )  # fmt: skip
     with register.reading() as session:
         state = series_state(session, series)
@@ -129,7 +143,7 @@ def _render_state(state: object) -> None:
         "alphabet": "Body symbols", "length": "Body length", "mode": "Issued",
         "capacity": "Capacity", "issued": "In use", "voided": "Voided",
         "remaining": "Left to issue", "fill": "Fill", "next_code": "Next in order",
-        "protected": "FF1 domain ≥ 10⁶",
+        "protected": "FF1 domain ≥ 10⁶", "holds_people": "Holders are people",
     }
     for key, label in labels.items():
         value = data.get(key)
@@ -143,6 +157,8 @@ def _render_state(state: object) -> None:
             value = f"{value:,}"
         elif key == "protected":
             value = "yes" if value else "no: order only shuffled, not protected"
+        elif key == "holds_people":
+            value = "yes (personal data)" if value else "no"
         table.add_row(label, str(value))
     table.add_row("Range", f"{data['start']:,} .. {data['end']:,}")
     console().print(table)

@@ -11,6 +11,7 @@ from typing import Any
 
 from sqlalchemy import (
     BigInteger,
+    Boolean,
     DateTime,
     ForeignKey,
     Index,
@@ -21,6 +22,7 @@ from sqlalchemy import (
     Text,
     TypeDecorator,
     UniqueConstraint,
+    false,
 )
 from sqlalchemy.engine import Dialect
 from sqlalchemy.orm import DeclarativeBase, Mapped, mapped_column
@@ -97,6 +99,9 @@ class Series(Base):
     scatter_key: Mapped[bytes | None] = mapped_column(LargeBinary, default=None)
     created_at: Mapped[datetime] = mapped_column(UTCDateTime())
     created_by: Mapped[str] = mapped_column(String(120))
+    #: whether holders are people (member cards), which makes them personal data, or
+    #: places and things (a workshop shelf): the personal-data caution follows this
+    holds_people: Mapped[bool] = mapped_column(Boolean, default=False, server_default=false())
 
 
 class Batch(Base):

@@ -56,6 +56,8 @@ class PrintRow:
     status: str
     batch: int
     print_count: int
+    #: the series' holders are people: a printed holder is personal data
+    holds_people: bool = False
 
     @property
     def void(self) -> bool:
@@ -117,6 +119,7 @@ class _Rows:
             status=status,
             batch=batch_id,
             print_count=print_count,
+            holds_people=series.holds_people,
         )
 
     def query(self, statement: Any) -> list[PrintRow]:

@@ -44,6 +44,8 @@ class SeriesSpec:
     group: tuple[int, ...] = ()
     sep: str = "-"
     title: str = ""
+    #: holders are people (personal data); None: yes for a scattered series, no otherwise
+    holds_people: bool | None = None
 
 
 @lru_cache(maxsize=256)
@@ -230,6 +232,7 @@ def add_series(register: Register, spec: SeriesSpec) -> Series:
             scatter_key=key_bytes,
             created_at=register.clock(),
             created_by=register.actor,
+            holds_people=spec.mode == SCATTERED if spec.holds_people is None else spec.holds_people,
         )
         session.add(series)
         session.flush()
@@ -248,6 +251,7 @@ def add_series(register: Register, spec: SeriesSpec) -> Series:
                     "start": start,
                     "end": end,
                     "title": series.title,
+                    "holds_people": series.holds_people,
                 },
             ),
             actor=register.actor,
@@ -263,12 +267,17 @@ def _spec_of(series: Series) -> SeriesSpec:
         key=series.key, scheme=series.scheme, length=series.length, alphabet=series.alphabet,
         prefix=series.prefix, suffix=series.suffix, mode=series.mode, start=series.range_start,
         end=series.range_end, group=tuple(int(g) for g in series.grouping.split(",") if g),
-        sep=series.separator, title=series.title,
+        sep=series.separator, title=series.title, holds_people=series.holds_people,
     )  # fmt: skip
 
 
+#: what may change after a series' first code: nothing on a printed label or in a code
+_ANY_TIME = frozenset(("title", "holds_people"))
+
+
 def change_series(register: Register, key: str, **changes: object) -> Series:
-    """Change a series' title, or its shape while it holds no code yet.
+    """Change a series' title or whether it holds people, or its shape while it holds no
+    code yet.
 
     ``changes`` takes the fields of :class:`SeriesSpec` (``key`` excepted); ``None``
     means unchanged. Once a series holds a code its shape is frozen: only the title
@@ -290,12 +299,14 @@ def change_series(register: Register, key: str, **changes: object) -> Series:
         current = _spec_of(series)
         spec = dataclasses.replace(current, **wanted)  # type: ignore[arg-type]
         shape_changes = {
-            name for name in wanted if name != "title" and getattr(spec, name) != getattr(current, name)
+            name
+            for name in wanted
+            if name not in _ANY_TIME and getattr(spec, name) != getattr(current, name)
         }
         if shape_changes and series.code_count > 0:
             raise Conflict(
                 f"the shape of series {key} is frozen: it holds {series.code_count:,} code(s); "
-                "only its title can change (define a new series for a new shape)"
+                "only its title and whether it holds people can change (define a new series for a new shape)"
             )
         if shape_changes:
             shape, start, end = build_format(spec)
@@ -312,6 +323,7 @@ def change_series(register: Register, key: str, **changes: object) -> Series:
                 series.mode = spec.mode
                 series.scatter_key = new_key() if spec.mode == SCATTERED else None
         series.title = spec.title
+        series.holds_people = bool(spec.holds_people)
         session.flush()
         append_entry(
             session,
@@ -371,6 +383,7 @@ class SeriesState:
     next_code: str | None
     example: str
     protected: bool | None
+    holds_people: bool = False
 
     def as_dict(self) -> dict[str, object]:
         return dict(self.__dict__)
@@ -414,4 +427,5 @@ def series_state(session: Session, series: Series) -> SeriesState:
         next_code=next_code,
         example=shape.display(shape.code_for_base(series.range_start)),
         protected=protected,
+        holds_people=series.holds_people,
     )
