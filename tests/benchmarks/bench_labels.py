@@ -21,7 +21,12 @@ from reportlab.pdfgen.canvas import Canvas
 from issuer.checking.codes import CodeFormat
 from issuer.checking.schemes import get_scheme
 from issuer.labels import LabelContent, Placement, get_layout, render_sheet
-from issuer.labels.plan import CODE_FONT, PT_PER_MM
+from issuer.labels.fonts import font_set
+from issuer.labels.plan import PT_PER_MM
+
+# the same embedded TrueType face issuer draws codes with: a hand-written script that
+# prints any name needs one too (the PDF's built-in Courier covers Western Europe only)
+CODE_FACE = font_set().face("code").name
 
 
 def minimal_script(
@@ -44,7 +49,7 @@ def minimal_script(
             page = spot.page
         barcode = Code128(label.code, barWidth=module_mm * PT_PER_MM, barHeight=bar_h, quiet=0)
         barcode.drawOn(canvas, spot.symbol.x * PT_PER_MM, (page_h - spot.symbol.bottom) * PT_PER_MM)
-        canvas.setFont(CODE_FONT, size)
+        canvas.setFont(CODE_FACE, size)
         centre = spot.cell.x + spot.cell.width / 2
         canvas.drawCentredString(
             centre * PT_PER_MM, (page_h - spot.symbol.bottom - 5) * PT_PER_MM, label.display
