@@ -125,3 +125,12 @@ def test_a_missing_or_unusable_font_file_is_refused(tmp_path: Path) -> None:
         font_set([bad])
     with pytest.raises(LabelError, match="list of font file paths"):
         fallbacks_from_config({"fonts": [3]})
+
+
+def test_the_fonts_ship_with_their_licence() -> None:
+    # found through the installed package, never the repository's path
+    for name in ("DejaVuSans.ttf", "DejaVuSans-Bold.ttf", "DejaVuSansMono-Bold.ttf"):
+        assert bundled_font_path(name).is_file()
+    licence = bundled_font_path("LICENSE-DejaVu.txt").read_text("utf-8")
+    # source: the licence text in the fonts' own name table (entry 13)
+    assert "Bitstream Vera Fonts Copyright" in licence and "Arev Fonts Copyright" in licence
