@@ -16,6 +16,7 @@ from importlib import resources
 from pathlib import Path
 from typing import Any
 
+from issuer import limits
 from issuer.errors import InvalidFormat
 
 APP_NAME = "issuer"
@@ -82,8 +83,9 @@ def load_settings(*, database: str | None = None, actor: str | None = None) -> S
     path = user_config_path()
     source = None
     if path.is_file():
-        raw = _merge(raw, _read_toml(path.read_text("utf-8"), str(path)))
+        raw = _merge(raw, _read_toml(_read_text(path), str(path)))
         source = path.resolve()
+    _check_types(raw, str(path))
     register = raw.get("register", {})
     chosen_db = (
         database
@@ -93,6 +95,48 @@ def load_settings(*, database: str | None = None, actor: str | None = None) -> S
     )
     chosen_actor = actor or os.environ.get("ISSUER_ACTOR") or register.get("actor") or _os_user()
     return Settings(database=str(chosen_db), actor=str(chosen_actor), raw=raw, source=source)
+
+
+def _read_text(path: Path) -> str:
+    try:
+        data = path.read_bytes()
+    except OSError as exc:
+        raise InvalidFormat(f"cannot read the config file {path}: {exc.strerror or exc}") from None
+    try:
+        return data.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        raise InvalidFormat(f"config file {path} is not UTF-8 text (byte {exc.start + 1}); save it as UTF-8") from None
+
+
+#: what each known setting must be: a table, or in ``[register]`` a text or a whole number
+_TABLES = ("register", "layouts", "labels")
+_REGISTER_TYPES: dict[str, type] = {"database": str, "actor": str, "busy_timeout_ms": int}
+#: the longest wait for a busy register a config may ask for, in milliseconds
+MAX_BUSY_TIMEOUT_MS = 600_000
+
+
+def _check_types(raw: dict[str, Any], where: str) -> None:
+    """One clear line for a setting of the wrong type, instead of a failure later."""
+    for name in _TABLES:
+        if name in raw and not isinstance(raw[name], dict):
+            raise InvalidFormat(f"config file {where}: [{name}] must be a table, not {type(raw[name]).__name__}")
+    register = raw.get("register", {})
+    for name, kind in _REGISTER_TYPES.items():
+        value = register.get(name)
+        if value is None:
+            continue
+        if not isinstance(value, kind) or isinstance(value, bool):
+            raise InvalidFormat(
+                f"config file {where}: register.{name} must be {'text' if kind is str else 'a whole number'}, "
+                f"not {type(value).__name__}"
+            )
+    timeout = register.get("busy_timeout_ms")
+    if timeout is not None and not 0 <= timeout <= MAX_BUSY_TIMEOUT_MS:
+        raise InvalidFormat(f"config file {where}: register.busy_timeout_ms must be 0 to {MAX_BUSY_TIMEOUT_MS:,}")
+    if register.get("actor") is not None:
+        limits.text("actor", register["actor"], label=f"config file {where}: register.actor")
+    if register.get("database") is not None:
+        limits.file_name(f"config file {where}: register.database", register["database"])
 
 
 def _os_user() -> str:

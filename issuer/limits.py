@@ -217,6 +217,45 @@ def file_name(field: str, value: str | os.PathLike[str]) -> str:
     return path
 
 
+def _escape(ch: str) -> str:
+    code = ord(ch)
+    return f"\\x{code:02x}" if code < 0x100 else f"\\u{code:04x}"
+
+
+#: what :func:`printable` and :func:`json_safe` rewrite: controls (but line break and tab),
+#: C1 controls, layout tricks and unpaired surrogates
+_UNPRINTABLE = {
+    code: _escape(chr(code))
+    for code in [*range(0x20), *range(0x7F, 0xA0), *map(ord, _LAYOUT_TRICKS)]
+    if chr(code) not in "\n\t"
+}
+_SURROGATES = range(0xD800, 0xE000)
+
+
+def printable(value: str) -> str:
+    r"""``value`` with every control character (but line break and tab), layout control
+    and unpaired surrogate written as an escape (``\x1b``), for a terminal or a label:
+    stored text never repaints a screen or reorders what a clerk reads.
+
+    >>> printable("Ana\x1b[31m")
+    'Ana\\x1b[31m'
+    """
+    text = value.translate(_UNPRINTABLE)
+    if any(0xD800 <= ord(ch) < 0xE000 for ch in text):
+        text = "".join(_escape(ch) if 0xD800 <= ord(ch) < 0xE000 else ch for ch in text)
+    return text
+
+
+_JSON_UNSAFE = {code: f"\\u{code:04x}" for code in [*range(0x7F, 0xA0), *map(ord, _LAYOUT_TRICKS), *_SURROGATES]}
+
+
+def json_safe(document: str) -> str:
+    r"""A JSON text (``ensure_ascii=False``) with C1 controls, layout controls and unpaired
+    surrogates written as ``\uXXXX`` escapes: the same JSON value, safe on a terminal and
+    encodable as UTF-8 (JSON only escapes C0 controls itself)."""
+    return document.translate(_JSON_UNSAFE)
+
+
 def _short(value: str, keep: int = 24) -> str:
     return value if len(value) <= keep else f"{value[:keep]}..."
 
@@ -244,7 +283,9 @@ __all__ = [
     "bad_character",
     "describe",
     "file_name",
+    "json_safe",
     "moment",
     "number",
+    "printable",
     "text",
 ]

@@ -232,20 +232,27 @@ _STATUS_STYLE = {"ok": "green", "warn": "yellow", "problem": "bold red", "skippe
 
 
 @app.command("doctor")
-def doctor(db: DbOption = None, as_json: JsonOption = False) -> None:
+def doctor(
+    db: DbOption = None,
+    as_json: JsonOption = False,
+    fix: Annotated[
+        bool, typer.Option("--fix", help="Remove temporary files that stopped processes left behind.")
+    ] = False,
+) -> None:
     """Check the register is whole; exit 1 when anything disagrees.
 
     Integrity, schema level, log chain, counters against the codes held, batches whole
-    and logged, file permissions or the log's append-only trigger. --json for scripts.
+    and logged, file and folder permissions or the log's append-only trigger, and
+    temporary files left by stopped processes (--fix removes them). --json for scripts.
     """
     from issuer.register.doctor import run_doctor
 
     register = _open_existing(db)
     if as_json:
-        report = run_doctor(register)
+        report = run_doctor(register, fix=fix)
     else:
         with err_console().status("Checking the register") as status:
-            report = run_doctor(register, lambda stage: status.update(f"Checking: {stage}"))
+            report = run_doctor(register, lambda stage: status.update(f"Checking: {stage}"), fix=fix)
     register.close()
     if as_json:
         print_json(report.as_dict())

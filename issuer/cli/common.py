@@ -22,6 +22,7 @@ except ImportError:  # pragma: no cover - older Typer uses the click package
 from typer.core import TyperGroup
 
 from issuer.errors import IssuerError, redact
+from issuer.limits import json_safe, printable
 
 JsonOption = Annotated[
     bool, typer.Option("--json", help="Print machine-readable JSON on stdout, and nothing else there.")
@@ -68,7 +69,7 @@ class UserError(click_exceptions.ClickException):
     exit_code = 2
 
     def show(self, file: Any = None) -> None:
-        typer.echo(redact(f"issuer: {self.format_message()}"), err=True)
+        typer.echo(redact(f"issuer: {printable(self.format_message())}"), err=True)
 
 
 class IssuerGroup(TyperGroup):
@@ -87,7 +88,7 @@ class IssuerGroup(TyperGroup):
             typer.echo(exc.ctx.get_help() if exc.ctx else str(exc))
             return _finish(standalone_mode, 0)
         except click_exceptions.ClickException as exc:
-            message = exc.format_message().splitlines()[0] if exc.format_message() else "error"
+            message = printable(exc.format_message().splitlines()[0]) if exc.format_message() else "error"
             hint = ""
             if isinstance(exc, click_exceptions.UsageError) and exc.ctx is not None:
                 hint = f" (see '{exc.ctx.command_path} --help')"
@@ -111,27 +112,49 @@ def _finish(standalone_mode: bool, code: int) -> Any:
 
 def print_json(data: Any) -> None:
     """JSON on stdout, exactly, with nothing else around it."""
-    sys.stdout.write(json.dumps(data, ensure_ascii=False, default=str))
+    sys.stdout.write(json_safe(json.dumps(data, ensure_ascii=False, default=str)))
     sys.stdout.write("\n")
     sys.stdout.flush()
 
 
 def fail(message: str, code: int = 2) -> NoReturn:
     """Stop with one line on stderr."""
-    typer.echo(redact(f"issuer: {message}"), err=True)
+    typer.echo(redact(f"issuer: {printable(message)}"), err=True)
     raise typer.Exit(code)
 
 
-def console() -> Any:
+def safe_console_class() -> Any:
+    """A Rich console that shows stored text safely: control characters escaped
+    (``\\x1b``), and text that is not valid markup (a holder ``[/b]``) shown as written
+    instead of stopping the command."""
     from rich.console import Console
+    from rich.errors import MarkupError
 
-    return Console(highlight=False)
+    class SafeConsole(Console):
+        def render_str(self, text: str, **options: Any) -> Any:
+            text = printable(text)
+            try:
+                return super().render_str(text, **options)
+            except MarkupError:
+                options["markup"] = False
+                return super().render_str(text, **options)
+
+    return SafeConsole
+
+
+def console() -> Any:
+    return safe_console_class()(highlight=False)
 
 
 def err_console() -> Any:
-    from rich.console import Console
+    return safe_console_class()(stderr=True, highlight=False)
 
-    return Console(stderr=True, highlight=False)
+
+def shown(value: object) -> str:
+    """Stored text for a Rich markup string or table cell: escaped controls and markup."""
+    from rich.markup import escape
+
+    return escape(printable(str(value)))
 
 
 def open_register_from_options(db: str | None, actor: str | None, *, create: bool = False) -> Any:

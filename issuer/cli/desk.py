@@ -8,7 +8,7 @@ from collections.abc import Sequence
 from typing import Any
 
 from issuer.cli.app import app
-from issuer.cli.common import DbOption, console, open_register_from_options, print_json
+from issuer.cli.common import DbOption, console, open_register_from_options, print_json, shown
 
 STYLE = {
     "issued": "green",
@@ -29,13 +29,13 @@ WORDS = {
 def _detail(answer: Any) -> str:
     parts = []
     if answer.status == "issued" and answer.holder:
-        parts.append(f"holder: {answer.holder}")
+        parts.append(f"holder: {shown(answer.holder)}")
     if answer.status == "voided":
-        parts.append(f"reason: {answer.reason}")
+        parts.append(f"reason: {shown(answer.reason)}")
         if answer.replacement:
             parts.append(f"replaced by {answer.replacement}")
     elif answer.reason and answer.status != "issued":
-        parts.append(answer.reason)
+        parts.append(shown(answer.reason))
     for suggestion in answer.suggestions:
         parts.append(f"did you mean [bold]{suggestion.display}[/bold]? ({suggestion.description})")
     if getattr(answer, "advice", None):
@@ -52,7 +52,7 @@ def render_answers(answers: Sequence[Any]) -> None:
     for answer in answers:
         style = STYLE.get(answer.status, "")
         table.add_row(
-            answer.input,
+            shown(answer.input),
             f"[{style}]{WORDS.get(answer.status, answer.status)}[/{style}]",
             answer.series or "",
             answer.display or "",

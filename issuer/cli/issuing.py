@@ -18,6 +18,7 @@ from issuer.cli.common import (
     open_register_from_options,
     print_json,
     progress_bar,
+    shown,
 )
 
 #: batches up to this size are listed code by code in the terminal
@@ -94,7 +95,7 @@ def _render_issue(result: Any, out: Path | None, has_holder: bool) -> None:
         table.add_column("code", style="bold")
         table.add_column("holder")
         for info in result.codes:
-            table.add_row(info.display, info.holder or "")
+            table.add_row(info.display, shown(info.holder or ""))
         out_console.print(table)
     else:
         out_console.print(
@@ -128,7 +129,7 @@ def void(
     if as_json:
         print_json(record.as_dict())
     else:
-        console().print(f"Voided [bold]{record.display}[/bold] ({record.series}): {record.void_reason}")
+        console().print(f"Voided [bold]{record.display}[/bold] ({record.series}): {shown(record.void_reason)}")
 
 
 @app.command("replace")
@@ -188,14 +189,14 @@ def history(
     from rich.table import Table
 
     out = console()
-    status = "[green]in use[/green]" if record.status == "issued" else f"[red]voided[/red] ({record.void_reason})"
+    status = "[green]in use[/green]" if record.status == "issued" else f"[red]voided[/red] ({shown(record.void_reason)})"
     out.print(f"[bold]{record.display}[/bold]  series {record.series}  {status}")
     facts = [
         f"issued {record.issued_at:%Y-%m-%d %H:%M} UTC by {record.issued_by} (batch {record.batch})",
         f"printed {record.print_count} time(s)",
     ]
     if record.holder:
-        facts.append(f"holder: {record.holder}")
+        facts.append(f"holder: {shown(record.holder)}")
     if record.replaces:
         facts.append(f"replaces {record.replaces}")
     if record.replaced_by:
@@ -209,6 +210,6 @@ def history(
     from issuer.cli.logcmd import _detail_summary
 
     for event in events:
-        table.add_row(str(event.id), f"{event.at:%Y-%m-%d %H:%M:%S}", event.actor, event.action,
-                      _detail_summary(event.detail))
+        table.add_row(str(event.id), f"{event.at:%Y-%m-%d %H:%M:%S}", shown(event.actor), event.action,
+                      shown(_detail_summary(event.detail)))
     out.print(table)

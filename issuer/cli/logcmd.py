@@ -8,7 +8,14 @@ from typing import Annotated
 import typer
 
 from issuer.cli.app import app
-from issuer.cli.common import DbOption, JsonOption, console, open_register_from_options, print_json
+from issuer.cli.common import (
+    DbOption,
+    JsonOption,
+    console,
+    open_register_from_options,
+    print_json,
+    shown,
+)
 
 log_app = typer.Typer(
     help="Show the log of who did what and when; 'log verify' checks that nobody edited it.",
@@ -61,12 +68,12 @@ def show_log(
         table.add_row(
             str(event.id),
             event.at.strftime("%Y-%m-%d %H:%M:%S"),
-            event.actor,
+            shown(event.actor),
             event.action,
             event.series or "",
-            event.code or "",
+            shown(event.code or ""),
             str(event.batch or ""),
-            _detail_summary(event.detail),
+            shown(_detail_summary(event.detail)),
         )
     console().print(table)
 

@@ -16,6 +16,7 @@ from issuer.cli.common import (
     err_console,
     open_register_from_options,
     print_json,
+    shown,
 )
 from issuer.errors import InvalidFormat
 
@@ -218,7 +219,7 @@ def list_series(
             min_width=12 if column == "series" else None,
         )
     for state in states:
-        name = f"{state.key}\n[dim]{state.title}[/dim]" if state.title else state.key
+        name = f"{state.key}\n[dim]{shown(state.title)}[/dim]" if state.title else state.key
         table.add_row(
             name, state.example,
             "in order" if state.mode == "sequential" else "scattered",

@@ -20,6 +20,7 @@ from issuer.cli.common import (
     open_register_from_options,
     print_json,
     progress_bar,
+    shown,
 )
 from issuer.outputs import check_target, output_text
 
@@ -132,7 +133,7 @@ def _render(recon: Reconciliation, out: Path | None, recorded: int | None) -> No
             table.add_column(name)
         for line in problems[:SHOW_LINES]:
             table.add_row(
-                str(line.line), line.scanned, line.status.replace("_", " "), line.detail, _meant(line.likely),
+                str(line.line), shown(line.scanned), line.status.replace("_", " "), shown(line.detail), _meant(line.likely),
             )  # fmt: skip
         terminal.print(table)
         more = len(recon.statuses) - recon.statuses.count("issued") - SHOW_LINES
@@ -140,10 +141,10 @@ def _render(recon: Reconciliation, out: Path | None, recorded: int | None) -> No
             terminal.print(f"... and {more:,} more lines")
     _render_duplicates(terminal, recon)
     if recon.counts["missing"]:
-        shown = [item for _, item in zip(range(SHOW_LINES), recon.missing_codes())]
+        listed = [item for _, item in zip(range(SHOW_LINES), recon.missing_codes())]
         terminal.print(
-            "Missing: " + ", ".join(item.display for item in shown)
-            + (f" ... and {recon.counts['missing'] - len(shown):,} more" if recon.counts["missing"] > len(shown) else "")
+            "Missing: " + ", ".join(item.display for item in listed)
+            + (f" ... and {recon.counts['missing'] - len(listed):,} more" if recon.counts["missing"] > len(listed) else "")
         )
     if out is not None:
         terminal.print(f"Full report written to {out}")

@@ -35,6 +35,7 @@ from issuer.labels import (
 from issuer.labels.design import FIELDS
 from issuer.labels.fonts import font_set
 from issuer.labels.printer import PrintCommand
+from issuer.limits import printable
 from issuer.outputs import OutputRefused, check_target, place, temporary_beside
 from issuer.register.lifecycle import require_reason
 from issuer.register.printing import PrintRow, PrintSelection, record_prints
@@ -84,7 +85,8 @@ def label_contents(
             if name == "code":
                 code_at = len(shown)
             elif (values[name] or "").strip():
-                shown.append(str(values[name]).strip())
+                # one label line: controls escaped (SVG stays XML, no font draws them), breaks as spaces
+                shown.append(" ".join(printable(str(values[name])).split()))
         labels.append(LabelContent(row.code, row.display, tuple(shown), row.void, code_at))
     return labels
 

@@ -20,6 +20,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from issuer.errors import InvalidFormat
+from issuer.outputs import restore_cell
 
 #: the longest line accepted, in bytes; a longer one means the file is not a list of codes
 MAX_LINE_BYTES = 1 << 16
@@ -253,7 +254,9 @@ def _chain(first_block: list[str], blocks: Iterator[list[str]]) -> Iterator[str]
 def _csv_rows(
     name: str, first_block: list[str], line: int, blocks: Iterator[list[str]], delimiter: str
 ) -> tuple[list[str], Iterator[tuple[int, list[str]]]]:
-    reader = csv.reader(_chain(first_block, blocks), delimiter=delimiter)
+    # each line keeps its end, so a quoted cell spanning lines (a two-line note) stays whole
+    lines = (text + "\n" for text in _chain(first_block, blocks))
+    reader = csv.reader(lines, delimiter=delimiter)
     try:
         header = next(reader)
     except csv.Error as exc:
@@ -262,8 +265,13 @@ def _csv_rows(
 
     def rows() -> Iterator[tuple[int, list[str]]]:
         try:
-            for row in reader:
-                yield base + reader.line_num, row
+            while True:
+                first_line = base + reader.line_num + 1
+                row = next(reader, None)
+                if row is None:
+                    return
+                # cells our own exports made safe for spreadsheets read back as written
+                yield first_line, [restore_cell(cell) for cell in row]
         except csv.Error as exc:
             raise InvalidFormat(f"{name}: line {base + reader.line_num}: {exc}") from None
 
@@ -298,7 +306,7 @@ def _json_rows(
                 continue
             try:
                 value = json.loads(text)
-            except ValueError:
+            except (ValueError, RecursionError):
                 value = None
             if not isinstance(value, dict):
                 raise InvalidFormat(f"{name}: line {number} is not one JSON object (write one object per line)")
@@ -310,13 +318,24 @@ def _json_rows(
         raise InvalidFormat(f"{name} holds no codes")
     header = [str(key) for key in first[1]]
 
-    def cells(value: dict[str, object]) -> list[str]:
-        return ["" if value.get(key) is None else str(value.get(key)) for key in header]
+    def cells(number: int, value: dict[str, object]) -> list[str]:
+        row = ["" if value.get(key) is None else str(value.get(key)) for key in header]
+        for key, cell in zip(header, row):
+            # JSON escapes can carry what UTF-8 text cannot: NUL and lone surrogates
+            if "\0" in cell or any("\ud800" <= ch <= "\udfff" for ch in cell):
+                raise InvalidFormat(
+                    f"{name}: line {number}: {key!r} holds a NUL or an unpaired surrogate, not text"
+                )
+        return row
+
+    for key in header:
+        if "\0" in key or any("\ud800" <= ch <= "\udfff" for ch in key):
+            raise InvalidFormat(f"{name}: line {first[0]}: a key holds a NUL or an unpaired surrogate")
 
     def rows() -> Iterator[tuple[int, list[str]]]:
-        yield first[0], cells(first[1])
+        yield first[0], cells(*first)
         for number, value in stream:
-            yield number, cells(value)
+            yield number, cells(number, value)
 
     return header, rows()
 

@@ -12,7 +12,9 @@ not wrong) or ``problem`` (the register disagrees with itself). The checks:
 * every batch whole: as many codes as it says, each batch logged once, the logged
   count and the SHA-256 over its codes matching what is stored;
 * voids logged, replacement links pointing both ways;
-* SQLite: the file owner-only; PostgreSQL: the log's append-only trigger in place.
+* SQLite: the file owner-only; PostgreSQL: the log's append-only trigger in place;
+* SQLite: the register's folder owner-only; temporaries of output files left behind by a
+  stopped process (``--fix`` removes them).
 """
 
 from __future__ import annotations
@@ -28,6 +30,7 @@ from sqlalchemy import text
 from sqlalchemy.orm import Session
 
 from issuer.register.admin import snapshot, sqlite_path
+from issuer.register.doctor_files import check_folder, check_leftovers
 from issuer.register.log import verify_chain
 from issuer.register.models import SCATTERED
 from issuer.register.store import SCHEMA_HEAD, Register
@@ -325,9 +328,10 @@ def check_guard(register: Register, session: Session) -> Finding:
     )
 
 
-def run_doctor(register: Register, stage: Stage | None = None) -> DoctorReport:
+def run_doctor(register: Register, stage: Stage | None = None, *, fix: bool = False) -> DoctorReport:
     """Every check, in one snapshot of the register. A check the database cannot even
-    run (a damaged file, say) is itself a problem; the others still run."""
+    run (a damaged file, say) is itself a problem; the others still run. ``fix`` removes
+    temporaries that stopped processes left behind (nothing in the register changes)."""
     from sqlalchemy.exc import DBAPIError
 
     from issuer.register.admin import redacted_url
@@ -358,4 +362,7 @@ def run_doctor(register: Register, stage: Stage | None = None) -> DoctorReport:
             run("batches", lambda: check_batches(session), session)
             run("log and codes", lambda: check_log_agrees(session), session)
         run("access", lambda: check_guard(register, session), session)
+    path = sqlite_path(register)
+    findings.append(Finding("folder", *check_folder(path)))
+    findings.append(Finding("leftovers", *check_leftovers(path, fix=fix)))
     return DoctorReport(redacted_url(register), register.backend, findings)
