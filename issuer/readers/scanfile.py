@@ -219,7 +219,8 @@ def read_table(
         _read_plain(table, first_block, line, blocks)
     else:
         header, rows = _csv_rows(name, first_block, line, blocks, delimiter or ",")
-        _fill(table, header, rows, column, roles or {}, chosen or {})
+        # cells our own CSV exports made safe for spreadsheets read back as written
+        _fill(table, header, rows, column, roles or {}, chosen or {}, restore=True)
     if not table.codes:
         raise InvalidFormat(f"{name} holds no codes")
     return table
@@ -270,8 +271,7 @@ def _csv_rows(
                 row = next(reader, None)
                 if row is None:
                     return
-                # cells our own exports made safe for spreadsheets read back as written
-                yield first_line, [restore_cell(cell) for cell in row]
+                yield first_line, row
         except csv.Error as exc:
             raise InvalidFormat(f"{name}: line {base + reader.line_num}: {exc}") from None
 
@@ -347,6 +347,8 @@ def _fill(
     column: str | None,
     roles: Mapping[str, Sequence[str]],
     chosen: Mapping[str, str | None],
+    *,
+    restore: bool = False,
 ) -> None:
     name = table.source
     keys = [header_key(cell) for cell in header]
@@ -388,8 +390,8 @@ def _fill(
             continue
         if len(row) < width:
             row = row + [""] * (width - len(row))
-        codes.append(row[code_at].strip())
+        codes.append(restore_cell(row[code_at].strip()) if restore else row[code_at].strip())
         lines.append(number)
         for slot, index in zip(values, others):
-            slot.append(row[index].strip())
+            slot.append(restore_cell(row[index].strip()) if restore else row[index].strip())
     table.columns = {table.header[index]: slot for slot, index in zip(values, others)}

@@ -20,6 +20,7 @@ from sqlalchemy import ColumnElement, Select, String, case, func, literal, selec
 from sqlalchemy.orm import Session, aliased
 
 from issuer.errors import InvalidFormat
+from issuer.limits import json_safe
 from issuer.register.driver import stream_rows
 from issuer.register.models import ISSUED, VOIDED, IssuedCode, Series
 from issuer.register.series import code_format, get_series
@@ -147,7 +148,8 @@ class _Writer:
             self.csv.writerows(rows)
             return
         dumps, names = json.dumps, EXPORT_COLUMNS
-        lines = [dumps(dict(zip(names, row)), ensure_ascii=False) for row in rows]
+        # C1 controls and lone surrogates as \u escapes: the same JSON, safe on any terminal
+        lines = [json_safe(dumps(dict(zip(names, row)), ensure_ascii=False)) for row in rows]
         if self.fmt == "jsonl":
             self.stream.write("\n".join(lines) + "\n")
         else:
