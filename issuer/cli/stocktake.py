@@ -30,15 +30,8 @@ if TYPE_CHECKING:
 #: lines listed per class in the terminal before "and N more"
 SHOW_LINES = 10
 
-MEANINGS = (
-    ("issued", "issued", "in use, and found"),
-    ("voided", "voided", "voided: should have been pulled"),
-    ("bad_check", "bad check", "check character wrong: misread or mistyped"),
-    ("not_issued", "not issued", "a valid code this register never issued"),
-    ("malformed", "malformed", "not a code of this series"),
-    ("duplicates", "duplicates", "codes scanned more than once"),
-    ("missing", "missing", "issued, but not scanned"),
-)
+#: the classes a single reconcile shows (a count's scope and places add the others)
+SHOWN = ("issued", "elsewhere", "voided", "other_series", "bad_check", "not_issued", "malformed", "duplicates", "missing")
 
 
 @app.command(
@@ -70,6 +63,11 @@ def reconcile_command(
         Path | None,
         typer.Option("--out", help="Write the full report (every scanned line, then every missing code) to this CSV.", dir_okay=False),
     ] = None,
+    tz: Annotated[
+        str | None,
+        typer.Option("--tz", help="Time zone of scan times written without one: a name like Europe/Lisbon, UTC, "
+                     "or an offset like +01:00 (default: this machine's zone).", show_default=False),
+    ] = None,
     record: Annotated[
         bool,
         typer.Option("--record", help="Log a 'seen' event for every scanned code the register holds, with the scan's time "
@@ -82,18 +80,21 @@ def reconcile_command(
 ) -> None:
     """Reconcile a stocktake scan against the register.
 
-    Sorts every scanned line: issued, voided (should have been pulled), bad check (a typo, with the issued code probably meant), not issued, malformed; then lists the codes scanned more than once and the issued codes nobody scanned (missing).
+    Sorts every scanned line: issued, found elsewhere (a place column against each tag's expected place), voided (should have been pulled), a code of another series (named), bad check (a typo, with the issued code probably meant), not issued, malformed; then lists the codes scanned more than once and the issued codes nobody scanned (missing). Blank and comment lines are counted. For a count over days and scanners, see 'issuer stocktake'.
     """
     from issuer.stocktake.reconcile import read_scans, reconcile, record_seen, sightings
     from issuer.stocktake.report import as_json as report_json
     from issuer.stocktake.report import write_report
 
+    from issuer.stocktake.zones import resolve_zone
+
+    zone = resolve_zone(tz)
     register = open_register_from_options(db, actor)
     if out is not None:
         check_target(out, force=force, what="--out")
     with err_console().status("Reading the scans and comparing them with the register..."):
         table = read_scans(scanfile, column=column, time_column=time_column, where_column=where_column)
-        recon = reconcile(register, key, table)
+        recon = reconcile(register, key, table, zone=zone)
     found = sightings(recon) if record else None  # a bad scan time stops us before any write
     if out is not None:
         with output_text(out, force=force, what="--out") as stream:
@@ -121,11 +122,19 @@ def _render(recon: Reconciliation, out: Path | None, recorded: int | None) -> No
     summary.add_column("count", justify="right")
     summary.add_column("meaning")
     styles = {"issued": "green", "missing": "yellow", "duplicates": "yellow"}
-    for key, label, meaning in MEANINGS:
+    from issuer.stocktake.results import MEANINGS
+
+    for key in SHOWN:
+        label, meaning = key.replace("_", " "), MEANINGS[key]
         count = recon.counts[key]
         style = styles.get(key, "red") if count else "dim"
         summary.add_row(f"[{style}]{label}[/{style}]", f"{count:,}", meaning)
     terminal.print(summary)
+    notes = recon.counts["blank_lines"], recon.counts["comment_lines"]
+    if any(notes):
+        terminal.print(f"Not scans: {notes[0]:,} blank and {notes[1]:,} comment lines", style="dim")
+    if recon.time_column:
+        terminal.print(f"Scan times written without a zone were read in {recon.zone}", style="dim")
     problems = list(islice(recon.lines(skip_issued=True), SHOW_LINES + 1))
     if problems:
         table = Table(title="Scans to look at")
