@@ -36,11 +36,14 @@ _DROP_SEPARATORS = str.maketrans("", "", "".join(SEPARATORS))
 class ReadCodes:
     """``canonical[i]`` is text ``i``'s canonical code (``None`` when malformed) and
     ``state[i]`` one of :data:`MALFORMED`, :data:`BAD_CHECK`, :data:`VALID`;
-    ``reasons`` says what is wrong with each malformed text, by index."""
+    ``reasons`` says what is wrong with each malformed text, by index. ``fixed`` holds
+    the same canonical codes as one numpy array of fixed-width bytes (``b""`` when
+    malformed; text when a code is not ASCII), for set work without Python strings."""
 
     canonical: list[str | None]
     state: npt.NDArray[np.int8]
     reasons: dict[int, str] = field(default_factory=dict)
+    fixed: npt.NDArray[np.generic] | None = None
 
 
 def _cleaned(texts: Sequence[str]) -> list[str]:
@@ -102,44 +105,65 @@ def _read_block(
     return fits, valid, out
 
 
-def read_codes(shape: CodeFormat, texts: Sequence[str]) -> ReadCodes:
-    """Read every text as a code of ``shape``; see :class:`ReadCodes`."""
+def _read_part(
+    shape: CodeFormat, texts: Sequence[str], state: npt.NDArray[np.int8], fixed: npt.NDArray[np.bytes_],
+    canonical: list[str | None], offset: int,
+) -> None:
+    """Read ``texts`` (rows ``offset``... of the whole) on the fast path: equal-width ASCII
+    texts checked column-wise; the others stay malformed for the slow path."""
     import numpy as np
 
-    count = len(texts)
     cleaned = _cleaned(texts)
     width = shape.total_width
-    scheme = shape.scheme
+    count = len(cleaned)
     lengths = np.fromiter(map(len, cleaned), dtype=np.int64, count=count)
     ascii_ok = np.fromiter(map(str.isascii, cleaned), dtype=bool, count=count)
     fast = np.flatnonzero((lengths == width) & ascii_ok)
+    if not fast.size:
+        return
+    chosen = [cleaned[i] for i in fast.tolist()] if fast.size < count else cleaned
+    raw = np.frombuffer("".join(chosen).encode("ascii"), dtype=np.uint8).reshape(-1, width)
+    fits, valid, out = _read_block(shape, raw)
+    where = fast[fits]
+    state[offset + where] = np.where(valid, VALID, BAD_CHECK).astype(np.int8)
+    fixed[offset + where] = out.view(f"S{width}").ravel()
+    for index, text in zip(where.tolist(), _rows_as_text(out)):
+        scanned = texts[index]
+        # a scan written in canonical form is its own canonical code: one string, not two
+        canonical[offset + index] = scanned if scanned == text else text
+
+
+def read_codes(shape: CodeFormat, texts: Sequence[str]) -> ReadCodes:
+    """Read every text as a code of ``shape``; see :class:`ReadCodes`. The texts are read
+    :data:`BLOCK_ROWS` at a time, so the working memory stays small however many."""
+    import numpy as np
+
+    count = len(texts)
+    width = shape.total_width
+    scheme = shape.scheme
     state = np.full(count, MALFORMED, dtype=np.int8)
+    fixed = np.zeros(count, dtype=f"S{width}")
     canonical: list[str | None] = [None] * count
-    if fast.size:
-        chosen = [cleaned[i] for i in fast.tolist()] if fast.size < count else cleaned
-        raw = np.frombuffer("".join(chosen).encode("ascii"), dtype=np.uint8).reshape(-1, width)
-        parts = [_read_block(shape, raw[at: at + BLOCK_ROWS]) for at in range(0, raw.shape[0], BLOCK_ROWS)]
-        fits = np.concatenate([part[0] for part in parts])
-        valid = np.concatenate([part[1] for part in parts])
-        out = np.concatenate([part[2] for part in parts])
-        where = fast[fits]
-        state[where] = np.where(valid, VALID, BAD_CHECK).astype(np.int8)
-        if where.size == count:
-            canonical = list(_rows_as_text(out))
-        else:
-            for index, text in zip(where.tolist(), _rows_as_text(out)):
-                canonical[index] = text
+    for at in range(0, count, BLOCK_ROWS):
+        _read_part(shape, texts[at: at + BLOCK_ROWS], state, fixed, canonical, at)
     reasons: dict[int, str] = {}
+    slow: dict[int, str] = {}
     for index in np.flatnonzero(state == MALFORMED).tolist():
         try:
             parsed = shape.parse(texts[index])
         except InvalidFormat as exc:
             reasons[index] = exc.message
             continue
-        canonical[index] = parsed.canonical
+        canonical[index] = slow[index] = parsed.canonical
         ok = scheme.is_valid(parsed.body + parsed.check) if scheme.check_length else True
         state[index] = VALID if ok else BAD_CHECK
-    return ReadCodes(canonical, state, reasons)
+    if slow:
+        if all(code.isascii() and len(code) == width for code in slow.values()):
+            for index, code in slow.items():
+                fixed[index] = code.encode("ascii")
+        else:  # a code outside ASCII: the array holds text instead
+            fixed = np.array([code or "" for code in canonical], dtype=str)
+    return ReadCodes(canonical, state, reasons, fixed)
 
 
 __all__ = ["BAD_CHECK", "MALFORMED", "VALID", "ReadCodes", "read_codes"]

@@ -38,17 +38,99 @@ def series_codes(session: Session, series: Series) -> dict[str, str]:
     return dict(rows)
 
 
+class CodeSet:
+    """A set of codes held as one sorted numpy array (fixed-width bytes when every code is
+    ASCII of one width, else text): a million codes cost a few megabytes, not a million
+    Python strings, and membership of a whole array is one ``searchsorted``."""
+
+    def __init__(self, codes: Any) -> None:
+        import numpy as np
+
+        array = np.asarray(codes)
+        if array.dtype == object or array.size == 0:
+            array = np.array(sorted(str(code) for code in array.tolist()), dtype=str) if array.size else np.array([], dtype="S1")
+        array = np.unique(array) if array.size else array
+        self.array = array
+
+    @classmethod
+    def from_lines(cls, text: str | None) -> CodeSet:
+        """Codes joined by newlines, as the database hands them back."""
+        import numpy as np
+
+        if not text:
+            return cls(np.array([], dtype="S1"))
+        data = text.encode("utf-8")
+        first = data.find(b"\n")
+        width = len(data) if first < 0 else first
+        if text.isascii() and (len(data) + 1) % (width + 1) == 0:
+            rows = np.frombuffer(data + b"\n", dtype=np.uint8).reshape(-1, width + 1)
+            if (rows[:, width] == ord("\n")).all():
+                return cls(np.ascontiguousarray(rows[:, :width]).view(f"S{width}").ravel())
+        return cls(np.array(text.split("\n"), dtype=str))
+
+    def _cast(self, values: Any) -> Any:
+        import numpy as np
+
+        values = np.asarray(values)
+        kind = self.array.dtype.kind
+        if values.dtype.kind == kind:
+            return values
+        if kind == "S":
+            return np.char.encode(values.astype(str), "utf-8") if values.size else values.astype("S1")
+        return np.char.decode(values, "utf-8") if values.dtype.kind == "S" else values.astype(str)
+
+    def contains(self, values: Any) -> Any:
+        """For each of ``values`` (an array), whether it is in the set."""
+        import numpy as np
+
+        values = self._cast(values)
+        if self.array.size == 0 or values.size == 0:
+            return np.zeros(values.shape, dtype=bool)
+        at = np.searchsorted(self.array, values)
+        at[at == self.array.size] = 0
+        return self.array[at] == values  # type: ignore[no-any-return]
+
+    def __contains__(self, code: object) -> bool:
+        if not isinstance(code, str) or self.array.size == 0:
+            return False
+        value = code.encode("utf-8") if self.array.dtype.kind == "S" else code
+        import numpy as np
+
+        at = int(np.searchsorted(self.array, value))
+        return at < self.array.size and self.array[at] == value  # type: ignore[no-any-return]
+
+    def __len__(self) -> int:
+        return int(self.array.size)
+
+    def codes(self, mask: Any = None) -> list[str]:
+        """The codes (those where ``mask`` holds, if given) as text, in sorted order."""
+        chosen = self.array if mask is None else self.array[mask]
+        if chosen.dtype.kind == "S":
+            return [value.decode("utf-8") for value in chosen.tolist()]
+        return [str(value) for value in chosen.tolist()]
+
+    def subset(self, codes: Iterable[str]) -> CodeSet:
+        """The members of this set that are among ``codes``."""
+        import numpy as np
+
+        wanted = list(codes)
+        if not wanted:
+            return CodeSet(self.array[:0])
+        values = self._cast(np.array(wanted, dtype=str))
+        return CodeSet(values[self.contains(values)])
+
+
 @dataclass(frozen=True)
 class HeldCodes:
-    """A series' codes by status, as sets."""
+    """A series' codes by status."""
 
-    issued: set[str]
-    voided: set[str]
+    issued: CodeSet
+    voided: CodeSet
 
 
 def held_codes(session: Session, series: Series) -> HeldCodes:
     """The series' issued and voided codes in one round trip: the database joins each
-    set into one text, so a million codes cost no million row objects."""
+    set into one text, so a million codes cost no million row objects (nor strings)."""
     dialect = session.get_bind().dialect.name
     join = "group_concat({}, char(10))" if dialect == "sqlite" else "string_agg({}, chr(10))"
     issued = join.format(f"CASE WHEN status = '{ISSUED}' THEN code END")
@@ -58,10 +140,7 @@ def held_codes(session: Session, series: Series) -> HeldCodes:
     ((issued_text, voided_text),) = driver_rows(
         session, f"SELECT {issued}, {voided} FROM issued_code WHERE {where} = ?", (series.id,)
     )
-    return HeldCodes(
-        set(issued_text.split("\n")) if issued_text else set(),
-        set(voided_text.split("\n")) if voided_text else set(),
-    )
+    return HeldCodes(CodeSet.from_lines(issued_text), CodeSet.from_lines(voided_text))
 
 
 @dataclass(frozen=True)
@@ -177,6 +256,7 @@ def record_sightings(
 
 
 __all__ = [
+    "CodeSet",
     "HeldCodes",
     "LastSeen",
     "Sighting",

@@ -32,7 +32,6 @@ scans never cost a million queries.
 
 from __future__ import annotations
 
-from collections import Counter
 from collections.abc import Callable, Sequence
 from datetime import datetime
 from pathlib import Path
@@ -48,13 +47,7 @@ from issuer.register.counting import CountInfo, scope_query_filter
 from issuer.register.models import ISSUED, VOIDED
 from issuer.register.places import codes_of_other_series, expected_places, same_place, scope_codes
 from issuer.register.series import code_format, get_series
-from issuer.register.stocktake import (
-    Sighting,
-    held_codes,
-    last_seen,
-    record_sightings,
-    void_details,
-)
+from issuer.register.stocktake import CodeSet, Sighting, held_codes, last_seen, record_sightings, void_details
 from issuer.register.store import Register
 from issuer.stocktake.results import (
     COUNT_KEYS,
@@ -64,6 +57,7 @@ from issuer.stocktake.results import (
     close_advice,
     Reconciliation,
     ScanLine,
+    Tally,
 )
 from issuer.stocktake.zones import parse_scan_time, zone_named
 
@@ -93,7 +87,7 @@ def read_scans(
 
 
 def _likely(
-    shape: CodeFormat, typed: str, candidates: Sequence[Any], issued: set[str], scanned: Counter[str]
+    shape: CodeFormat, typed: str, candidates: Sequence[Any], issued: CodeSet, scanned: Tally
 ) -> tuple[Likely, ...]:
     """The issued candidates ranked as at the desk (:mod:`issuer.checking.likely`), except
     that a code also missing from the scan comes before codes found on the shelf: a tag
@@ -134,6 +128,8 @@ def reconcile(
 ) -> Reconciliation:
     """Reconcile the scans in ``table`` against series ``key`` (within ``count``'s scope
     when given); ``zone`` is the zone of scan times written without one."""
+    import numpy as np
+
     from issuer.checking.neighbours import neighbours, omission_insertion_candidates
 
     seen = _seen_where(table, count)
@@ -144,23 +140,27 @@ def reconcile(
         held = held_codes(session, series)
         issued, voided = held.issued, held.voided
         read = read_codes(shape, table.codes)
-        canonical = read.canonical
-        statuses = [
-            "malformed" if state == MALFORMED else "bad_check" if state == BAD_CHECK
-            else ISSUED if code in issued else VOIDED if code in voided else "not_issued"
-            for state, code in zip(read.state.tolist(), canonical)
-        ]  # fmt: skip
+        canonical, fixed = read.canonical, read.fixed
+        readable = read.state != MALFORMED
+        # one class per line, worked out over whole arrays
+        in_issued = issued.contains(fixed) & readable
+        in_voided = voided.contains(fixed) & readable & ~in_issued
+        kinds = np.select(
+            [read.state == MALFORMED, read.state == BAD_CHECK, in_issued, in_voided], [0, 1, 2, 3], 4
+        ).astype(np.int8)
+        del in_issued, in_voided
+        names = ("malformed", "bad_check", ISSUED, VOIDED, "not_issued")
+        statuses = [names[kind] for kind in kinds.tolist()]
         expected = issued
         if count is not None and count.scope != "all":
-            expected = scope_codes(session, series, *scope_query_filter(count)) & issued
+            expected = issued.subset(scope_codes(session, series, *scope_query_filter(count)))
         places = expected_places(session, series)
-        strays = {i: table.codes[i] for i, s in enumerate(statuses) if s in ("malformed", "bad_check", "not_issued")}
+        strays = {i: table.codes[i] for i in np.flatnonzero((kinds <= 1) | (kinds == 4)).tolist()}
         others = codes_of_other_series(session, series, strays)
-        times: Counter[str] = Counter(canonical)  # type: ignore[arg-type]
-        times.pop(None, None)  # type: ignore[call-overload]
-        voided_seen = voided.intersection(times)
+        times = Tally(fixed[readable])
+        voided_seen = voided.codes(times.codes.contains(voided.array))
         voids = void_details(session, voided_seen)
-        missing = sorted(expected.difference(times))
+        missing = expected.codes(~times.codes.contains(expected.array))
         seen_before = last_seen(session, series) if missing else {}
     away = _away(canonical, seen, places)
     for index, status in enumerate(statuses):
@@ -173,7 +173,8 @@ def reconcile(
                 statuses[index] = "elsewhere"
         elif index in others:
             statuses[index] = "other_series"
-    unknown = {code for code in times if code not in issued and code not in voided}  # bad check or never issued
+    scanned = times.codes.array
+    unknown = set(times.codes.codes(~issued.contains(scanned) & ~voided.contains(scanned)))  # bad check, never issued
     unknown.difference_update(canonical[index] for index in others)
     first_line: dict[str, int] = {}
     if unknown:
@@ -199,6 +200,8 @@ def reconcile(
         if options and options[0].missing and close_advice(options) is None:
             perhaps.setdefault(options[0].code, table.lines[index])
     counts = _counts(statuses, canonical, others, times, len(missing))
+    reasons = read.reasons
+    del read, fixed, kinds  # the arrays go before the result is built
     counts["blank_lines"], counts["comment_lines"] = table.blank_lines, table.comment_lines
     return Reconciliation(
         series=key,
@@ -208,7 +211,7 @@ def reconcile(
         canonical=canonical,
         statuses=statuses,
         times=times,
-        reasons=read.reasons,
+        reasons=reasons,
         voids=voids,
         likely=likely,
         likely_by_line=likely_by_line,
@@ -228,7 +231,7 @@ def reconcile(
 
 
 def _counts(
-    statuses: list[str], canonical: list[str | None], others: dict[int, Any], times: Counter[str], missing: int
+    statuses: list[str], canonical: list[str | None], others: dict[int, Any], times: Tally, missing: int
 ) -> dict[str, int]:
     """Distinct codes per class (lines for malformed, another series' codes for
     ``other_series``); issued is what is left of the distinct codes scanned."""
@@ -246,7 +249,7 @@ def _counts(
     counted = set().union(*(distinct[name] for name in LINE_CLASSES if name not in ("issued", "malformed", "other_series")))
     counted.update(canonical[index] for index in others if canonical[index] is not None)
     counts["issued"] = len(times) - len(counted)
-    counts["duplicates"] = sum(1 for n in times.values() if n > 1)
+    counts["duplicates"] = int((times.counts > 1).sum())
     counts["missing"] = missing
     return {key: counts[key] for key in COUNT_KEYS}
 

@@ -3,7 +3,6 @@ scanned, and the likely intended code of each typo (see :mod:`issuer.stocktake.r
 
 from __future__ import annotations
 
-from collections import Counter
 from collections.abc import Iterator, Sequence
 from dataclasses import dataclass, field
 from datetime import datetime
@@ -14,7 +13,7 @@ from issuer.checking.likely import advice
 from issuer.readers.scanfile import Table
 from issuer.register.models import ISSUED, VOIDED
 from issuer.register.places import OtherSeries
-from issuer.register.stocktake import LastSeen, VoidDetail
+from issuer.register.stocktake import CodeSet, LastSeen, VoidDetail
 
 #: the classes of a scanned line, in report order
 LINE_CLASSES = (
@@ -47,6 +46,43 @@ def close_advice(likely: Sequence[Likely]) -> str | None:
     is missing) are about equally likely (:func:`issuer.checking.likely.advice`)."""
     first = [item for item in likely if item.missing] or list(likely)
     return advice([item.likelihood for item in first])
+
+
+class Tally:
+    """How many times each code was scanned, from a numpy array of the scanned codes:
+    a million scans cost two arrays, not a dictionary of a million strings."""
+
+    def __init__(self, scanned: Any) -> None:
+        import numpy as np
+
+        values, counts = np.unique(np.asarray(scanned), return_counts=True)
+        self.codes = CodeSet(values)
+        self.counts = counts
+
+    def _at(self, code: str) -> int | None:
+        import numpy as np
+
+        array = self.codes.array
+        if array.size == 0:
+            return None
+        value = code.encode("utf-8") if array.dtype.kind == "S" else code
+        at = int(np.searchsorted(array, value))
+        return at if at < array.size and array[at] == value else None
+
+    def __getitem__(self, code: str) -> int:
+        at = self._at(code)
+        return 0 if at is None else int(self.counts[at])
+
+    def __contains__(self, code: object) -> bool:
+        return isinstance(code, str) and self._at(code) is not None
+
+    def __len__(self) -> int:
+        return len(self.codes)
+
+    def repeated(self) -> list[tuple[str, int]]:
+        """(code, times) for every code scanned more than once, in code order."""
+        more = self.counts > 1
+        return list(zip(self.codes.codes(more), self.counts[more].tolist()))
 
 
 @dataclass(frozen=True)
@@ -103,7 +139,7 @@ class Reconciliation:
     table: Table = field(repr=False)
     canonical: list[str | None] = field(repr=False)
     statuses: list[str] = field(repr=False)
-    times: Counter[str] = field(repr=False)
+    times: Tally = field(repr=False)
     reasons: dict[int, str] = field(repr=False)
     voids: dict[str, VoidDetail] = field(repr=False)
     likely: dict[str, tuple[Likely, ...]] = field(repr=False)
@@ -206,7 +242,7 @@ class Reconciliation:
 
     def duplicates(self) -> list[tuple[str, int, list[int], list[str]]]:
         """(code, times scanned, lines, distinct places) for each code scanned twice or more."""
-        repeated = {code for code, n in self.times.items() if n > 1}
+        repeated = {code for code, _ in self.times.repeated()}
         lines: dict[str, list[int]] = {code: [] for code in repeated}
         places: dict[str, dict[str, None]] = {code: {} for code in repeated}
         where = self.table.role("where")
