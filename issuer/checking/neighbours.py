@@ -225,14 +225,15 @@ def _generators(shape: _Shape, typed: str) -> dict[str, Iterator[_Candidate]]:
     }
 
 
-def neighbours(fmt: CodeFormat, text: str) -> list[Neighbour]:
+def neighbours(fmt: CodeFormat, text: str, *, known: Callable[[str], bool] | None = None) -> list[Neighbour]:
     """Valid codes one likely error away from ``text``, most likely error first.
 
     ``text`` must parse under ``fmt`` (right prefix, suffix, length and alphabet); it
     need not be valid. The result excludes ``text`` itself, lists each code once (under
     its likeliest error) and orders classes by :data:`ERROR_WEIGHTS`, then positions
     left to right. Raises :class:`~issuer.errors.InvalidFormat` when ``text`` does not
-    parse.
+    parse. With ``known`` (a test of whole codes, such as membership of a register's
+    codes) only codes it accepts are offered, and it is asked before the check is computed.
     """
     parsed = fmt.parse(text)
     shape = _Shape(fmt)
@@ -241,19 +242,24 @@ def neighbours(fmt: CodeFormat, text: str) -> list[Neighbour]:
     generators = _generators(shape, typed)
     for error in sorted(generators, key=lambda key: -ERROR_WEIGHTS[key]):
         for meant, words in generators[error]:
-            if meant != typed and meant not in found and shape.valid(meant):
-                found[meant] = Neighbour(parsed.prefix + meant + parsed.suffix, error, words())
+            if meant == typed or meant in found:
+                continue
+            code = parsed.prefix + meant + parsed.suffix
+            if (known is None or known(code)) and shape.valid(meant):
+                found[meant] = Neighbour(code, error, words())
     return list(found.values())
 
 
-def omission_insertion_candidates(fmt: CodeFormat, text: str) -> list[Neighbour]:
+def omission_insertion_candidates(
+    fmt: CodeFormat, text: str, *, known: Callable[[str], bool] | None = None
+) -> list[Neighbour]:
     """Valid codes from which ``text`` lost one character, or gained one.
 
     For a text one character too short between prefix and suffix, every valid code
     that has one more character there (``omission``); for one character too long,
     every valid code left after deleting one (``insertion``). Any other text gives an
     empty list. Positions run left to right; a code reachable in two ways is listed
-    once.
+    once. ``known`` is as for :func:`neighbours`.
     """
     cleaned = normalise_text(text)
     prefix, suffix = fmt.prefix, fmt.suffix
@@ -271,7 +277,7 @@ def omission_insertion_candidates(fmt: CodeFormat, text: str) -> list[Neighbour]
     def offer(meant: str, error: str, description: str) -> None:
         if meant in found or not all(shape.allowed(i, ch) for i, ch in enumerate(meant)):
             return
-        if shape.valid(meant):
+        if (known is None or known(prefix + meant + suffix)) and shape.valid(meant):
             found[meant] = Neighbour(prefix + meant + suffix, error, description)
 
     if len(middle) == width - 1:

@@ -157,10 +157,10 @@ def reconcile(
         places = expected_places(session, series)
         strays = {i: table.codes[i] for i in np.flatnonzero((kinds <= 1) | (kinds == 4)).tolist()}
         others = codes_of_other_series(session, series, strays)
-        times = Tally(fixed[readable])
-        voided_seen = voided.codes(times.codes.contains(voided.array))
+        times = Tally(fixed[readable], issued)
+        voided_seen = voided.codes(times.codes.contains_keys(voided.array))
         voids = void_details(session, voided_seen)
-        missing = expected.codes(~times.codes.contains(expected.array))
+        missing = expected.codes(~times.codes.contains_keys(expected.array))
         seen_before = last_seen(session, series) if missing else {}
     away = _away(canonical, seen, places)
     for index, status in enumerate(statuses):
@@ -174,7 +174,7 @@ def reconcile(
         elif index in others:
             statuses[index] = "other_series"
     scanned = times.codes.array
-    unknown = set(times.codes.codes(~issued.contains(scanned) & ~voided.contains(scanned)))  # bad check, never issued
+    unknown = set(times.codes.codes(~issued.contains_keys(scanned) & ~voided.contains_keys(scanned)))  # bad check, never issued
     unknown.difference_update(canonical[index] for index in others)
     first_line: dict[str, int] = {}
     if unknown:
@@ -183,12 +183,13 @@ def reconcile(
                 first_line[scanned] = number
     likely: dict[str, tuple[Likely, ...]] = {}
     for code in sorted(unknown, key=first_line.__getitem__):  # in file order
-        likely[code] = _likely(shape, code, neighbours(shape, code), issued, times)
+        # membership is asked before the check is computed: most candidates are not issued
+        likely[code] = _likely(shape, code, neighbours(shape, code, known=issued.__contains__), issued, times)
     likely_by_line: dict[int, tuple[Likely, ...]] = {}
     for index in read.reasons:
         if index in others:
             continue
-        candidates = omission_insertion_candidates(shape, table.codes[index])
+        candidates = omission_insertion_candidates(shape, table.codes[index], known=issued.__contains__)
         if candidates:
             typed = normalise_text(table.codes[index])
             likely_by_line[index] = _likely(shape, typed, candidates, issued, times)

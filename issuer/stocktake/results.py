@@ -52,29 +52,31 @@ class Tally:
     """How many times each code was scanned, from a numpy array of the scanned codes:
     a million scans cost two arrays, not a dictionary of a million strings."""
 
-    def __init__(self, scanned: Any) -> None:
+    def __init__(self, scanned: Any, like: CodeSet) -> None:
         import numpy as np
 
-        values, counts = np.unique(np.asarray(scanned), return_counts=True)
-        self.codes = CodeSet(values)
-        self.counts = counts
+        keys, _ = like._keys(scanned)
+        keys = np.sort(keys)
+        starts = np.flatnonzero(np.concatenate(([True], keys[1:] != keys[:-1]))) if keys.size else np.zeros(0, int)
+        self.counts = np.diff(np.append(starts, keys.size))
+        self.codes = like.with_keys(keys[starts])
 
     def _at(self, code: str) -> int | None:
         import numpy as np
 
+        keys, fits = self.codes._keys(np.array([code], dtype=str))
         array = self.codes.array
-        if array.size == 0:
+        if not fits[0] or array.size == 0:
             return None
-        value = code.encode("utf-8") if array.dtype.kind == "S" else code
-        at = int(np.searchsorted(array, value))
-        return at if at < array.size and array[at] == value else None
+        at = int(np.searchsorted(array, keys)[0])
+        return at if at < array.size and array[at] == keys[0] else None
 
     def __getitem__(self, code: str) -> int:
         at = self._at(code)
         return 0 if at is None else int(self.counts[at])
 
     def __contains__(self, code: object) -> bool:
-        return isinstance(code, str) and self._at(code) is not None
+        return isinstance(code, str) and code in self.codes
 
     def __len__(self) -> int:
         return len(self.codes)
