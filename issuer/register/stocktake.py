@@ -162,24 +162,35 @@ class CodeSet:
         at[at == self.array.size] = 0
         return self.array[at] == keys
 
-    def __contains__(self, code: object) -> bool:
+    def key_of(self, code: str) -> Any:
+        """One code in this set's form (``None`` when it cannot be a member): no arrays."""
         import numpy as np
 
-        if not isinstance(code, str) or self.array.size == 0:
-            return False
-        if self.packed:  # one code: no arrays, just its integer
-            data = code.encode("utf-8")
-            if len(data) != self.width or not data.startswith(self.prefix) or not data.endswith(self.suffix):
-                return False
-            key = 0
-            for byte in data[len(self.prefix): len(self.prefix) + self.middle]:
-                rank = int(self.rank[byte])
-                if rank < 0:
-                    return False
-                key = (key << self.bits) | rank
-            at = int(self.array.searchsorted(np.uint64(key)))
-            return at < self.array.size and bool(self.array[at] == key)
-        return bool(self.contains(np.array([code], dtype=str))[0])
+        if not self.packed:
+            return code.encode("utf-8") if self.array.dtype.kind == "S" else code
+        data = code.encode("utf-8")
+        if len(data) != self.width or not data.startswith(self.prefix) or not data.endswith(self.suffix):
+            return None
+        key = 0
+        for byte in data[len(self.prefix): len(self.prefix) + self.middle]:
+            rank = int(self.rank[byte])
+            if rank < 0:
+                return None
+            key = (key << self.bits) | rank
+        return np.uint64(key)
+
+    def index_of(self, code: str) -> int | None:
+        """Where ``code`` sits in :attr:`array`, or None when it is not a member."""
+        if self.array.size == 0:
+            return None
+        key = self.key_of(code)
+        if key is None:
+            return None
+        at = int(self.array.searchsorted(key))
+        return at if at < self.array.size and self.array[at] == key else None
+
+    def __contains__(self, code: object) -> bool:
+        return isinstance(code, str) and self.index_of(code) is not None
 
     def __len__(self) -> int:
         return int(self.array.size)

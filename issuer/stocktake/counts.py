@@ -197,7 +197,7 @@ def count_result(register: Register, name: str) -> tuple[CountInfo, list[FileInf
 def frozen(recon: Reconciliation) -> dict[str, Any]:
     """What a closed count keeps: its counts and every list but the plain issued codes
     (their number is in the counts; there may be a million of them)."""
-    data = as_json(recon)
+    data = as_json(recon, list_issued=False)
     data.pop("issued")
     return data
 

@@ -117,17 +117,18 @@ def _entry(recon: Reconciliation, index: int, line: ScanLine) -> dict[str, Any]:
     return entry
 
 
-def as_json(recon: Reconciliation) -> dict[str, Any]:
+def as_json(recon: Reconciliation, *, list_issued: bool = True) -> dict[str, Any]:
     """Counts under ``counts``, and beside them the list of each class: present codes
-    once each (at their first line), malformed lines each, duplicates with their lines
-    and places, missing codes with when and where they were last seen."""
+    once each (at their first line; unless ``list_issued`` is false), malformed lines
+    each, duplicates with their lines and places, missing codes with when and where they
+    were last seen."""
     from issuer.register.bulk import display_texts
 
     lists: dict[str, list[dict[str, Any]]] = {key: [] for key in LINE_CLASSES}
     # issued codes straight from the columns (there may be a million), the rest line by line
     first_index: dict[str, int] = {}
     for index, (code, status) in enumerate(zip(recon.canonical, recon.statuses)):
-        if status == "issued" and code not in first_index:
+        if list_issued and status == "issued" and code not in first_index:
             first_index[code] = index  # type: ignore[index]
     codes = list(first_index)
     times, lines = recon.times, recon.table.lines

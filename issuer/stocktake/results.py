@@ -62,14 +62,7 @@ class Tally:
         self.codes = like.with_keys(keys[starts])
 
     def _at(self, code: str) -> int | None:
-        import numpy as np
-
-        keys, fits = self.codes._keys(np.array([code], dtype=str))
-        array = self.codes.array
-        if not fits[0] or array.size == 0:
-            return None
-        at = int(np.searchsorted(array, keys)[0])
-        return at if at < array.size and array[at] == keys[0] else None
+        return self.codes.index_of(code)
 
     def __getitem__(self, code: str) -> int:
         at = self._at(code)
