@@ -66,6 +66,8 @@ TEXT_LIMITS: dict[str, TextLimit] = {
         TextLimit("alphabet", 200, empty_ok=False),
         TextLimit("layout", 100, empty_ok=False),
         TextLimit("code", 100, empty_ok=False),
+        TextLimit("count name", 64, empty_ok=False),
+        TextLimit("scanner", 200),
     )
 }
 

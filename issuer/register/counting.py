@@ -38,10 +38,8 @@ from issuer.register.store import Register
 
 #: scanned lines inserted per statement round
 SCAN_CHUNK = 20_000
-#: the longest count name, scanned text kept, and scanner name
-NAME_WIDTH = 64
+#: the scanned text and file name kept (a longer scan is malformed whatever follows)
 SCANNED_WIDTH = 200
-SCANNER_WIDTH = 200
 FILE_NAME_WIDTH = 200
 #: scopes of a count
 SCOPES = ("all", "where", "range", "batch", "holder")
@@ -138,9 +136,10 @@ class FileInfo:
 
 
 def check_count_name(name: str) -> str:
+    from issuer import limits
+
     text = name.strip()
-    if not text or len(text) > NAME_WIDTH or not text.isprintable():
-        raise InvalidFormat(f"a count's name is 1 to {NAME_WIDTH} printable characters, not {name!r}")
+    limits.text("count name", text, label="a count's name")
     return text
 
 
@@ -238,8 +237,11 @@ def add_scan_file(
 ) -> FileInfo:
     """Add one scan file to the open count ``name``, whole, in one transaction; a file
     whose digest the count holds already is refused."""
+    from issuer import limits
+
     if not scan_file.rows:
         raise InvalidFormat(f"{scan_file.name} holds no scans")
+    limits.text("scanner", scan_file.scanner, label="a scanner's name")
 
     def work(session: Session) -> FileInfo:
         count = get_count(session, name, lock="share")
@@ -249,7 +251,7 @@ def add_scan_file(
         now = register.clock()
         record = StockCountFile(
             count_id=count.id, digest=scan_file.digest, name=scan_file.name[-FILE_NAME_WIDTH:],
-            scanner=(scan_file.scanner or None) and scan_file.scanner[:SCANNER_WIDTH], zone=scan_file.zone,  # type: ignore[index]
+            scanner=scan_file.scanner or None, zone=scan_file.zone,
             scans=len(scan_file.rows), blank_lines=scan_file.blank_lines, comment_lines=scan_file.comment_lines,
             added_at=now, added_by=register.actor,
         )  # fmt: skip

@@ -23,8 +23,6 @@ from issuer.register.models import IssuedCode, Series
 from issuer.register.series import all_series, code_format
 from issuer.register.store import Register
 
-#: the longest place name, on every backend
-PLACE_WIDTH = 200
 #: ``IN (...)`` lists are at most this long
 IN_CHUNK = 500
 #: log entries appended per round
@@ -32,15 +30,14 @@ LOG_CHUNK = 5_000
 
 
 def clean_place(text: str) -> str:
-    """A place as stored: trimmed, inner runs of spaces made one; refused when empty, too
-    long or holding control characters."""
+    """A place as stored: trimmed, inner runs of spaces made one; refused when empty or
+    outside the ``location`` limit (:mod:`issuer.limits`)."""
+    from issuer import limits
+
     place = " ".join(text.split())
     if not place:
         raise InvalidFormat("a place needs a name (a shelf, room or bin)")
-    if len(place) > PLACE_WIDTH:
-        raise InvalidFormat(f"a place name has at most {PLACE_WIDTH} characters ({len(place)} given)")
-    if not place.isprintable():
-        raise InvalidFormat(f"a place name holds printable characters only, not {text!r}")
+    limits.text("location", place, label="a place name")
     return place
 
 
@@ -166,7 +163,6 @@ def codes_of_other_series(
 
 
 __all__ = [
-    "PLACE_WIDTH",
     "OtherSeries",
     "Placed",
     "clean_place",
