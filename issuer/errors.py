@@ -78,6 +78,10 @@ class RegisterError(IssuerError):
     default_message = "the register refused the request"
 
 
+class ConnectionLost(RegisterError):
+    """The connection to the database dropped; the act may or may not have happened."""
+
+
 class NotFound(RegisterError):
     default_message = "not found in the register"
 

@@ -55,7 +55,7 @@ COMMAND_MODULES: dict[str, tuple[str, ...]] = {
     "layouts": ("labels",), "labels": ("printing",), "reprint": ("printing",),
     "reconcile": ("stocktake",), "import": ("transfer",), "export": ("transfer",),
     "stocktake": ("counts",), "place": ("counts",),
-    "serve": ("service",), "tokens": ("service",),
+    "serve": ("service",), "tokens": ("service",), "counter": ("counter",),
 }  # fmt: skip
 
 

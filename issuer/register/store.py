@@ -31,7 +31,15 @@ from sqlalchemy.exc import ArgumentError, DBAPIError, IntegrityError, Operationa
 from sqlalchemy.orm import Session
 
 from issuer import limits
-from issuer.errors import DuplicateRow, IssuerError, NoRegister, PermissionDenied, RegisterError, redact
+from issuer.errors import (
+    ConnectionLost,
+    DuplicateRow,
+    IssuerError,
+    NoRegister,
+    PermissionDenied,
+    RegisterError,
+    redact,
+)
 from issuer.outputs import private_folder, protect
 
 T = TypeVar("T")
@@ -194,6 +202,10 @@ class Register:
             except IntegrityError as exc:
                 raise DuplicateRow(_constraint_line(exc)) from exc
             except DBAPIError as exc:
+                if exc.connection_invalidated:
+                    raise ConnectionLost(
+                        "the connection to the register was lost; the act's outcome is unknown"
+                    ) from None
                 if _is_permission_error(exc):
                     raise PermissionDenied(
                         "the database refused this act for the connected role "

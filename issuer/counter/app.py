@@ -1,0 +1,335 @@
+"""``issuer counter``: one input line that keeps the focus, an answer panel, acts on the
+answered code by single keys, and a strip of recent answers.
+
+Every act is one call on :class:`~issuer.counter.desk.CounterDesk` (the same library call
+the command line makes), run in a worker thread so the screen never freezes.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from typing import Any
+
+from rich.text import Text
+from textual import work
+from textual.app import App, ComposeResult
+from textual.binding import Binding
+from textual.widgets import Footer, Input, OptionList, Static
+from textual.widgets.option_list import Option
+
+from issuer.cli.answers import answer_text, looks
+from issuer.counter.desk import CounterDesk
+from issuer.counter.screens import AskScreen, ConfirmScreen, HistoryScreen, PickScreen
+from issuer.errors import IssuerError
+
+#: answers and acts kept in the recent strip
+RECENT = 20
+#: after this long an unfinished act says that it is waiting
+SLOW_S = 0.4
+
+CAUTION = "A check character catches mistakes, not fraud."
+
+
+class CounterApp(App[None]):
+    """The counter screen over one register."""
+
+    CSS_PATH = "counter.tcss"
+    ENABLE_COMMAND_PALETTE = False  # the footer's room goes to the acts
+    TITLE = "issuer counter"
+    BINDINGS = [
+        Binding("f2", "issue", "New code", priority=True),
+        Binding("f3", "void", "Void", priority=True),
+        Binding("f4", "replace", "Replace", priority=True),
+        Binding("f5", "restore", "Restore", priority=True),
+        Binding("f6", "reprint", "Reprint", priority=True),
+        Binding("f7", "history", "History", priority=True),
+        Binding("f8", "holder", "Holder", priority=True),
+        Binding("f9", "find", "Find", priority=True),
+        Binding("f10", "series", "Series", priority=True),
+        Binding("ctrl+q", "quit", "Quit", priority=True),
+        Binding("escape", "back", "Back to the scan line", show=False),
+    ]
+
+    def __init__(self, desk: CounterDesk, *, where: str = "") -> None:
+        super().__init__()
+        self.desk, self.where = desk, where
+        self.current: Any = None  # the answer on show
+        self.recent: list[tuple[str, str]] = []  # (code or input, line)
+        self.busy = 0
+
+    # -- layout -----------------------------------------------------------------------
+
+    def compose(self) -> ComposeResult:
+        yield Static(self._title(), id="title")
+        yield Static("", id="banner")
+        yield Input(placeholder="Scan or type a code, then Enter", id="scan", max_length=200)
+        with self._box():
+            yield Static(Text(f"Ready. {CAUTION}"), id="answer")
+        yield OptionList(id="suggestions")
+        yield Static("", id="status")
+        yield OptionList(id="recent")
+        yield Footer()
+
+    def _box(self) -> Any:
+        from textual.containers import VerticalScroll
+
+        return VerticalScroll(id="answer-box")
+
+    def _title(self) -> str:
+        series = self.desk.series or "no series chosen (F10)"
+        return f"issuer counter · {self.where} · series {series}"
+
+    def on_mount(self) -> None:
+        self.query_one("#answer-box").border_title = "answer"
+        self.query_one("#recent", OptionList).border_title = "recent"
+        self.query_one("#scan", Input).focus()
+
+    # -- the scan line ----------------------------------------------------------------
+
+    def on_input_submitted(self, event: Input.Submitted) -> None:
+        if event.input.id != "scan":
+            return
+        text = event.value
+        event.input.value = ""
+        if not text.strip():
+            return
+        self.check(text)
+
+    def check(self, text: str) -> None:
+        self.run_act(lambda: self.desk.check(text), self.show_answer, "Checking")
+
+    def show_answer(self, answered: Any) -> None:
+        answer, record = answered.answer, answered.record
+        self.current = answer
+        text = answer_text(answer, list_suggestions=False)
+        if record is not None:
+            text.append(f"\nissued {record.issued_at:%Y-%m-%d %H:%M} UTC by {record.issued_by}"
+                        f" · batch {record.batch} · printed {record.print_count}×")  # fmt: skip
+            if record.last_seen_at is not None:
+                where = f" at {record.last_seen_where}" if record.last_seen_where else ""
+                text.append(f"\nlast seen {record.last_seen_at:%Y-%m-%d %H:%M} UTC{where}")
+        self.query_one("#answer", Static).update(text)
+        suggestions = self.query_one("#suggestions", OptionList)
+        suggestions.clear_options()
+        if answer.suggestions:
+            suggestions.add_options(
+                Option(f"{n}. {s.display}  ({s.description})", id=s.code)
+                for n, s in enumerate(answer.suggestions, 1)
+            )
+            suggestions.add_class("shown")
+        else:
+            suggestions.remove_class("shown")
+        symbol, words, _ = looks(answer.status)
+        self.remember(answer.code or answer.input, f"{symbol} {answer.display or answer.input}  {words}")
+        self.query_one("#scan", Input).focus()
+
+    def on_option_list_option_selected(self, event: OptionList.OptionSelected) -> None:
+        if event.option.id:
+            self.check(event.option.id.split("#", 1)[0])
+
+    def remember(self, key: str, line: str) -> None:
+        self.recent.insert(0, (key, line))
+        del self.recent[RECENT:]
+        strip = self.query_one("#recent", OptionList)
+        strip.clear_options()
+        strip.add_options(Option(text, id=f"{code}#{n}") for n, (code, text) in enumerate(self.recent))
+
+    def say(self, line: str, style: str = "bold") -> None:
+        self.query_one("#answer", Static).update(Text(line, style=style))
+
+    # -- running work off the screen's thread ------------------------------------------
+
+    def run_act(self, work_fn: Callable[[], Any], then: Callable[[Any], None], what: str) -> None:
+        self.busy += 1
+        status = self.query_one("#status", Static)
+        status.update(f"⋯ {what}…")
+        timer = self.set_timer(SLOW_S, lambda: status.update(f"⋯ {what}: waiting for another desk…"))
+        self._worker(work_fn, then, timer)
+
+    @work(thread=True, group="register")
+    def _worker(self, work_fn: Callable[[], Any], then: Callable[[Any], None], timer: Any) -> None:
+        try:
+            result = work_fn()
+        except IssuerError as exc:
+            self.call_from_thread(self._done, timer, lambda: self.say(f"✗ {exc.message}", "bold red"))
+            return
+        except Exception as exc:  # a face never shows a traceback to the clerk
+            message = f"✗ the act failed unexpectedly ({type(exc).__name__}); nothing more was done"
+            self.call_from_thread(self._done, timer, lambda: self.say(message, "bold red"))
+            return
+        self.call_from_thread(self._done, timer, lambda: then(result))
+
+    def _done(self, timer: Any, show: Callable[[], None]) -> None:
+        timer.stop()
+        self.busy -= 1
+        self.query_one("#status", Static).update("")
+        self.query_one("#banner", Static).remove_class("shown")
+        show()
+
+    def reconnecting(self, attempt: int) -> None:
+        """Called from a worker when the database connection dropped and is being retried."""
+
+        def show() -> None:
+            banner = self.query_one("#banner", Static)
+            banner.update(f"⚠ connection to the register lost: trying again ({attempt})…")
+            banner.add_class("shown")
+
+        self.call_from_thread(show)
+
+    # -- acts on the answered code -------------------------------------------------------
+
+    def _answered(self, *statuses: str) -> Any:
+        answer = self.current
+        if answer is None or answer.code is None or answer.status not in statuses:
+            wanted = " or ".join(s.replace("_", " ") for s in statuses)
+            self.say(f"✗ scan a code that is {wanted} first", "bold yellow")
+            return None
+        return answer
+
+    def action_back(self) -> None:
+        self.query_one("#scan", Input).focus()
+
+    def action_issue(self) -> None:
+        if self.desk.series is None:
+            self.say("✗ choose a series first (F10)", "bold yellow")
+            return
+
+        def issue(values: dict[str, str] | None) -> None:
+            if values is None:
+                return
+            self.run_act(lambda: self.desk.issue(values["holder"] or None, values["note"] or None),
+                         self._issued, "Issuing")  # fmt: skip
+
+        self.push_screen(AskScreen(f"New code from series {self.desk.series}",
+                                   [("holder", "Holder (optional; personal data)", False),
+                                    ("note", "Note (optional)", False)]), issue)  # fmt: skip
+
+    def _issued(self, info: Any) -> None:
+        self.remember(info.code, f"+ issued {info.display}" + (f" to {info.holder}" if info.holder else ""))
+        self.check(info.code)
+
+    def _reasoned(self, title: str, question: str, act: Callable[[str], Any], then: Callable[[Any], None],
+                  what: str, confirm: bool) -> None:  # fmt: skip
+        def asked(values: dict[str, str] | None) -> None:
+            if values is None:
+                return
+            reason = values["reason"]
+            if not confirm:
+                self.run_act(lambda: act(reason), then, what)
+                return
+
+            def confirmed(yes: bool | None) -> None:
+                if yes:
+                    self.run_act(lambda: act(reason), then, what)
+                else:
+                    self.say("Nothing was done.")
+
+            self.push_screen(ConfirmScreen(question), confirmed)
+
+        self.push_screen(AskScreen(title, [("reason", "Reason (goes into the log)", True)]), asked)
+
+    def action_void(self) -> None:
+        answer = self._answered("issued", "expired", "suspended")
+        if answer is None:
+            return
+        self._reasoned(f"Void {answer.display}", f"Void {answer.display} for good? It is never issued again.",
+                       lambda r: self.desk.void(answer.code, r), self._after("voided"), "Voiding", True)  # fmt: skip
+
+    def action_replace(self) -> None:
+        answer = self._answered("issued", "expired", "suspended")
+        if answer is None:
+            return
+
+        def replaced(made: Any) -> None:
+            self.remember(made.code, f"⇄ {answer.display} → {made.display}")
+            self.query_one("#answer", Static).update(Text.assemble(
+                ("⇄ replaced\n", "bold green"), ("old  ", ""), (f"{answer.display}", "bold red"),
+                ("  voided\nnew  ", ""), (f"{made.display}", "bold green"), ("  issued", ""),
+            ))  # fmt: skip
+            self.current = None
+
+        self._reasoned(f"Replace {answer.display}",
+                       f"Void {answer.display} for good and issue its replacement?",
+                       lambda r: self.desk.replace(answer.code, r), replaced, "Replacing", True)  # fmt: skip
+
+    def action_restore(self) -> None:
+        answer = self._answered("voided")
+        if answer is None:
+            return
+        self._reasoned(f"Restore {answer.display}", "", lambda r: self.desk.restore(answer.code, r),
+                       self._after("restored"), "Restoring", False)  # fmt: skip
+
+    def action_reprint(self) -> None:
+        answer = self._answered("issued", "expired")
+        if answer is None:
+            return
+
+        def printed(outcome: Any) -> None:
+            self.remember(answer.code, f"⎙ reprinted {answer.display}")
+            self.say(f"⎙ reprinted {answer.display}: {outcome.path}", "bold green")
+
+        self._reasoned(f"Reprint the label of {answer.display}", "",
+                       lambda r: self.desk.reprint(answer.code, r), printed, "Drawing the label", False)  # fmt: skip
+
+    def action_holder(self) -> None:
+        answer = self._answered("issued", "expired", "suspended")
+        if answer is None:
+            return
+
+        def asked(values: dict[str, str] | None) -> None:
+            if values is not None:
+                self.run_act(lambda: self.desk.set_holder(answer.code, values["holder"]),
+                             self._after("holder changed"), "Saving")  # fmt: skip
+
+        self.push_screen(AskScreen(f"Holder of {answer.display}", [("holder", "Holder (empty: none)", False)],
+                                   "Personal data: store only what your policy allows."), asked)  # fmt: skip
+
+    def _after(self, verb: str) -> Callable[[Any], None]:
+        def show(record: Any) -> None:
+            self.remember(record.code, f"• {verb} {record.display}")
+            self.check(record.code)
+
+        return show
+
+    def action_history(self) -> None:
+        answer = self._answered("issued", "voided", "expired", "suspended")
+        if answer is None:
+            return
+
+        def shown(found: tuple[Any, list[Any]]) -> None:
+            record, events = found
+            body = Text()
+            body.append(f"{record.display}  series {record.series}  {record.status}\n", style="bold")
+            body.append(f"issued {record.issued_at:%Y-%m-%d %H:%M} by {record.issued_by}; "
+                        f"printed {record.print_count} time(s)\n\n")  # fmt: skip
+            for event in events:
+                body.append(f"{event.at:%Y-%m-%d %H:%M}  {event.actor:<16} {event.action}\n")
+            self.push_screen(HistoryScreen(body))
+
+        self.run_act(lambda: self.desk.history(answer.code), shown, "Reading the history")
+
+    def action_find(self) -> None:
+        def asked(values: dict[str, str] | None) -> None:
+            if values is not None:
+                self.run_act(lambda: self.desk.find(values["text"]), found, "Searching")
+
+        def found(rows: list[Any]) -> None:
+            if not rows:
+                self.say("No code's holder or note starts with that.")
+                return
+            choices = [(row.code, f"{row.display}  {row.series}  {row.holder or row.note or ''}") for row in rows]
+            self.push_screen(PickScreen(f"{len(rows)} found", choices),
+                             lambda code: self.check(code) if code else None)  # fmt: skip
+
+        self.push_screen(AskScreen("Find by holder or note", [("text", "Starts with", True)]), asked)
+
+    def action_series(self) -> None:
+        def listed(keys: list[str]) -> None:
+            self.push_screen(PickScreen("Series for new codes", [(key, key) for key in keys]), chosen)
+
+        def chosen(key: str | None) -> None:
+            if key:
+                self.desk.series = key
+                self.query_one("#title", Static).update(self._title())
+
+        self.run_act(self.desk.series_keys, listed, "Reading the series")

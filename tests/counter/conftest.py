@@ -1,0 +1,27 @@
+"""A register with a tool series issued in order, for the counter's pilot tests
+(demo data: the fictional Quillmere Tool Library)."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Any
+
+import pytest
+
+
+@pytest.fixture
+def desk(register: Any, tmp_path: Path) -> Any:
+    from issuer.config import load_settings
+    from issuer.counter.desk import CounterDesk
+    from issuer.register.issuing import issue_codes
+    from issuer.register.series import SeriesSpec, add_series
+
+    add_series(register, SeriesSpec(key="tools", scheme="luhn", length=6, prefix="QT", title="Tool tags"))
+    issue_codes(register, "tools", 30, holder="workshop shelf B")
+    return CounterDesk(register, series="tools", settings=load_settings(), label_folder=tmp_path / "labels")
+
+
+def make_app(desk: Any) -> Any:
+    from issuer.counter.app import CounterApp
+
+    return CounterApp(desk, where="Quillmere test register")

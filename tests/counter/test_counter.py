@@ -1,0 +1,157 @@
+"""The counter screen driven headlessly by Textual's pilot; every act's effect is read
+back through the library, never from the screen alone."""
+
+from __future__ import annotations
+
+import asyncio
+from typing import Any
+
+from tests.counter.conftest import make_app
+
+
+def _code(desk: Any, n: int) -> Any:
+    from issuer.register.series import code_format, get_series
+
+    with desk.register.reading() as session:
+        series = get_series(session, "tools")
+        shape = code_format(series)
+        code = shape.code_for_base(series.range_start + n)
+    return code, shape.display(code)
+
+
+def _record(desk: Any, code: str) -> Any:
+    from issuer.register.lifecycle import code_history
+
+    with desk.register.reading() as session:
+        return code_history(session, code)[0]
+
+
+async def _settle(app: Any, pilot: Any) -> None:
+    await pilot.pause()
+    await app.workers.wait_for_complete()
+    await pilot.pause()
+
+
+async def _scan(app: Any, pilot: Any, text: str) -> str:
+    app.query_one("#scan").focus()
+    await pilot.press(*text, "enter")
+    await _settle(app, pilot)
+    return str(app.query_one("#answer").render())
+
+
+def _swap(code: str, prefix: int = 2) -> str:
+    body = code[prefix:]
+    for i in range(len(body) - 2, -1, -1):
+        if body[i] != body[i + 1]:
+            return code[:prefix] + body[:i] + body[i + 1] + body[i] + body[i + 2:]
+    raise AssertionError("no swap possible")
+
+
+def test_scan_issued_typo_voided_and_junk(desk: Any) -> None:
+    from issuer.register.lifecycle import void_code
+
+    issued, shown = _code(desk, 4)
+    voided, _ = _code(desk, 7)
+    void_code(desk.register, voided, reason="tag snapped")
+
+    async def run() -> None:
+        app = make_app(desk)
+        async with app.run_test(size=(80, 24)) as pilot:
+            answer = await _scan(app, pilot, shown)
+            assert "✓ in use" in answer and shown in answer and "workshop shelf B" in answer
+            assert app.focused is app.query_one("#scan")  # the scan line keeps the focus
+            answer = await _scan(app, pilot, _swap(issued))
+            assert "typo" in answer or "did you mean" in answer
+            suggestions = app.query_one("#suggestions")
+            assert suggestions.option_count >= 1
+            wanted = [i for i in range(suggestions.option_count) if suggestions.get_option_at_index(i).id == issued]
+            assert wanted, "the intended code is among the suggestions"
+            suggestions.focus()
+            suggestions.highlighted = wanted[0]
+            await pilot.press("enter")
+            await _settle(app, pilot)
+            assert "✓ in use" in str(app.query_one("#answer").render())
+            answer = await _scan(app, pilot, voided)
+            assert "VOIDED" in answer and "tag snapped" in answer
+            answer = await _scan(app, pilot, "hello?")
+            assert "not a code" in answer
+            assert app.query_one("#recent").option_count == 5
+
+    asyncio.run(run())
+
+
+def test_issue_void_replace_restore_reprint_history(desk: Any) -> None:
+    async def run() -> None:
+        app = make_app(desk)
+        async with app.run_test(size=(80, 24)) as pilot:
+            # F2: a new code with a holder
+            await pilot.press("f2")
+            await pilot.press(*"Quillmere bench 3", "enter", "enter")
+            await _settle(app, pilot)
+            new_code, new_display = _code(desk, 30)
+            assert _record(desk, new_code).holder == "Quillmere bench 3"
+            assert new_display in str(app.query_one("#answer").render())
+            # F3: void it, with a reason and a last yes
+            await pilot.press("f3", *"card reported lost", "enter")
+            await pilot.pause()
+            await pilot.press("y")
+            await _settle(app, pilot)
+            record = _record(desk, new_code)
+            assert record.status == "voided" and record.void_reason == "card reported lost"
+            # F5: restore it
+            await pilot.press("f5", *"card found", "enter")
+            await _settle(app, pilot)
+            assert _record(desk, new_code).status == "issued"
+            # F6: reprint its label into the label folder (logged as a reprint)
+            await pilot.press("f6", *"label faded", "enter")
+            await _settle(app, pilot)
+            assert _record(desk, new_code).print_count == 1
+            assert len(list(desk.label_folder.glob("*.pdf"))) == 1
+            # F7: its history, then back
+            await pilot.press("f7")
+            await _settle(app, pilot)
+            assert app.screen.__class__.__name__ == "HistoryScreen"
+            await pilot.press("escape")
+            # F4: replace it; old and new side by side
+            await pilot.press("f4", *"tag damaged", "enter")
+            await pilot.pause()
+            await pilot.press("y")
+            await _settle(app, pilot)
+            old = _record(desk, new_code)
+            assert old.status == "voided" and old.replaced_by is not None
+            assert _record(desk, old.replaced_by).status == "issued"
+            shown = str(app.query_one("#answer").render())
+            assert "old" in shown and "new" in shown
+            # declining the last question does nothing
+            await _scan(app, pilot, _code(desk, 1)[1])
+            await pilot.press("f3", *"mistake", "enter")
+            await pilot.pause()
+            await pilot.press("n")
+            await _settle(app, pilot)
+            assert _record(desk, _code(desk, 1)[0]).status == "issued"
+            await pilot.press("ctrl+q")
+        assert app.return_code in (0, None)
+
+    asyncio.run(run())
+
+
+def test_two_counters_at_once_lose_nothing(desk: Any) -> None:
+    from issuer.register.transfer import export_session_rows
+    from issuer.register.series import get_series
+
+    per_desk = 8
+
+    async def one(app: Any) -> None:
+        async with app.run_test(size=(80, 24)) as pilot:
+            for n in range(per_desk):
+                await pilot.press("f2", *f"member {n}", "enter", "enter")
+                await _settle(app, pilot)
+
+    async def run() -> None:
+        await asyncio.gather(one(make_app(desk)), one(make_app(desk)))
+
+    asyncio.run(run())
+    with desk.register.reading() as session:
+        rows = export_session_rows(session, get_series(session, "tools"))
+    codes = [row[0] for row in rows]
+    assert len(codes) == 30 + 2 * per_desk and len(set(codes)) == len(codes)
