@@ -16,6 +16,10 @@ def desk(register: Any, tmp_path: Path) -> Any:
     from issuer.register.issuing import issue_codes
     from issuer.register.series import SeriesSpec, add_series
 
+    from datetime import UTC, datetime
+
+    # a fixed clock: what the screen shows (issued when) stays the same run after run
+    register.clock = lambda: datetime(2026, 3, 14, 9, 30, tzinfo=UTC)
     add_series(register, SeriesSpec(key="tools", scheme="luhn", length=6, prefix="QT", title="Tool tags"))
     issue_codes(register, "tools", 30, holder="workshop shelf B")
     return CounterDesk(register, series="tools", settings=load_settings(), label_folder=tmp_path / "labels")
