@@ -17,6 +17,7 @@ from issuer.register.issuing import issue_codes
 from issuer.register.migrate import alembic_config
 from issuer.register.series import SeriesSpec, add_series, change_series, get_series
 from issuer.register.store import SCHEMA_HEAD, open_register
+from tests.register.pg import pg_database, pg_url, register_url  # noqa: F401
 
 TOOLS = SeriesSpec("tools", "luhn", 7, prefix="QTL", group=(4, 4), title="Tool tags")
 MEMBERS = SeriesSpec("members", "luhn", 9, prefix="QMC", mode="scattered", title="Members")
@@ -41,11 +42,11 @@ def test_default_follows_the_mode_and_can_change_after_the_first_code(register: 
         change_series(register, "tools", prefix="QTX")
 
 
-def test_migration_sets_existing_series_by_mode(tmp_path: Path) -> None:
+def test_migration_sets_existing_series_by_mode(register_url: str) -> None:  # noqa: F811
     from alembic import command
 
-    path = tmp_path / "old.sqlite"
-    register = open_register(str(path), actor="test")
+    path = register_url  # each backend in turn
+    register = open_register(path, actor="test")
     add_series(register, TOOLS)
     add_series(register, MEMBERS)
     config = alembic_config()
@@ -54,7 +55,7 @@ def test_migration_sets_existing_series_by_mode(tmp_path: Path) -> None:
         command.downgrade(config, "access_tokens")
         connection.commit()
     register.close()
-    reopened = open_register(str(path), actor="test")
+    reopened = open_register(path, actor="test")
     assert reopened.schema_revision() == SCHEMA_HEAD
     with reopened.engine.connect() as connection:
         rows = dict(connection.execute(text("SELECT key, holds_people FROM series")).all())
