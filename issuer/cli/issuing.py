@@ -52,29 +52,33 @@ def issue(
     """Issue the next code(s) of a series: whole batch or nothing."""
     from contextlib import ExitStack
 
-    from issuer.register.bulk import CodesCsv
-    from issuer.register.issuing import issue_codes
+    from issuer.cli.interrupts import batch_told, now, truthful_interrupt
 
-    register = open_register_from_options(db, actor)
-    # the output file is checked before anything is issued; it appears once the batch commits
-    csv_out = CodesCsv(out, force=force) if out is not None else None
     # the table and --json list every code; a big batch's summary needs only first and last
     collect = as_json or count <= LIST_UP_TO
-    with progress_bar(count, f"Issuing {count:,} codes") as advance, ExitStack() as stack:
-        sink = stack.enter_context(csv_out) if csv_out is not None else None
-        result = issue_codes(
-            register, key, count, holder=holder, note=note, request_id=request_id,
-            progress=advance, collect=collect, sink=sink,
-        )  # fmt: skip
-    if as_json:
-        print_json({
-            "batch": result.batch,
-            "series": result.series,
-            "replayed": result.replayed,
-            "codes": [info.as_dict() for info in result.codes],
-        })
-        return
-    _render_issue(result, out, holder is not None and _holds_people(register, key))
+    tell = batch_told("issued", key, out, now())
+    opener = lambda: open_register_from_options(db, actor)
+    with truthful_interrupt(opener, ("issue",), tell, series=key) as register:
+        from issuer.register.bulk import CodesCsv
+        from issuer.register.issuing import issue_codes
+
+        # the output file is checked before anything is issued; it appears once the batch commits
+        csv_out = CodesCsv(out, force=force) if out is not None else None
+        with progress_bar(count, f"Issuing {count:,} codes") as advance, ExitStack() as stack:
+            sink = stack.enter_context(csv_out) if csv_out is not None else None
+            result = issue_codes(
+                register, key, count, holder=holder, note=note, request_id=request_id,
+                progress=advance, collect=collect, sink=sink,
+            )  # fmt: skip
+        if as_json:
+            print_json({
+                "batch": result.batch,
+                "series": result.series,
+                "replayed": result.replayed,
+                "codes": [info.as_dict() for info in result.codes],
+            })
+            return
+        _render_issue(result, out, holder is not None and _holds_people(register, key))
 
 
 def _holds_people(register: Any, key: str) -> bool:

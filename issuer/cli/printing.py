@@ -195,27 +195,31 @@ def _run(
         gs1_company_prefix=gs1_prefix, outlines=outlines, text_beside=text_beside, dpi=dpi,
     )  # fmt: skip
     printer = print_command(options.layout, settings.section("printing")) if send else None
+    from issuer.cli.interrupts import now, truthful_interrupt
+
     register = open_register_from_options(db, actor)
+    told = _print_told(out, now())
     try:
-        selection = select_for_printing(
-            register, codes=codes or (), batch=batch, series=series, first=first, last=last,
-            void=void,
-        )  # fmt: skip
-        if proof is not None:
-            run_proof(register, selection, proof, options, as_json, force)
-            return
-        total = len(selection.rows)
-        with progress_bar(total, f"Drawing {total:,} labels", show_from=PROGRESS_FROM) as advance:
-            drawn = [0]
-
-            def progress(done: int) -> None:
-                advance(done - drawn[0])
-                drawn[0] = done
-
-            outcome = print_selection(
-                register, selection, out, options, reason=reason, reprint=reprint,
-                progress=progress, printer=printer, force=force,
+        with truthful_interrupt(lambda: register, ("print", "reprint"), told):
+            selection = select_for_printing(
+                register, codes=codes or (), batch=batch, series=series, first=first, last=last,
+                void=void,
             )  # fmt: skip
+            if proof is not None:
+                run_proof(register, selection, proof, options, as_json, force)
+                return
+            total = len(selection.rows)
+            with progress_bar(total, f"Drawing {total:,} labels", show_from=PROGRESS_FROM) as advance:
+                drawn = [0]
+
+                def progress(done: int) -> None:
+                    advance(done - drawn[0])
+                    drawn[0] = done
+
+                outcome = print_selection(
+                    register, selection, out, options, reason=reason, reprint=reprint,
+                    progress=progress, printer=printer, force=force,
+                )  # fmt: skip
     finally:
         register.close()
     if as_json:
@@ -230,6 +234,23 @@ def _run(
         row.holds_people and row.holder for row in selection.rows
     )
     _summary(outcome, register.actor, reason, people)
+
+
+def _print_told(out: Path | None, started: float) -> Any:
+    """What an interrupted print says: recorded or not, and whether the file is there."""
+    from issuer.cli.interrupts import written_since
+
+    def tell(done: Any) -> str:
+        written = written_since(out, started)
+        if not done:
+            where = "" if out is None else f"; {out} was {'written' if written else 'not written'}"
+            return f"nothing was recorded as printed{where}"
+        told = f"{done.entries:,} label(s) were recorded as printed (log entries {done.first_id}-{done.last_id})"
+        if out is None or written:
+            return told + ("" if out is None else f"; {out} holds them")
+        return f"{told}, but {out} was not written: draw them again with 'issuer reprint CODE... --reason ... --out FILE'"
+
+    return tell
 
 
 def _summary(outcome: Any, actor: str, reason: str | None, holder: bool) -> None:

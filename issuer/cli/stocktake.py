@@ -101,7 +101,17 @@ def reconcile_command(
             write_report(recon, stream)
     recorded = None
     if found is not None:
-        with progress_bar(len(found), f"Recording {len(found):,} sightings") as advance:
+        from issuer.cli.interrupts import truthful_interrupt
+
+        def tell(done: Any) -> str:
+            if not done:
+                return "nothing was recorded: no sighting is in the log"
+            return f"the stocktake was recorded ({len(found):,} sightings; log entry {done.last_id})"
+
+        with (
+            truthful_interrupt(lambda: register, ("stocktake",), tell, series=key),
+            progress_bar(len(found), f"Recording {len(found):,} sightings") as advance,
+        ):
             recorded = record_seen(register, recon, found=found, progress=advance)
     if as_json:
         data = report_json(recon)

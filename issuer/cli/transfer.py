@@ -43,6 +43,9 @@ def export(
         str, typer.Option("--format", help="csv (with a header), json (one array) or jsonl (one object per line).")
     ] = "csv",
     status: Annotated[str, typer.Option("--status", help="Which codes: issued, voided or all.")] = "all",
+    batch: Annotated[
+        int | None, typer.Option("--batch", help="Only the codes of this batch (its number is in 'issuer log').", min=1)
+    ] = None,
     out: Annotated[
         Path | None,
         typer.Option("--out", help="Write to this file (whole or not at all) instead of standard output.", dir_okay=False),
@@ -63,14 +66,14 @@ def export(
     register = open_register_from_options(db, None)
     if out is not None:
         check_target(out, force=force, what="--out")
-    total = count_codes(register, key, status)
+    total = count_codes(register, key, status, batch=batch)
     with progress_bar(total, f"Exporting {total:,} codes") as advance:
         if out is None:
-            written = export_codes(register, key, sys.stdout, fmt=fmt, status=status, progress=advance)
+            written = export_codes(register, key, sys.stdout, fmt=fmt, status=status, batch=batch, progress=advance)
             sys.stdout.flush()
             return
         with output_text(out, force=force, what="--out") as stream:
-            written = export_codes(register, key, stream, fmt=fmt, status=status, progress=advance)
+            written = export_codes(register, key, stream, fmt=fmt, status=status, batch=batch, progress=advance)
     err_console().print(f"Exported {written:,} codes of series {key} to {out}")
 
 
@@ -130,7 +133,12 @@ def import_(
 
             with output_text(rejects, force=force, what="--rejects") as stream:
                 SafeCsvWriter(stream).writerows(rejects_rows(plan, table))
-        with progress_bar(len(plan.rows), f"Importing {len(plan.rows):,} codes") as advance:
+        from issuer.cli.interrupts import batch_told, now, truthful_interrupt
+
+        with (
+            truthful_interrupt(lambda: register, ("import",), batch_told("imported", key, None, now()), series=key),
+            progress_bar(len(plan.rows), f"Importing {len(plan.rows):,} codes") as advance,
+        ):
             result = apply_import(register, plan, progress=advance)
     if as_json:
         print_json({

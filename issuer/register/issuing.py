@@ -185,12 +185,28 @@ def store_codes(
     return codes
 
 
+def request_differences(
+    was: tuple[str, int, str | None, str | None], now: tuple[str, int, str | None, str | None]
+) -> list[str]:
+    """How a retry differs from the request first sent under its id, field by field
+    (series, count, holder, note): a replay must be the same request, or it is refused."""
+    words = []
+    for name, before, after in zip(("series", "count", "holder", "note"), was, now):
+        if (before or None) != (after or None):
+            shown = [repr(value) if isinstance(value, str) else str(value) for value in (before, after)]
+            words.append(f"{name} was {shown[0] if before is not None else 'not given'}, "
+                         f"now {shown[1] if after is not None else 'not given'}")
+    return words
+
+
 def _replay(
     session: Session,
     request_id: str,
     key: str,
     count: int,
     *,
+    holder: str | None = None,
+    note: str | None = None,
     collect: bool = True,
     sink: CodeSink | None = None,
 ) -> IssueResult | None:
@@ -199,10 +215,16 @@ def _replay(
         return None
     series = session.get(Series, batch.series_id)
     assert series is not None
-    if series.key != key or batch.count != count:
+    first = session.execute(
+        select(IssuedCode.holder, IssuedCode.note).where(IssuedCode.batch_id == batch.id)
+        .order_by(IssuedCode.id).limit(1)
+    ).first()
+    was = (series.key, batch.count, *(first or (None, None)))
+    differences = request_differences(was, (key, count, holder, note))
+    if differences:
         raise Conflict(
-            f"request id {request_id!r} was used for {batch.count} code(s) of series "
-            f"{series.key}; use a new id for a different request"
+            f"request id {request_id!r} was used for a different request ({'; '.join(differences)}): "
+            "nothing was issued; use a new id for a new request"
         )
     shape = code_format(series)
     rows = session.execute(
@@ -264,7 +286,7 @@ def issue_codes(
         if sink is not None:
             sink.restart()
         if request_id is not None:
-            replay = _replay(session, request_id, key, count, collect=collect, sink=sink)
+            replay = _replay(session, request_id, key, count, holder=holder, note=note, collect=collect, sink=sink)
             if replay is not None:
                 return replay
         if count < BULK_FROM:
@@ -334,7 +356,7 @@ def issue_codes(
         with register.reading() as session:
             if sink is not None:
                 sink.restart()
-            replay = _replay(session, request_id, key, count, collect=collect, sink=sink)
+            replay = _replay(session, request_id, key, count, holder=holder, note=note, collect=collect, sink=sink)
         if replay is None:
             raise
         return replay

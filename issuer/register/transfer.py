@@ -19,10 +19,10 @@ from typing import IO, Any
 from sqlalchemy import ColumnElement, Select, String, case, func, literal, select, type_coerce
 from sqlalchemy.orm import Session, aliased
 
-from issuer.errors import InvalidFormat
+from issuer.errors import InvalidFormat, NotFound
 from issuer.limits import json_safe
 from issuer.register.driver import stream_rows
-from issuer.register.models import ISSUED, VOIDED, IssuedCode, Series
+from issuer.register.models import ISSUED, VOIDED, Batch, IssuedCode, Series
 from issuer.register.series import code_format, get_series
 from issuer.register.store import Register
 
@@ -87,7 +87,7 @@ def _series_filter(series: Series, dialect: str) -> ColumnElement[bool]:
     return IssuedCode.series_id == series.id
 
 
-def export_statement(series: Series, status: str, dialect: str) -> Select[Any]:
+def export_statement(series: Series, status: str, dialect: str, batch: int | None = None) -> Select[Any]:
     if status not in STATUS_CHOICES:
         raise InvalidFormat(f"--status must be one of {', '.join(STATUS_CHOICES)}, not {status!r}")
     replaced = aliased(IssuedCode)
@@ -115,16 +115,30 @@ def export_statement(series: Series, status: str, dialect: str) -> Select[Any]:
         statement = statement.where(IssuedCode.status == ISSUED)
     elif status == "voided":
         statement = statement.where(IssuedCode.status == VOIDED)
+    if batch is not None:
+        statement = statement.where(IssuedCode.batch_id == batch)
     return statement
 
 
-def count_codes(register: Register, key: str, status: str = "all") -> int:
-    """How many codes an export of ``key`` with ``status`` would hold."""
+def _require_batch(session: Session, series: Series, batch: int | None) -> None:
+    """A batch named for export must be one of the series' batches."""
+    if batch is None:
+        return
+    found = session.get(Batch, batch)
+    if found is None or found.series_id != series.id:
+        raise NotFound(f"batch {batch} is not a batch of series {series.key} ('issuer log --series {series.key}' lists them)")
+
+
+def count_codes(register: Register, key: str, status: str = "all", *, batch: int | None = None) -> int:
+    """How many codes an export of ``key`` with ``status`` (and ``batch``) would hold."""
     with register.reading() as session:
         series = get_series(session, key)
+        _require_batch(session, series, batch)
         statement = select(func.count()).select_from(IssuedCode).where(IssuedCode.series_id == series.id)
         if status != "all":
             statement = statement.where(IssuedCode.status == status)
+        if batch is not None:
+            statement = statement.where(IssuedCode.batch_id == batch)
         return int(session.scalar(statement) or 0)
 
 
@@ -169,14 +183,17 @@ def export_codes(
     *,
     fmt: str = "csv",
     status: str = "all",
+    batch: int | None = None,
     progress: Callable[[int], None] | None = None,
 ) -> int:
-    """Write series ``key``'s codes to ``stream`` in issue order; returns how many."""
+    """Write series ``key``'s codes (only batch ``batch``'s, if given) to ``stream`` in
+    issue order; returns how many."""
     writer = _Writer(stream, fmt)
     written = 0
     with register.reading() as session:
         series = get_series(session, key)
-        statement = export_statement(series, status, session.get_bind().dialect.name)
+        _require_batch(session, series, batch)
+        statement = export_statement(series, status, session.get_bind().dialect.name, batch)
         for part in stream_rows(session, statement, FETCH_ROWS):  # no ORM or Core work per row
             writer.rows(part)
             written += len(part)
