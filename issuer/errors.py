@@ -20,6 +20,27 @@ def redact(text: str) -> str:
     return _KEY_PASSWORD.sub(lambda m: f"{m.group(1)}{MASK}", text)
 
 
+def nearest(word: str, names: list[str] | tuple[str, ...], *, limit: int = 3) -> list[str]:
+    """The names closest to a mistyped ``word`` (edit similarity, case ignored), best first."""
+    import difflib
+
+    lowered = {name.lower(): name for name in names}
+    found = difflib.get_close_matches(word.lower(), list(lowered), n=limit, cutoff=0.6)
+    starting = [key for key in lowered if key.startswith(word.lower()) and word] if not found else []
+    return [lowered[key] for key in (found or starting[:limit])]
+
+
+def did_you_mean(word: str, names: list[str] | tuple[str, ...], what: str = "names") -> str:
+    """``"; did you mean 'tools'?"`` for a near miss, else the list of existing names
+    when it is short, else nothing: for the end of a "no such ..." message."""
+    close = nearest(word, names)
+    if close:
+        return "; did you mean " + " or ".join(f"'{name}'" for name in close) + "?"
+    if names and len(names) <= 8:
+        return f"; the {what} are: " + ", ".join(names)
+    return ""
+
+
 class IssuerError(Exception):
     """Base of every error a user can cause. ``str(error)`` is a one-line message, with
     any database password in it masked."""

@@ -19,7 +19,7 @@ try:  # recent Typer releases carry their own copy of click
 except ImportError:  # pragma: no cover - older Typer uses the click package
     from click import Context  # type: ignore[no-redef]
     from click import exceptions as click_exceptions  # type: ignore[no-redef]
-from typer.core import TyperGroup
+from typer.core import TyperGroup, TyperOption
 
 from issuer.errors import IssuerError, redact
 from issuer.limits import json_safe, printable
@@ -61,6 +61,18 @@ PERSONAL_DATA_CAUTION = (
     "A member register holds personal data: local law and your organisation's policy "
     "decide what may be stored and for how long."
 )
+
+
+_value_type = TyperOption.display_type_rich
+
+
+def _flag_shows_no_type(self: TyperOption, ctx: Context) -> str | None:
+    """A flag takes no value, so --help shows no ``<bool>`` beside it (``--json true``
+    is refused: the label would promise what the parser does not accept)."""
+    return None if self.is_flag else _value_type(self, ctx)
+
+
+TyperOption.display_type_rich = _flag_shows_no_type  # type: ignore[method-assign]
 
 
 class UserError(click_exceptions.ClickException):

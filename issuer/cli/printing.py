@@ -180,7 +180,6 @@ def _run(
     from issuer.labels.printer import print_command
     from issuer.labels.printjob import options_from_settings, print_selection
     from issuer.register.lifecycle import require_reason
-    from issuer.register.printing import select_for_printing
 
     # everything that needs no register is checked first
     if reprint:
@@ -201,10 +200,7 @@ def _run(
     told = _print_told(out, now())
     try:
         with truthful_interrupt(lambda: register, ("print", "reprint"), told):
-            selection = select_for_printing(
-                register, codes=codes or (), batch=batch, series=series, first=first, last=last,
-                void=void,
-            )  # fmt: skip
+            selection = _select(register, codes, batch, series, first, last, void, reprint)
             if proof is not None:
                 run_proof(register, selection, proof, options, as_json, force)
                 return
@@ -234,6 +230,20 @@ def _run(
         row.holds_people and row.holder for row in selection.rows
     )
     _summary(outcome, register.actor, reason, people)
+
+
+def _select(register: Any, codes: list[str] | None, batch: int | None, series: str | None,
+            first: str | None, last: str | None, void: str, reprint: bool) -> Any:
+    from issuer.register.printing import VoidedInSelection, select_for_printing
+
+    try:
+        return select_for_printing(
+            register, codes=codes or (), batch=batch, series=series, first=first, last=last,
+            void=void,
+        )  # fmt: skip
+    except VoidedInSelection as exc:
+        ways = "--void-labels" if reprint else "--void-labels, or leave them out with --without-void"
+        raise VoidedInSelection(f"{exc.message} ({ways})") from None
 
 
 def _print_told(out: Path | None, started: float) -> Any:

@@ -19,11 +19,11 @@ from sqlalchemy import Table, bindparam, insert, select, update
 from sqlalchemy.orm import Session
 
 from issuer import limits
-from issuer.errors import Conflict, DuplicateRow, Exhausted, InvalidFormat, NotFound
+from issuer.errors import Conflict, DuplicateRow, Exhausted, InvalidFormat
 from issuer.register.bulk import CHUNK, CodeSink, IssuedChunk, check_room, store_bulk
 from issuer.register.log import NewEntry, append_entry
 from issuer.register.models import ISSUED, SCATTERED, Batch, IssuedCode, Series
-from issuer.register.series import capacity, code_format, get_series, permutation
+from issuer.register.series import capacity, code_format, get_series, permutation, unknown_series
 from issuer.register.store import Register
 
 #: batches at least this large take the bulk path (:mod:`issuer.register.bulk`)
@@ -409,7 +409,7 @@ def _issue_few(
     connection = session.connection()
     found = connection.execute(_LOCK_SERIES, {"series_key": key}).one_or_none()
     if found is None:
-        raise NotFound(f"no series {key!r} in this register")
+        raise unknown_series(session, key)
     series = cast(Series, found)  # a row with the same fields, read without the ORM
     bases, counter = plan_allocation(session, series, count)
     at = register.clock()

@@ -19,7 +19,7 @@ from issuer.errors import Conflict, InvalidCheck, InvalidFormat, NotFound
 from issuer.register.issuing import allocate, store_codes
 from issuer.register.log import NewEntry, append_entry
 from issuer.register.models import ISSUED, VOIDED, Batch, IssuedCode, LogEntry, Series
-from issuer.register.series import all_series, code_format
+from issuer.register.series import all_series, code_format, unknown_series
 from issuer.register.store import Register
 
 
@@ -293,7 +293,7 @@ def log_entries(
     if series is not None:
         series_id = session.scalar(select(Series.id).where(Series.key == limits.text("series key", series)))
         if series_id is None:
-            raise NotFound(f"no series {series!r} in this register")
+            raise unknown_series(session, series)
         statement = statement.where(LogEntry.series_id == series_id)
     if actor is not None:
         statement = statement.where(LogEntry.actor == limits.text("actor", actor))

@@ -199,6 +199,11 @@ def _named(codes: Sequence[str]) -> str:
     return shown + (f" and {more} more" if more > 0 else "")
 
 
+class VoidedInSelection(Conflict):
+    """A selection holds voided codes and nobody said what to do with them; each face
+    adds the ways its own command offers (its options differ from command to command)."""
+
+
 def select_for_printing(
     register: Register,
     *,
@@ -238,10 +243,9 @@ def select_for_printing(
     voided = [row.display for row in rows if row.void]
     omitted: tuple[str, ...] = ()
     if voided and void == VOID_REFUSE:
-        raise Conflict(
+        raise VoidedInSelection(
             f"{len(voided)} voided code{'s' if len(voided) != 1 else ''} in {words}: "
-            f"{_named(voided)}; voided codes are not printed unless asked for as VOID "
-            "labels (--void-labels), or left out (--without-void)"
+            f"{_named(voided)}; voided codes are printed only when asked for, marked VOID"
         )
     if voided and void == VOID_OMIT:
         omitted = tuple(voided)

@@ -14,7 +14,7 @@ from sqlalchemy.orm import Session
 from issuer import limits
 from issuer.checking.codes import CodeFormat, normalise_affix
 from issuer.checking.schemes import get_scheme
-from issuer.errors import Conflict, InvalidFormat, NotFound, OutOfLimits
+from issuer.errors import Conflict, InvalidFormat, NotFound, OutOfLimits, did_you_mean
 from issuer.register.log import NewEntry, append_entry
 from issuer.register.models import ISSUED, SCATTERED, SEQUENTIAL, VOIDED, IssuedCode, Series
 
@@ -352,8 +352,16 @@ def get_series(session: Session, key: str, *, lock: bool = False) -> Series:
         )
     series = session.scalar(statement)
     if series is None:
-        raise NotFound(f"no series {key!r} in this register")
+        raise unknown_series(session, key)
     return series
+
+
+def unknown_series(session: Session, key: str) -> NotFound:
+    """"no series KEY", offering the nearest keys the register holds."""
+    keys = list(session.scalars(select(Series.key).order_by(Series.key)))
+    if not keys:
+        return NotFound(f"no series {key!r}: this register has none yet ('issuer series add' defines one)")
+    return NotFound(f"no series {key!r} in this register{did_you_mean(key, keys, 'series')}")
 
 
 def all_series(session: Session) -> list[Series]:

@@ -18,7 +18,7 @@ from datetime import UTC, datetime
 from types import SimpleNamespace
 from typing import TYPE_CHECKING, Any, cast
 
-from issuer.errors import NotFound, RegisterError
+from issuer.errors import NotFound, RegisterError, did_you_mean
 from issuer.register.log import NewEntry, chain_rows
 from issuer.register.models import SCATTERED
 from issuer.register.series import code_format, permutation
@@ -99,7 +99,8 @@ def _issue(
     cursor = raw.execute(_SELECT_SERIES, (key,))
     found = cursor.fetchone()
     if found is None:
-        raise NotFound(f"no series {key!r} in this register")
+        keys = [row[0] for row in raw.execute("SELECT key FROM series ORDER BY key")]
+        raise NotFound(f"no series {key!r} in this register{did_you_mean(key, keys, 'series')}")
     series: Any = SimpleNamespace(**dict(zip([d[0] for d in cursor.description], found)))
     if series.imported_count:
         return None

@@ -48,7 +48,7 @@ def test_a_different_retry_is_refused_naming_the_difference(register: Any, retry
     add_series(register, TOOLS)
     add_series(register, CARDS)
     asked: dict[str, Any] = {"key": "tools", "count": 2, "holder": "Ada Finch", "note": "spring intake"}
-    first = issue_codes(register, request_id="desk2-0007", **{**asked})
+    first = issue_codes(register, request_id="desk2-0007", **asked)
     same = issue_codes(register, request_id="desk2-0007", **asked)
     assert same.replayed and [c.code for c in same.codes] == [c.code for c in first.codes]
     with pytest.raises(Conflict) as caught:
