@@ -26,7 +26,7 @@ ROOT = typer.main.get_command(app)
 OTHER_PROGRAMS = {"--file", "--dbname", "--clean", "--if-exists"}
 # named on main by work whose option lands from another branch this session; once the
 # option exists the entry is moot (and should be removed)
-PENDING = {"--fix": "issuer doctor --fix", "--print": "issuer labels --print"}
+PENDING = {"--fix": "issuer doctor --fix"}
 QUOTED = re.compile(r"""['`"]issuer ([^'`"\n]+)['`"]|(?:run|with|Try|try|or):? issuer ([a-z][^\n;'"`]*)""")
 OPTION = re.compile(r"(?<![\w-])--[a-z][a-z0-9-]*")
 
