@@ -5,10 +5,19 @@ from __future__ import annotations
 
 from collections import Counter
 from collections.abc import Sequence
-from typing import Any
+from typing import Annotated, Any
+
+import typer
 
 from issuer.cli.app import app
-from issuer.cli.common import DbOption, console, open_register_from_options, print_json, shown
+from issuer.cli.common import (
+    CHECK_CAUTION,
+    DbOption,
+    console,
+    open_register_from_options,
+    print_json,
+    shown,
+)
 
 STYLE = {
     "issued": "green",
@@ -17,6 +26,7 @@ STYLE = {
     "bad_check": "yellow",
     "malformed": "magenta",
 }
+NEVER_ISSUED = "Do not accept this number: the register never issued it."
 WORDS = {
     "issued": "in use",
     "voided": "VOIDED",
@@ -36,6 +46,8 @@ def _detail(answer: Any) -> str:
             parts.append(f"replaced by {answer.replacement}")
     elif answer.reason and answer.status != "issued":
         parts.append(shown(answer.reason))
+    if answer.status == "not_issued":
+        parts.append(f"[bold]{NEVER_ISSUED}[/bold]")
     for suggestion in answer.suggestions:
         parts.append(f"did you mean [bold]{suggestion.display}[/bold]? ({suggestion.description})")
     if getattr(answer, "advice", None):
@@ -44,21 +56,20 @@ def _detail(answer: Any) -> str:
 
 
 def render_answers(answers: Sequence[Any]) -> None:
-    from rich.table import Table
+    """A table, or on a narrow terminal one block per answer."""
+    from issuer.cli.blocks import Rows
 
-    table = Table()
-    for column in ("input", "answer", "series", "code", "details"):
-        table.add_column(column)
+    rows = Rows(("input", "answer", "series", "code", "details"), heading=(1, 0))
     for answer in answers:
         style = STYLE.get(answer.status, "")
-        table.add_row(
+        rows.add_row(
             shown(answer.input),
             f"[{style}]{WORDS.get(answer.status, answer.status)}[/{style}]",
             answer.series or "",
             answer.display or "",
             _detail(answer),
         )
-    console().print(table)
+    rows.print(console())
 
 
 def check_against_register(
@@ -85,39 +96,80 @@ def check_against_register(
     return 0 if all_issued else 1
 
 
+DESK_HELP = (
+    "  CODE        type or scan a code: the answer comes at once\n"
+    "  help or ?   show these commands\n"
+    "  q or Ctrl-D end the desk\n"
+    "  Empty lines are ignored."
+)
+
+
 @app.command("desk")
 def desk(
     *,
+    series: Annotated[
+        str | None, typer.Option("--series", help="Answer for this series only (a code of another series is named, not answered).")
+    ] = None,
     db: DbOption = None,
 ) -> None:
     """Keep a prompt open: type or scan code after code and see each answer at once.
 
-    An empty line, 'q' or Ctrl-D ends it. A check character catches mistakes, not fraud.
+    'help' or '?' lists the commands; empty lines are ignored; 'q' or Ctrl-D ends. A check
+    character catches mistakes, not fraud.
     """
     from issuer.register.desk import check_codes
 
     register = open_register_from_options(db, None)
     out = console()
-    out.print("Type or scan a code and press Enter; an empty line or q ends.")
+    shape = _series_shape(register, series) if series is not None else None
+    out.print(CHECK_CAUTION, style="bold")
+    only = f" of series {series}" if series is not None else ""
+    out.print(f"Type or scan a code{only} and press Enter; 'help' or '?' for commands, 'q' or Ctrl-D ends.")
     while True:
         try:
             text = input("code> ")
-        except EOFError:
+        except (EOFError, KeyboardInterrupt):
+            typer.echo()  # the shell's prompt starts on a line of its own
             break
-        if text.strip().lower() in ("", "q", "quit", "exit"):
+        word = text.strip().lower()
+        if not word:
+            continue
+        if word in ("q", "quit", "exit"):
             break
+        if word in ("help", "?", "h"):
+            out.print(DESK_HELP)
+            out.print(CHECK_CAUTION, style="dim")
+            continue
         with register.reading() as session:
             (answer,) = check_codes(session, [text])
-        style = STYLE.get(answer.status, "")
-        headline = f"[{style}]{WORDS.get(answer.status, answer.status)}[/{style}]"
-        if answer.display:
-            headline += f"  {answer.display}"
-        if answer.series:
-            headline += f"  (series {answer.series})"
-        out.print(headline)
-        detail = _detail(answer)
-        if detail:
-            out.print(detail)
+            if series is not None and answer.series is None:  # not a code: say why for this series
+                (answer,) = check_codes(session, [text], series=series)
+        _show_desk_answer(out, answer, series, shape)
     register.close()
 
 
+def _series_shape(register: Any, key: str) -> Any:
+    """The one series a desk answers for (an unknown key stops it, naming the nearest)."""
+    from issuer.register.series import code_format, get_series
+
+    with register.reading() as session:
+        return code_format(get_series(session, key))
+
+
+def _show_desk_answer(out: Any, answer: Any, only: str | None, shape: Any) -> None:
+    if only is not None and answer.series and answer.series != only:
+        out.print(f"[magenta]not this desk's series[/magenta]  {answer.display or shown(answer.input)}: "
+                  f"a code of series {answer.series}, not {only}; this desk answers for {only} only")
+        return
+    if shape is not None:  # suggestions from other series do not belong at this desk
+        answer.suggestions = [s for s in answer.suggestions if shape.matches_shape(s.code)]
+    style = STYLE.get(answer.status, "")
+    headline = f"[{style}]{WORDS.get(answer.status, answer.status)}[/{style}]"
+    if answer.display:
+        headline += f"  {answer.display}"
+    if answer.series:
+        headline += f"  (series {answer.series})"
+    out.print(headline)
+    detail = _detail(answer)
+    if detail:
+        out.print(detail)

@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 from datetime import datetime
-from typing import Annotated
+from typing import Annotated, Any
 
 import typer
 
@@ -43,10 +43,18 @@ def show_log(
         str | None, typer.Option("--since", help="Only entries at or after this date/time (UTC), e.g. 2026-03-01.")
     ] = None,
     last: Annotated[int | None, typer.Option("--last", help="Only the newest N entries.", min=1)] = None,
+    entries: Annotated[
+        bool,
+        typer.Option("--entries", help="Every log entry on its own line (default: one line per act, a batch or print job summed up)."),
+    ] = False,
     db: DbOption = None,
     as_json: JsonOption = False,
 ) -> None:
-    """List logged acts, oldest first (filter with --series, --actor, --since, --last)."""
+    """List logged acts, oldest first (filter with --series, --actor, --since, --last).
+
+    One line per act: a print of 300 labels or a stocktake's sightings is one line;
+    --entries shows every entry. --json always lists every entry.
+    """
     if ctx.invoked_subcommand is not None:
         return
     from issuer import limits
@@ -59,13 +67,19 @@ def show_log(
     if as_json:
         print_json([event.as_dict() for event in events])
         return
-    from rich.table import Table
+    if entries:
+        _render_entries(events)
+    else:
+        _render_acts(events)
 
-    table = Table(title="Log", show_lines=False)
-    for column in ("#", "when (UTC)", "who", "act", "series", "code", "batch", "details"):
-        table.add_column(column)
+
+def _render_entries(events: list[Any]) -> None:
+    from issuer.cli.blocks import Rows
+
+    rows = Rows(("#", "when (UTC)", "who", "act", "series", "code", "batch", "details"), title="Log",
+                heading=(0, 1, 3))
     for event in events:
-        table.add_row(
+        rows.add_row(
             str(event.id),
             event.at.strftime("%Y-%m-%d %H:%M:%S"),
             shown(event.actor),
@@ -75,7 +89,38 @@ def show_log(
             str(event.batch or ""),
             shown(_detail_summary(event.detail)),
         )
-    console().print(table)
+    rows.print(console())
+
+
+def _render_acts(events: list[Any]) -> None:
+    from issuer.cli.blocks import Rows
+    from issuer.register.acts import group_acts
+
+    rows = Rows(("#", "when (UTC)", "who", "act", "series", "what", "details"), title="Log", heading=(0, 1, 3))
+    for act in group_acts(events):
+        number = str(act.first_id) if act.entries == 1 else f"{act.first_id}-{act.last_id}"
+        rows.add_row(
+            number,
+            act.at.strftime("%Y-%m-%d %H:%M:%S"),
+            shown(act.actor),
+            act.action,
+            act.series or "",
+            shown(_what(act)),
+            shown(_detail_summary(act.detail)),
+        )
+    rows.print(console())
+
+
+def _what(act: Any) -> str:
+    """The codes an act touched, summed up: one code, or how many from first to last."""
+    parts = []
+    if act.batch:
+        parts.append(f"batch {act.batch}")
+    if 0 < len(act.codes) <= 3:
+        parts.append(", ".join(act.codes))
+    elif act.codes:
+        parts.append(f"{len(act.codes):,} codes, {act.codes[0]} .. {act.codes[-1]}")
+    return ", ".join(parts)
 
 
 def _detail_summary(detail: str) -> str:

@@ -1,4 +1,5 @@
-"""What an interrupted act left behind, read from the log.
+"""Acts as the log holds them: what an interrupted act left behind, and the log's
+entries grouped one line per act.
 
 Every writing act appends its log entries in the same transaction as its rows, so the
 entries an actor added after a mark are exactly what committed: a face that was
@@ -8,8 +9,9 @@ act committed and under which batch, instead of guessing.
 
 from __future__ import annotations
 
-from collections.abc import Iterable
+from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
+from typing import Any
 
 from sqlalchemy import func, select
 
@@ -68,3 +70,59 @@ def committed_since(
     batches = tuple(dict.fromkeys(int(row[1]) for row in rows if row[1] is not None))
     keys = tuple(dict.fromkeys(str(row[2]) for row in rows if row[2] is not None))
     return Committed(len(rows), int(rows[0][0]), int(rows[-1][0]), batches, keys)
+
+
+# --- the log, one line per act ---------------------------------------------------------
+
+#: actions that accompany another act's entry rather than name the act (a replacement's
+#: void, an import's voided rows, a stocktake's sightings)
+_ACCOMPANYING = ("void", "seen")
+
+
+@dataclass(frozen=True)
+class Act:
+    """The log entries one act wrote in one transaction (same moment, same actor)."""
+
+    first_id: int
+    last_id: int
+    at: Any
+    actor: str
+    action: str
+    series: str | None
+    batch: int | None
+    entries: int
+    codes: tuple[str, ...]
+    detail: str
+
+    def as_dict(self) -> dict[str, Any]:
+        import json
+
+        data = dict(self.__dict__)
+        data["codes"] = list(self.codes)
+        data["detail"] = json.loads(self.detail)
+        return data
+
+
+def group_acts(events: Sequence[Any]) -> list[Act]:
+    """Consecutive log events with the same moment and actor, as one act each: a print
+    of 298 labels is one line, a replacement's void and replace are one."""
+    acts: list[Act] = []
+    group: list[Any] = []
+
+    def close() -> None:
+        if not group:
+            return
+        main = next((e for e in group if e.action not in _ACCOMPANYING), group[0])
+        codes = tuple(e.code for e in group if e.code)
+        series = main.series or next((e.series for e in group if e.series), None)
+        batch = main.batch or next((e.batch for e in group if e.batch), None)
+        acts.append(Act(group[0].id, group[-1].id, main.at, main.actor, main.action, series, batch,
+                        len(group), codes, main.detail))
+        group.clear()
+
+    for event in events:
+        if group and (event.at != group[0].at or event.actor != group[0].actor):
+            close()
+        group.append(event)
+    close()
+    return acts

@@ -111,9 +111,10 @@ def _suggest_length(session: Session, shapes: Sequence[tuple[Series, CodeFormat]
     return found
 
 
-def check_codes(session: Session, inputs: Sequence[str]) -> list[DeskAnswer]:
-    """Answer each input, in input order."""
-    shapes = [(series, code_format(series)) for series in all_series(session)]
+def check_codes(session: Session, inputs: Sequence[str], *, series: str | None = None) -> list[DeskAnswer]:
+    """Answer each input, in input order; with ``series``, read them as that series'
+    codes only."""
+    shapes = [(one, code_format(one)) for one in all_series(session) if series is None or one.key == series]
     per_input = [_readings(shapes, text) for text in inputs]
     stored = _stored(
         session, (r.canonical for readings, _ in per_input for r in readings if r.valid)

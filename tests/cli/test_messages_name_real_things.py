@@ -13,7 +13,6 @@ from importlib import resources
 from pathlib import Path
 from typing import Any
 
-import pytest
 import typer.main
 
 from issuer.cli.app import app
@@ -120,24 +119,24 @@ def test_reprint_of_a_voided_code_offers_only_reprints_options(cli: Any, tmp_pat
     assert "--void-labels" in printed.stderr and "--without-void" in printed.stderr
 
 
-@pytest.mark.parametrize(
-    ("args", "offered"),
-    [
-        (["issue", "tool"], "did you mean 'tools'?"),
-        (["log", "--series", "tols"], "did you mean 'tools'?"),
-        (["export", "Tools"], "did you mean 'tools'?"),
-        (["issue", "zz"], "the series are: cards, tools"),
-        (["isue", "tools"], "Did you mean 'issue'?"),
-        (["series", "shwo", "tools"], "Did you mean 'show'?"),
-        (["issue", "tools", "--holdr", "x"], "--holder"),
-    ],
-)
-def test_near_misses_are_offered(cli: Any, args: list[str], offered: str) -> None:
+NEAR_MISSES = [
+    (["issue", "tool"], "did you mean 'tools'?"),
+    (["log", "--series", "tols"], "did you mean 'tools'?"),
+    (["export", "Tools"], "did you mean 'tools'?"),
+    (["issue", "zz"], "the series are: cards, tools"),
+    (["isue", "tools"], "Did you mean 'issue'?"),
+    (["series", "shwo", "tools"], "Did you mean 'show'?"),
+    (["issue", "tools", "--holdr", "x"], "--holder"),
+]
+
+
+def test_near_misses_are_offered(cli: Any) -> None:
     for key, prefix in (("tools", "QTL"), ("cards", "QM")):
         assert cli("series", "add", key, "--scheme", "damm", "--length", "7", "--prefix", prefix).exit_code == 0
-    result = cli(*args)
-    assert result.exit_code == 2 and result.stderr.count("\n") == 1
-    assert offered in result.stderr, result.stderr
+    for args, offered in NEAR_MISSES:
+        result = cli(*args)
+        assert result.exit_code == 2 and result.stderr.count("\n") == 1, (args, result.output)
+        assert offered in result.stderr, (args, result.stderr)
 
 
 def test_flags_show_no_value_type_in_help() -> None:
