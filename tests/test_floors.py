@@ -181,8 +181,5 @@ def _cycles() -> list[list[str]]:
     return found
 
 
-@pytest.mark.xfail(
-    strict=True, reason="register.issuing <-> register.sqlite_desk until the one issuing path lands"
-)
 def test_no_two_modules_import_each_other() -> None:
     assert _cycles() == []

@@ -9,8 +9,7 @@ driver's ``executemany`` as an iterator of tuples inside the caller's transactio
 Nothing holds the whole batch: each chunk is inserted, handed to an optional sink
 (a CSV file, say) and dropped.
 
-The rows are the same as the ones :func:`issuer.register.issuing.store_codes` writes;
-only the road to the database is shorter.
+The rows (and the statement) are those of :func:`issuer.register.allotment.place_codes`.
 """
 
 from __future__ import annotations
@@ -292,7 +291,7 @@ def _drawn(session: Session, series: Series, count: int) -> Iterator[npt.NDArray
 def allocate_chunks(session: Session, series: Series, count: int) -> Iterator[npt.NDArray[np.int64]]:
     """The next ``count`` free base numbers of a locked series, a chunk at a time; the
     series' counters move as they are drawn. The numbers are the ones
-    :func:`issuer.register.issuing.allocate` draws.
+    :func:`issuer.register.allotment.plan_allocation` draws.
 
     An in-order series yields them in counter order, which is number order. A
     scattered series yields the whole batch in number order: every code of a batch is
@@ -362,7 +361,7 @@ def store_bulk(
     session: Session,
     *,
     series: Series,
-    batch: Batch,
+    batch_id: int,
     count: int,
     holder: str | None,
     note: str | None,
@@ -372,7 +371,8 @@ def store_bulk(
     sink: CodeSink | None = None,
     progress: Callable[[int], None] | None = None,
 ) -> BulkOutcome:
-    """Allocate, make and insert ``count`` codes for ``batch``, chunk by chunk."""
+    """Make and insert ``count`` codes for batch ``batch_id``, chunk by chunk (``series``
+    as claimed; its counters move on as chunks are drawn)."""
     shape = code_format(series)
     previous_cache = _roomy_cache(session, count)
     issued_at = bind_value(session, IssuedCode.__table__.c.issued_at, at)  # type: ignore[arg-type]
@@ -382,7 +382,7 @@ def store_bulk(
             codes = code_texts(shape, bases_array)
             bases = bases_array.tolist()
             rows = zip(
-                repeat(series.id), codes, bases, repeat(ISSUED), repeat(batch.id), repeat(holder),
+                repeat(series.id), codes, bases, repeat(ISSUED), repeat(batch_id), repeat(holder),
                 repeat(note), repeat(issued_at), repeat(actor), repeat(None), repeat(0),
             )  # fmt: skip
             insert_many(session, "issued_code", ISSUE_COLUMNS, rows)
@@ -391,7 +391,7 @@ def store_bulk(
                 outcome.first = (codes[0], bases[0])
             outcome.last = (codes[-1], bases[-1])
             outcome.count += len(codes)
-            chunk = IssuedChunk(series.key, batch.id, shape, codes, bases, holder)
+            chunk = IssuedChunk(series.key, batch_id, shape, codes, bases, holder)
             if collect:
                 outcome.collected.extend(zip(codes, chunk.displays(), bases))
             if sink is not None:

@@ -16,9 +16,9 @@ from sqlalchemy.orm import Session
 from issuer import limits
 from issuer.checking.reading import Read, Reading, read_code, shown
 from issuer.errors import Conflict, InvalidCheck, InvalidFormat, NotFound
-from issuer.register.issuing import allocate, store_codes
+from issuer.register.allotment import place_codes
 from issuer.register.log import NewEntry, append_entry
-from issuer.register.models import ISSUED, VOIDED, Batch, IssuedCode, LogEntry, Series
+from issuer.register.models import ISSUED, VOIDED, IssuedCode, LogEntry, Series
 from issuer.register.series import all_series, code_format, unknown_series
 from issuer.register.store import Register
 
@@ -165,23 +165,13 @@ def replace_code(register: Register, text: str, *, reason: str) -> Replacement:
 
     def work(session: Session) -> Replacement:
         old = find_code(session, text, lock=True)
-        series = session.scalar(
-            select(Series)
-            .where(Series.id == old.series_id)
-            .with_for_update(key_share=True)
-            .execution_options(populate_existing=True)
-        )
-        assert series is not None
         at = register.clock()
         _void(session, register, old, why, at)
-        bases = allocate(session, series, 1)
-        batch = Batch(series_id=series.id, kind="replace", count=1, created_at=at, actor=register.actor)
-        session.add(batch)
-        session.flush()
-        (new_code,) = store_codes(
-            session, register, series, batch, bases, holder=old.holder, note=old.note,
-            replaces_id=old.id,
-        )
+        placed = place_codes(
+            session, series_id=old.series_id, count=1, kind="replace", at=at, actor=register.actor,
+            holder=old.holder, note=old.note, replaces_id=old.id,
+        )  # fmt: skip
+        series, (new_code,) = placed.series, placed.codes
         new_id = session.scalar(select(IssuedCode.id).where(IssuedCode.code == new_code))
         old.replaced_by_id = new_id
         append_entry(
@@ -192,12 +182,12 @@ def replace_code(register: Register, text: str, *, reason: str) -> Replacement:
         )
         append_entry(
             session,
-            NewEntry("replace", series.id, new_code, batch.id, {"reason": why, "replaces": old.code}),
+            NewEntry("replace", series.id, new_code, placed.batch_id, {"reason": why, "replaces": old.code}),
             actor=register.actor,
             at=at,
         )
         session.flush()
-        return Replacement(new_code, code_format(series).display(new_code), old.code, batch.id)
+        return Replacement(new_code, code_format(series.as_series).display(new_code), old.code, placed.batch_id)
 
     return register.write(work)
 

@@ -17,9 +17,10 @@ from dataclasses import dataclass
 from datetime import datetime
 from typing import Any, cast
 
-from sqlalchemy import Table, bindparam, select, update
+from sqlalchemy import Table, bindparam, insert, select, update
 from sqlalchemy.orm import Session
 
+from issuer.register.driver import Prepared
 from issuer.register.models import LogEntry, LogHead
 
 GENESIS = "0" * 64
@@ -74,10 +75,11 @@ def detail_text(detail: Mapping[str, Any] | None) -> str:
 
 _HEAD = cast(Table, LogHead.__table__)
 _ENTRY = cast(Table, LogEntry.__table__)
-# Core statements built once: appending runs on every act, so it stays lean
-_LOCK_HEAD = select(_HEAD.c.last_id, _HEAD.c.last_hash).where(_HEAD.c.id == 1).with_for_update()
-_INSERT_ENTRY = _ENTRY.insert()
-_MOVE_HEAD = (
+_ENTRY_COLUMNS = ("id", "at", "actor", "action", "series_id", "code", "batch_id", "detail", "prev_hash", "hash")
+# built and compiled once: appending runs on every act, so it stays lean
+_LOCK_HEAD = Prepared(select(_HEAD.c.last_id, _HEAD.c.last_hash).where(_HEAD.c.id == 1).with_for_update())
+_INSERT_ENTRY = Prepared(insert(_ENTRY).values({name: bindparam(name) for name in _ENTRY_COLUMNS}))
+_MOVE_HEAD = Prepared(
     update(_HEAD)
     .where(_HEAD.c.id == 1)
     .values(last_id=bindparam("new_id"), last_hash=bindparam("new_hash"))
@@ -126,16 +128,22 @@ def append_entries(
 ) -> int:
     """Append entries to the chain inside the caller's transaction; returns how many.
 
-    The head row is locked first, so concurrent writers append one after another.
-    Writes go straight to the session's connection: an ORM object that the caller
-    loaded from these tables would not see them.
+    The one place where the log grows: every act appends through here. The head row is
+    locked first, so concurrent writers append one after another; then the entries go
+    in (one statement) and the head moves (one more). Writes go straight to the
+    session's connection (flush ORM objects they refer to first): an ORM object that
+    the caller loaded from these tables would not see them.
     """
     connection = session.connection()
-    last_id, last_hash = connection.execute(_LOCK_HEAD).one()
-    rows = chain_rows(entries, actor=actor, at=at, last_id=last_id, last_hash=last_hash)
+    found = _LOCK_HEAD.one(connection)
+    assert found is not None, "the register has no log head (not created by its migrations?)"
+    rows = chain_rows(entries, actor=actor, at=at, last_id=int(found[0]), last_hash=str(found[1]))
+    if len(rows) == 1:
+        _INSERT_ENTRY.rows(connection, rows[0])
+    elif rows:
+        _INSERT_ENTRY.many(connection, rows)
     if rows:
-        connection.execute(_INSERT_ENTRY, rows)
-        connection.execute(_MOVE_HEAD, {"new_id": rows[-1]["id"], "new_hash": rows[-1]["hash"]})
+        _MOVE_HEAD.rows(connection, {"new_id": rows[-1]["id"], "new_hash": rows[-1]["hash"]})
     return len(rows)
 
 

@@ -17,6 +17,7 @@ from __future__ import annotations
 
 import os
 import random
+import sqlite3
 import time
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
@@ -143,7 +144,13 @@ def make_engine(url: str, *, busy_timeout_ms: int = 15000) -> Engine:
         @event.listens_for(engine, "begin")
         def _on_begin(connection: Any) -> None:
             writing = connection.get_execution_options().get("issuer_write", False)
-            connection.exec_driver_sql("BEGIN IMMEDIATE" if writing else "BEGIN")
+            sql = "BEGIN IMMEDIATE" if writing else "BEGIN"
+            # straight to the driver (this runs on every act); a busy register still
+            # comes back as SQLAlchemy's OperationalError, which the retry loop knows
+            try:
+                connection.connection.dbapi_connection.execute(sql)
+            except sqlite3.Error as exc:
+                raise DBAPIError.instance(sql, None, exc, sqlite3.Error) from None
 
         return engine
     return create_engine(url, pool_pre_ping=True)

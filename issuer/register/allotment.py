@@ -1,0 +1,269 @@
+"""Drawing numbers from a series and writing them down: the statements every issue runs.
+
+Issuing a batch of any size, and replacing a code, take the same steps in one
+transaction: claim the series' next numbers (the lock and the counter move are one
+``UPDATE … RETURNING``), open the batch row (``INSERT … RETURNING id``), write the
+code rows (one ``executemany``), and — only when imported numbers had to be skipped —
+settle the counter where drawing ended. The statements are built and compiled once
+(:class:`~issuer.register.driver.Prepared`); the two backends run the same ones.
+
+In-order series hand out ``start, start+1, ...``; scattered series send the same
+counter through the series' keyed permutation (FF1 with cycle walking), so numbers
+look random yet can never collide and exhaustion is known exactly. Numbers brought in
+by import are skipped by both.
+"""
+
+from __future__ import annotations
+
+import hashlib
+from collections.abc import Sequence
+from dataclasses import dataclass
+from datetime import datetime
+from typing import Any, cast
+
+from sqlalchemy import Connection, Table, bindparam, insert, select, update
+from sqlalchemy.orm import Session
+
+from issuer.errors import Exhausted, InvalidFormat, NotFound
+from issuer.register.bulk import ISSUE_COLUMNS, check_room
+from issuer.register.driver import Prepared, bind_value, insert_many
+from issuer.register.models import ISSUED, SCATTERED, Batch, IssuedCode, Series
+from issuer.register.series import capacity, code_format, permutation, unknown_series
+
+#: batches at least this large make their numbers with numpy, chunk by chunk
+BULK_FROM = 64
+
+_SERIES = cast(Table, Series.__table__)
+_BATCH = cast(Table, Batch.__table__)
+_CODE = cast(Table, IssuedCode.__table__)
+
+#: what a claim returns of the series row: its shape and counters (all plain values)
+SERIES_FIELDS = (
+    "id", "key", "scheme", "alphabet", "length", "prefix", "suffix", "grouping", "separator",
+    "mode", "range_start", "range_end", "next_counter", "code_count", "imported_count", "scatter_key",
+)  # fmt: skip
+BATCH_COLUMNS = ("series_id", "kind", "request_id", "count", "created_at", "actor")
+
+
+def _claim(where: Any) -> Prepared:
+    # an UPDATE takes the row lock a FOR NO KEY UPDATE would (PostgreSQL): a log entry's
+    # key-share lock through its foreign key to the series is never blocked by it
+    return Prepared(
+        update(_SERIES)
+        .where(where)
+        .values(
+            next_counter=_SERIES.c.next_counter + bindparam("count"),
+            code_count=_SERIES.c.code_count + bindparam("count"),
+        )
+        .returning(*(_SERIES.c[name] for name in SERIES_FIELDS))
+    )
+
+
+_CLAIM_BY_KEY = _claim(_SERIES.c.key == bindparam("series_key"))
+_CLAIM_BY_ID = _claim(_SERIES.c.id == bindparam("series_id"))
+_SETTLE_COUNTER = Prepared(
+    update(_SERIES).where(_SERIES.c.id == bindparam("series_id")).values(next_counter=bindparam("counter"))
+)
+_INSERT_BATCH = Prepared(
+    insert(_BATCH).values({name: bindparam(name) for name in BATCH_COLUMNS}).returning(_BATCH.c.id)
+)
+
+
+@dataclass
+class ClaimedSeries:
+    """A series row as it stood before this transaction's claim (the claim has already
+    moved the stored counters by the batch size)."""
+
+    id: int
+    key: str
+    scheme: str
+    alphabet: str
+    length: int
+    prefix: str
+    suffix: str
+    grouping: str
+    separator: str
+    mode: str
+    range_start: int
+    range_end: int
+    next_counter: int
+    code_count: int
+    imported_count: int
+    scatter_key: bytes | None
+
+    @property
+    def as_series(self) -> Series:
+        """For the helpers that read a series' shape (same attribute names)."""
+        return cast(Series, self)
+
+    @property
+    def protected(self) -> bool | None:
+        """Whether a scattered series' permutation has its full strength (None: in order)."""
+        return permutation(self.as_series).is_protected if self.mode == SCATTERED else None
+
+
+def claim_series(
+    session: Session, count: int, *, key: str | None = None, series_id: int | None = None
+) -> ClaimedSeries:
+    """Lock a series and move its counters by ``count`` in one statement; refuse (the
+    transaction then rolls back) when fewer than ``count`` numbers are left."""
+    if count < 1:
+        raise InvalidFormat("the count must be at least 1")
+    connection = session.connection()
+    if key is not None:
+        row = _CLAIM_BY_KEY.one(connection, {"series_key": key, "count": count})
+    else:
+        row = _CLAIM_BY_ID.one(connection, {"series_id": series_id, "count": count})
+    if row is None:
+        if key is not None:
+            raise unknown_series(session, key)
+        raise NotFound(f"no series #{series_id} in this register")
+    series = ClaimedSeries(*row)
+    series.next_counter -= count
+    series.code_count -= count
+    if series.scatter_key is not None:
+        series.scatter_key = bytes(series.scatter_key)
+    check_room(series.as_series, count)
+    return series
+
+
+def settle_counter(connection: Connection, series: ClaimedSeries, count: int, counter: int) -> None:
+    """Put the counter where drawing ended, when skipping imported numbers took it past
+    the claim (the claim moved it by exactly ``count``)."""
+    if counter != series.next_counter + count:
+        _SETTLE_COUNTER.rows(connection, {"series_id": series.id, "counter": counter})
+
+
+def open_batch(
+    connection: Connection,
+    series: ClaimedSeries,
+    *,
+    kind: str,
+    count: int,
+    request_id: str | None,
+    at: datetime,
+    actor: str,
+) -> int:
+    """Write the batch row; its id."""
+    row = _INSERT_BATCH.one(
+        connection,
+        {"series_id": series.id, "kind": kind, "request_id": request_id, "count": count,
+         "created_at": at, "actor": actor},
+    )  # fmt: skip
+    assert row is not None
+    return int(row[0])
+
+
+def _bases_for(series: Any, counters: Sequence[int] | Any) -> list[int]:
+    """Base numbers for counters, in order."""
+    if series.mode == SCATTERED:
+        scatter = permutation(series)
+        if len(counters) >= BULK_FROM:
+            import numpy as np
+
+            return scatter.bases_for_counters(np.asarray(counters, dtype=np.int64)).tolist()  # type: ignore[no-any-return]
+        return [scatter.base_for_counter(int(k)) for k in counters]
+    start = series.range_start
+    return [start + int(k) for k in counters]
+
+
+def _taken(session: Session, series: Any, bases: Sequence[int]) -> set[int]:
+    """Which of ``bases`` the series already holds (only imports can be among them)."""
+    found: set[int] = set()
+    for at in range(0, len(bases), 500):
+        chunk = list(bases[at: at + 500])
+        found.update(
+            session.scalars(
+                select(IssuedCode.base).where(
+                    IssuedCode.series_id == series.id, IssuedCode.base.in_(chunk)
+                )
+            )
+        )
+    return found
+
+
+def plan_allocation(session: Session, series: Any, count: int) -> tuple[list[int], int]:
+    """The next ``count`` free base numbers of a claimed series (as it stood before the
+    claim, which checked the room) and where its counter goes next; changes nothing."""
+    counter = series.next_counter
+    if series.imported_count == 0:
+        bases = _bases_for(series, range(counter, counter + count))
+        counter += count
+    else:
+        bases = []
+        while len(bases) < count:
+            need = count - len(bases)
+            window = range(counter, min(counter + need, capacity(series)))
+            if not window:  # pragma: no cover - guarded by the capacity check above
+                raise Exhausted(f"series {series.key} ran out of numbers")
+            candidates = _bases_for(series, window)
+            taken = _taken(session, series, candidates)
+            bases.extend(base for base in candidates if base not in taken)
+            counter = window.stop
+    return bases, counter
+
+
+def codes_digest(codes: Sequence[str]) -> str:
+    """SHA-256 over a batch's codes, one per line: the log entry covers what was issued."""
+    digest = hashlib.sha256()
+    for code in codes:
+        digest.update(code.encode("ascii"))
+        digest.update(b"\n")
+    return digest.hexdigest()
+
+
+@dataclass(frozen=True)
+class Placed:
+    """A small batch written down: its series (as claimed), batch row and codes."""
+
+    series: ClaimedSeries
+    batch_id: int
+    codes: list[str]
+    bases: list[int]
+
+
+def place_codes(
+    session: Session,
+    *,
+    count: int,
+    kind: str,
+    at: datetime,
+    actor: str,
+    key: str | None = None,
+    series_id: int | None = None,
+    request_id: str | None = None,
+    holder: str | None = None,
+    note: str | None = None,
+    replaces_id: int | None = None,
+) -> Placed:
+    """Claim, open the batch and write ``count`` codes (fewer than :data:`BULK_FROM`);
+    the caller logs the act. Four statements when no imported number is in the way."""
+    connection = session.connection()
+    series = claim_series(session, count, key=key, series_id=series_id)
+    bases, counter = plan_allocation(session, series, count)
+    batch_id = open_batch(
+        connection, series, kind=kind, count=count, request_id=request_id, at=at, actor=actor
+    )
+    shape = code_format(series.as_series)
+    codes = [shape.code_for_base(base) for base in bases]
+    issued_at = bind_value(session, _CODE.c.issued_at, at)
+    insert_many(
+        session, "issued_code", ISSUE_COLUMNS,
+        [(series.id, code, base, ISSUED, batch_id, holder, note, issued_at, actor, replaces_id, 0)
+         for code, base in zip(codes, bases)],
+    )  # fmt: skip
+    settle_counter(connection, series, count, counter)
+    return Placed(series, batch_id, codes, bases)
+
+
+__all__ = [
+    "BULK_FROM",
+    "ClaimedSeries",
+    "Placed",
+    "claim_series",
+    "codes_digest",
+    "open_batch",
+    "place_codes",
+    "plan_allocation",
+    "settle_counter",
+]
