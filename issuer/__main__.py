@@ -1,5 +1,8 @@
 """``python -m issuer`` runs the command line."""
 
-from issuer.cli.main import main
+try:
+    from issuer.cli.main import main
+except KeyboardInterrupt:  # Ctrl-C before the command line was even loaded
+    raise SystemExit(130) from None
 
 main()

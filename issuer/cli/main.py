@@ -6,6 +6,15 @@ import sys
 
 
 def main() -> None:
+    try:
+        _start()
+    except KeyboardInterrupt:
+        # Ctrl-C while the program was still loading: no command had begun to act
+        sys.stderr.write("\nissuer: interrupted while starting; nothing was done\n")
+        sys.exit(130)
+
+
+def _start() -> None:
     from issuer.cli import _launch
 
     words = sys.argv[1:]

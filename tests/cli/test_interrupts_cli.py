@@ -184,3 +184,20 @@ def test_sigint_to_a_real_process_tells_what_happened(db_path: Path, register: R
         assert held == 0
     else:
         assert "batch 1 of series tools was committed" in err and held == 150_000
+
+
+def test_ctrl_c_while_starting_is_one_line(monkeypatch: pytest.MonkeyPatch, capsys: pytest.CaptureFixture[str]) -> None:
+    import types
+
+    from issuer.cli import main as entry
+
+    class Loading(types.ModuleType):
+        def __getattr__(self, name: str) -> Any:
+            raise KeyboardInterrupt  # Ctrl-C while the command modules are still loading
+
+    monkeypatch.setitem(sys.modules, "issuer.cli.app", Loading("issuer.cli.app"))
+    monkeypatch.setattr(sys, "argv", ["issuer", "check", "QTL-0000-0013"])
+    with pytest.raises(SystemExit) as stopped:
+        entry.main()
+    assert stopped.value.code == 130
+    assert capsys.readouterr().err == "\nissuer: interrupted while starting; nothing was done\n"
