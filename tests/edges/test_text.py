@@ -40,8 +40,8 @@ def _inputs(tmp_path: Path) -> dict[str, tuple[list[str], dict[str, str]]]:
         "config wrong type": (["issue", "tools"], {"ISSUER_CONFIG": _file(tmp_path, "t.toml", "[register]\nbusy_timeout_ms = 'x'\n")}),
         "backup name 300": (["backup", str(tmp_path / ("b" * 300))], {}),
         "holder with NUL": (["issue", "tools", "--holder", "a\x00b"], {}),
-        "JSON lone surrogate": (["import", "tools", _file(tmp_path, "s.jsonl", '{"code": "%s", "holder": "\\ud800"}\n' % tool(90))], {}),
-        "JSON NUL": (["import", "tools", _file(tmp_path, "n.jsonl", '{"code": "%s", "note": "\\u0000"}\n' % tool(91))], {}),
+        "JSON lone surrogate": (["import", "tools", _file(tmp_path, "s.jsonl", '{"code": "' + tool(90) + '", "holder": "\\ud800"}\n')], {}),
+        "JSON NUL": (["import", "tools", _file(tmp_path, "n.jsonl", '{"code": "' + tool(91) + '", "note": "\\u0000"}\n')], {}),
         "JSON deep nesting": (["import", "tools", _file(tmp_path, "d.jsonl", "[" * 20000 + "]" * 20000 + "\n")], {}),
     }  # fmt: skip
     for number, date in enumerate(EDGE_DATES):
@@ -94,7 +94,7 @@ def test_markup_in_a_holder_is_text_not_a_crash(register_url: str) -> None:  # n
 
 
 def test_an_svg_label_of_such_a_holder_is_well_formed_xml(stored_escape: str, tmp_path: Path) -> None:
-    import xml.etree.ElementTree as ElementTree
+    from xml.etree import ElementTree
 
     out = tmp_path / "tag.svg"
     ok(run(stored_escape, "labels", tool(1), "--out", str(out), "--lines", "title,holder,note"))
