@@ -56,6 +56,8 @@ COMMAND_MODULES: dict[str, tuple[str, ...]] = {
     "reconcile": ("stocktake",), "import": ("transfer",), "export": ("transfer",),
     "stocktake": ("counts",), "place": ("counts",),
     "serve": ("service",), "tokens": ("service",), "counter": ("counter",),
+    "holder": ("holders",), "holders": ("holders",), "find": ("holders",),
+    "renew": ("standing",), "suspend": ("standing",), "reinstate": ("standing",),
 }  # fmt: skip
 
 

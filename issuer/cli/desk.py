@@ -21,6 +21,8 @@ from issuer.cli.common import (
 
 STYLE = {
     "issued": "green",
+    "expired": "yellow",
+    "suspended": "yellow",
     "voided": "red",
     "not_issued": "yellow",
     "bad_check": "yellow",
@@ -29,6 +31,8 @@ STYLE = {
 NEVER_ISSUED = "Do not accept this number: the register never issued it."
 WORDS = {
     "issued": "in use",
+    "expired": "EXPIRED",
+    "suspended": "SUSPENDED",
     "voided": "VOIDED",
     "not_issued": "never issued",
     "bad_check": "typo (check fails)",
@@ -38,8 +42,12 @@ WORDS = {
 
 def _detail(answer: Any) -> str:
     parts = []
-    if answer.status == "issued" and answer.holder:
+    if answer.status in ("issued", "expired", "suspended") and answer.holder:
         parts.append(f"holder: {shown(answer.holder)}")
+    if answer.status == "suspended":
+        since = f" since {answer.since:%Y-%m-%d %H:%M} UTC" if answer.since else ""
+        parts.append(f"suspended{since}: {shown(answer.reason)}")
+        return "\n".join(parts)
     if answer.status == "voided":
         parts.append(f"reason: {shown(answer.reason)}")
         if answer.replacement:
@@ -80,7 +88,7 @@ def check_against_register(
 
     register = open_register_from_options(db, actor)
     with register.reading() as session:
-        answers = check_codes(session, list(inputs))
+        answers = check_codes(session, list(inputs), register.clock())
     all_issued = bool(answers) and all(answer.status == "issued" for answer in answers)
     if summary:
         counts = Counter(answer.status for answer in answers)
@@ -141,9 +149,9 @@ def desk(
             out.print(CHECK_CAUTION, style="dim")
             continue
         with register.reading() as session:
-            (answer,) = check_codes(session, [text])
+            (answer,) = check_codes(session, [text], register.clock())
             if series is not None and answer.series is None:  # not a code: say why for this series
-                (answer,) = check_codes(session, [text], series=series)
+                (answer,) = check_codes(session, [text], register.clock(), series=series)
         _show_desk_answer(out, answer, series, shape)
     register.close()
 

@@ -45,12 +45,20 @@ def issue(
         Path | None, typer.Option("--out", help="Also write the batch's codes to this CSV file.", dir_okay=False)
     ] = None,
     force: ForceOption = False,
+    valid_until: Annotated[
+        str | None,
+        typer.Option("--valid-until", help="The codes are valid through this date (YYYY-MM-DD, UTC); default: the series' period."),
+    ] = None,
     db: DbOption = None,
     actor: ActorOption = None,
     as_json: JsonOption = False,
 ) -> None:
     """Issue the next code(s) of a series: whole batch or nothing."""
     from contextlib import ExitStack
+
+    from issuer.register.standing import parse_instant
+
+    until = parse_instant(valid_until, end_of_day=True) if valid_until is not None else None
 
     from issuer.cli.interrupts import batch_told, now, truthful_interrupt
 
@@ -60,6 +68,7 @@ def issue(
     opener = lambda: open_register_from_options(db, actor)
     with truthful_interrupt(opener, ("issue",), tell, series=key) as register:
         from issuer.register.bulk import CodesCsv
+        from issuer.register.fill import after_batch
         from issuer.register.issuing import issue_codes
 
         # the output file is checked before anything is issued; it appears once the batch commits
@@ -68,17 +77,25 @@ def issue(
             sink = stack.enter_context(csv_out) if csv_out is not None else None
             result = issue_codes(
                 register, key, count, holder=holder, note=note, request_id=request_id,
-                progress=advance, collect=collect, sink=sink,
+                progress=advance, collect=collect, sink=sink, valid_until=until,
             )  # fmt: skip
+        with register.reading() as session:
+            fill, warning = after_batch(session, result.series, 0 if result.replayed else result.count)
         if as_json:
             print_json({
                 "batch": result.batch,
                 "series": result.series,
                 "replayed": result.replayed,
                 "codes": [info.as_dict() for info in result.codes],
+                "fill": fill,
+                "fill_warning": warning.as_dict() if warning else None,
             })
             return
         _render_issue(result, out, holder is not None and _holds_people(register, key))
+        if warning is not None:
+            from issuer.cli.common import err_console
+
+            err_console().print(f"[bold yellow]Warning:[/bold yellow] {warning.message()}")
 
 
 def _holds_people(register: Any, key: str) -> bool:
@@ -186,14 +203,18 @@ def history(
 
     register = open_register_from_options(db, None)
     with register.reading() as session:
-        record, events = code_history(session, code)
+        record, events = code_history(session, code, register.clock())
     if as_json:
         print_json({"code": record.as_dict(), "events": [event.as_dict() for event in events]})
         return
     from rich.table import Table
 
     out = console()
-    status = "[green]in use[/green]" if record.status == "issued" else f"[red]voided[/red] ({shown(record.void_reason)})"
+    status = {
+        "issued": "[green]in use[/green]",
+        "expired": f"[yellow]expired[/yellow] (valid until {record.valid_until:%Y-%m-%d %H:%M} UTC)" if record.valid_until else "expired",
+        "suspended": f"[yellow]suspended[/yellow] since {record.suspended_at:%Y-%m-%d %H:%M} UTC ({shown(record.suspend_reason)})" if record.suspended_at else "suspended",
+    }.get(record.standing, f"[red]voided[/red] ({shown(record.void_reason)})")
     out.print(f"[bold]{record.display}[/bold]  series {record.series}  {status}")
     facts = [
         f"issued {record.issued_at:%Y-%m-%d %H:%M} UTC by {record.issued_by} (batch {record.batch})",
@@ -201,6 +222,10 @@ def history(
     ]
     if record.holder:
         facts.append(f"holder: {shown(record.holder)}")
+    if record.valid_until and record.standing != "expired":
+        facts.append(f"valid until {record.valid_until:%Y-%m-%d %H:%M} UTC")
+    if record.erased_at:
+        facts.append(f"holder and note erased {record.erased_at:%Y-%m-%d}")
     if record.replaces:
         facts.append(f"replaces {record.replaces}")
     if record.replaced_by:

@@ -294,7 +294,7 @@ def _summary(outcome: Any, actor: str, reason: str | None, holder: bool) -> None
         shown = ", ".join(outcome.omitted_void[:5])
         more = len(outcome.omitted_void) - 5
         out.print(
-            f"Left out {len(outcome.omitted_void)} voided code(s): {shown}"
+            f"Left out {len(outcome.omitted_void)} voided or suspended code(s): {shown}"
             + (f" and {more} more" if more > 0 else ""),
             markup=False,
             soft_wrap=True,

@@ -64,22 +64,31 @@ def add(
     sep: Annotated[str, typer.Option("--sep", help="Separator between prefix, groups and suffix.")] = "-",
     title: Annotated[str, typer.Option("--title", help="A title for people and labels.")] = "",
     people: PeopleOption = None,
+    valid_for: Annotated[
+        str | None, typer.Option("--valid-for", help="How long each new code stays valid, e.g. 1d, 30d, 365d (default: no end).")
+    ] = None,
+    warn_at: Annotated[
+        str, typer.Option("--warn-at", help="Fill levels (percent) at which issuing warns, e.g. 80,95; or none.")
+    ] = "80,95",
     db: DbOption = None,
     actor: ActorOption = None,
     as_json: JsonOption = False,
 ) -> None:
     """Define a series. Its shape is frozen once it has issued a number."""
+    from issuer.register.fill import parse_levels
     from issuer.register.series import SeriesSpec, add_series, series_state
+    from issuer.register.standing import parse_period
 
     spec = SeriesSpec(
         key=key, scheme=scheme, length=length, alphabet=alphabet, prefix=prefix, suffix=suffix,
         mode=mode, start=start, end=end, group=parse_group(group), sep=sep, title=title,
         holds_people=people,
+        valid_for_days=parse_period(valid_for) if valid_for else None, fill_levels=parse_levels(warn_at),
     )
     register = open_register_from_options(db, actor, create=True)
     series = add_series(register, spec)
     with register.reading() as session:
-        state = series_state(session, series)
+        state = series_state(session, series, register.clock())
     if as_json:
         print_json(state.as_dict())
         return
@@ -111,21 +120,29 @@ def change(
     group: Annotated[str | None, typer.Option("--group", help="New grouping for people, e.g. 4,4.")] = None,
     sep: Annotated[str | None, typer.Option("--sep", help="A new separator between groups.")] = None,
     people: PeopleOption = None,
+    valid_for: Annotated[
+        str | None, typer.Option("--valid-for", help="How long new codes stay valid, e.g. 30d; 'none' for no end (codes issued already keep theirs).")
+    ] = None,
+    warn_at: Annotated[str | None, typer.Option("--warn-at", help="New fill warning levels, e.g. 80,95; or none.")] = None,
     db: DbOption = None,
     actor: ActorOption = None,
     as_json: JsonOption = False,
 ) -> None:
     """Change a series' title, or its shape while it has issued nothing (then it is frozen)."""
+    from issuer.register.fill import parse_levels
     from issuer.register.series import change_series, series_state
+    from issuer.register.standing import parse_period
 
+    days = None if valid_for is None else 0 if valid_for.strip().lower() == "none" else parse_period(valid_for)
     register = open_register_from_options(db, actor)
     series = change_series(
         register, key, title=title, scheme=scheme, alphabet=alphabet, length=length,
         prefix=prefix, suffix=suffix, mode=mode, start=start, end=end,
         group=parse_group(group) if group is not None else None, sep=sep, holds_people=people,
+        valid_for_days=days, fill_levels=parse_levels(warn_at) if warn_at is not None else None,
     )  # fmt: skip
     with register.reading() as session:
-        state = series_state(session, series)
+        state = series_state(session, series, register.clock())
     if as_json:
         print_json(state.as_dict())
     else:
@@ -143,8 +160,10 @@ def _render_state(state: object) -> None:
         "title": "Title", "example": "Codes look like", "scheme": "Check method",
         "alphabet": "Body symbols", "length": "Body length", "mode": "Issued",
         "capacity": "Capacity", "issued": "In use", "voided": "Voided",
+        "suspended": "Suspended", "expired": "Expired",
         "remaining": "Left to issue", "fill": "Fill", "next_code": "Next in order",
-        "protected": "FF1 domain ≥ 10⁶", "holds_people": "Holders are people",
+        "protected": "FF1 domain ≥ 10⁶", "holds_people": "Holders are people", "valid_for": "Valid for",
+        "fill_levels": "Warns at",
     }
     for key, label in labels.items():
         value = data.get(key)
@@ -152,6 +171,12 @@ def _render_state(state: object) -> None:
             continue
         if key == "fill":
             value = f"{value:.4%}"
+            if data.get("fill_level") is not None:
+                value += f"  [bold yellow]past {data['fill_level']}%[/bold yellow]"
+        elif key == "fill_levels":
+            value = ", ".join(f"{level}%" for level in value) if value else "never"
+        elif key in ("suspended", "expired") and value == 0:
+            continue
         elif key == "mode":
             value = "in order" if value == "sequential" else "scattered"
         elif isinstance(value, int) and not isinstance(value, bool):
@@ -177,7 +202,7 @@ def show(
 
     register = open_register_from_options(db, None)
     with register.reading() as session:
-        state = series_state(session, get_series(session, key))
+        state = series_state(session, get_series(session, key), register.clock())
     if as_json:
         print_json(state.as_dict())
     else:
@@ -203,7 +228,7 @@ def list_series(
 
     register = open_register_from_options(db, None)
     with register.reading() as session:
-        states = [series_state(session, series) for series in all_series(session)]
+        states = [series_state(session, series, register.clock()) for series in all_series(session)]
     if as_json:
         print_json([state.as_dict() for state in states])
         return
@@ -223,7 +248,8 @@ def list_series(
         table.add_row(
             name, state.example,
             "in order" if state.mode == "sequential" else "scattered",
-            f"{state.issued:,}", f"{state.voided:,}", _compact(state.remaining),
+            f"{state.issued:,}", f"{state.voided:,}",
+            _compact(state.remaining) + (f"\n[bold yellow]past {state.fill_level}%[/bold yellow]" if state.fill_level else ""),
         )  # fmt: skip
     if not states:
         console().print("No series yet: define one with 'issuer series add'.")

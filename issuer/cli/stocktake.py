@@ -31,7 +31,10 @@ if TYPE_CHECKING:
 SHOW_LINES = 10
 
 #: the classes a single reconcile shows (a count's scope and places add the others)
-SHOWN = ("issued", "elsewhere", "voided", "other_series", "bad_check", "not_issued", "malformed", "duplicates", "missing")
+SHOWN = (
+    "issued", "elsewhere", "expired", "suspended", "voided", "other_series", "bad_check", "not_issued", "malformed",
+    "duplicates", "missing",
+)
 
 
 @app.command(

@@ -48,7 +48,7 @@ class CounterDesk:
 
         def read() -> Answered:
             with self.register.reading() as session:
-                answer = check_codes(session, [text])[0]
+                answer = check_codes(session, [text], self.register.clock())[0]
                 record = None
                 if answer.code is not None and answer.status not in ("not_issued", "bad_check", "malformed"):
                     record = code_record(session, find_code(session, answer.code))

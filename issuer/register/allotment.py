@@ -29,6 +29,7 @@ from issuer.register.bulk import ISSUE_COLUMNS, check_room
 from issuer.register.driver import Prepared, bind_value, insert_many
 from issuer.register.models import ISSUED, SCATTERED, Batch, IssuedCode, Series
 from issuer.register.series import capacity, code_format, permutation, unknown_series
+from issuer.register.standing import search_key, validity_for
 
 #: batches at least this large make their numbers with numpy, chunk by chunk
 BULK_FROM = 64
@@ -41,6 +42,7 @@ _CODE = cast(Table, IssuedCode.__table__)
 SERIES_FIELDS = (
     "id", "key", "scheme", "alphabet", "length", "prefix", "suffix", "grouping", "separator",
     "mode", "range_start", "range_end", "next_counter", "code_count", "imported_count", "scatter_key",
+    "valid_for_days",
 )  # fmt: skip
 BATCH_COLUMNS = ("series_id", "kind", "request_id", "count", "created_at", "actor")
 
@@ -90,6 +92,8 @@ class ClaimedSeries:
     code_count: int
     imported_count: int
     scatter_key: bytes | None
+    #: how long a new code stays valid, in days (None: no end)
+    valid_for_days: int | None = None
 
     @property
     def as_series(self) -> Series:
@@ -235,6 +239,8 @@ def place_codes(
     holder: str | None = None,
     note: str | None = None,
     replaces_id: int | None = None,
+    valid_until: datetime | None = None,
+    keep_until: bool = False,
 ) -> Placed:
     """Claim, open the batch and write ``count`` codes (fewer than :data:`BULK_FROM`);
     the caller logs the act. Four statements when no imported number is in the way."""
@@ -247,9 +253,14 @@ def place_codes(
     shape = code_format(series.as_series)
     codes = [shape.code_for_base(base) for base in bases]
     issued_at = bind_value(session, _CODE.c.issued_at, at)
+    # a replacement keeps its predecessor's end (keep_until); a new code gets the series' period
+    until = valid_until if keep_until else validity_for(series.valid_for_days, at, valid_until)
+    bound_until = None if until is None else bind_value(session, _CODE.c.valid_until, until)
+    holder_key, note_key = search_key(holder), search_key(note)
     insert_many(
         session, "issued_code", ISSUE_COLUMNS,
-        [(series.id, code, base, ISSUED, batch_id, holder, note, issued_at, actor, replaces_id, 0)
+        [(series.id, code, base, ISSUED, batch_id, holder, note, issued_at, actor, replaces_id, 0,
+          holder_key, note_key, bound_until)
          for code, base in zip(codes, bases)],
     )  # fmt: skip
     settle_counter(connection, series, count, counter)

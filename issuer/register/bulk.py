@@ -32,6 +32,7 @@ from issuer.errors import Exhausted, RegisterError
 from issuer.register.driver import bind_value, insert_many
 from issuer.register.models import ISSUED, SCATTERED, Batch, IssuedCode, Series
 from issuer.register.series import capacity, code_format, permutation
+from issuer.register.standing import search_key
 
 if TYPE_CHECKING:
     import numpy as np
@@ -43,7 +44,7 @@ CHUNK = 50_000
 #: the columns a newly issued row fills, in the order of the tuples handed to the driver
 ISSUE_COLUMNS = (
     "series_id", "code", "base", "status", "batch_id", "holder", "note",
-    "issued_at", "issued_by", "replaces_id", "print_count",
+    "issued_at", "issued_by", "replaces_id", "print_count", "holder_key", "note_key", "valid_until",
 )  # fmt: skip
 
 
@@ -172,7 +173,7 @@ class CodesCsv:
     otherwise.
     """
 
-    COLUMNS = ("code", "display", "base", "series", "batch")
+    COLUMNS = ("code", "display", "base", "series", "batch", "holder")
 
     def __init__(self, path: Path | str, *, force: bool = False) -> None:
         from issuer.outputs import check_target
@@ -204,7 +205,8 @@ class CodesCsv:
 
     def write(self, chunk: IssuedChunk) -> None:
         self._writer.writerows(
-            zip(chunk.codes, chunk.displays(), chunk.bases, repeat(chunk.series), repeat(chunk.batch))
+            zip(chunk.codes, chunk.displays(), chunk.bases, repeat(chunk.series), repeat(chunk.batch),
+                repeat(chunk.holder or ""))
         )
         self.rows += len(chunk.codes)
 
@@ -370,12 +372,15 @@ def store_bulk(
     collect: bool,
     sink: CodeSink | None = None,
     progress: Callable[[int], None] | None = None,
+    valid_until: datetime | None = None,
 ) -> BulkOutcome:
     """Make and insert ``count`` codes for batch ``batch_id``, chunk by chunk (``series``
     as claimed; its counters move on as chunks are drawn)."""
     shape = code_format(series)
     previous_cache = _roomy_cache(session, count)
     issued_at = bind_value(session, IssuedCode.__table__.c.issued_at, at)  # type: ignore[arg-type]
+    until = None if valid_until is None else bind_value(session, IssuedCode.__table__.c.valid_until, valid_until)  # type: ignore[arg-type]
+    holder_key, note_key = search_key(holder), search_key(note)
     outcome = BulkOutcome()
     try:
         for bases_array in allocate_chunks(session, series, count):
@@ -384,6 +389,7 @@ def store_bulk(
             rows = zip(
                 repeat(series.id), codes, bases, repeat(ISSUED), repeat(batch_id), repeat(holder),
                 repeat(note), repeat(issued_at), repeat(actor), repeat(None), repeat(0),
+                repeat(holder_key), repeat(note_key), repeat(until),
             )  # fmt: skip
             insert_many(session, "issued_code", ISSUE_COLUMNS, rows)
             outcome.digest.update(("\n".join(codes) + "\n").encode("ascii"))

@@ -221,7 +221,7 @@ def open_count(register: Register, name: str, key: str, scope: CountScope, *, zo
         session.add(count)
         session.flush()
         detail = {"count": name, "scope": scope.kind, "zone": zone}
-        if text is not None:
+        if text is not None and scope.kind != "holder":  # a holder's name stays out of the log
             detail["scope_text"] = text
         append_entry(session, NewEntry("count_open", series.id, None, None, detail), actor=register.actor, at=now)
         return _info(session, count, series.key)

@@ -93,6 +93,6 @@ def run_demo(register: Register) -> DemoReport:
     ]
     report.typed = typed
     with register.reading() as session:
-        report.answers = check_codes(session, [text for text, _ in typed])
+        report.answers = check_codes(session, [text for text, _ in typed], register.clock())
         report.states = [series_state(session, series) for series in all_series(session)]
     return report

@@ -5,6 +5,7 @@ from __future__ import annotations
 
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field
+from datetime import datetime
 from typing import Any
 
 from sqlalchemy import select
@@ -14,11 +15,12 @@ from issuer.checking.codes import CodeFormat, normalise_text
 from issuer.checking.likely import Ranked, advice
 from issuer.checking.reading import read_code
 from issuer.errors import InvalidFormat
-from issuer.register.models import ISSUED, VOIDED, IssuedCode, Series
+from issuer.register.models import EXPIRED, ISSUED, SUSPENDED, VOIDED, IssuedCode, Series
 from issuer.register.series import all_series, code_format
+from issuer.register.standing import standing
 
 #: statuses a desk check answers with
-STATUSES = ("issued", "voided", "not_issued", "bad_check", "malformed")
+STATUSES = ("issued", "expired", "suspended", "voided", "not_issued", "bad_check", "malformed")
 
 
 @dataclass(frozen=True)
@@ -45,6 +47,10 @@ class DeskAnswer:
     holder: str | None = None
     #: the replacement's display form, for a voided code that was replaced
     replacement: str | None = None
+    #: the end of the code's validity (an expired code's answer says when it ended)
+    valid_until: datetime | None = None
+    #: since when a suspended code is suspended
+    since: datetime | None = None
     suggestions: list[Suggestion] = field(default_factory=list)
     #: words for the clerk when two or more suggestions are about equally likely
     advice: str | None = None
@@ -111,9 +117,12 @@ def _suggest_length(session: Session, shapes: Sequence[tuple[Series, CodeFormat]
     return found
 
 
-def check_codes(session: Session, inputs: Sequence[str], *, series: str | None = None) -> list[DeskAnswer]:
+def check_codes(
+    session: Session, inputs: Sequence[str], now: datetime | None = None, *, series: str | None = None
+) -> list[DeskAnswer]:
     """Answer each input, in input order; with ``series``, read them as that series'
-    codes only."""
+    codes only. A code past its validity at ``now`` (the register's clock, passed in)
+    answers expired."""
     shapes = [(one, code_format(one)) for one in all_series(session) if series is None or one.key == series]
     per_input = [_readings(shapes, text) for text in inputs]
     stored = _stored(
@@ -133,7 +142,7 @@ def check_codes(session: Session, inputs: Sequence[str], *, series: str | None =
         }
     answers = []
     for text, (readings, problems) in zip(inputs, per_input):
-        answers.append(_answer(session, shapes, text, readings, problems, stored, replacements))
+        answers.append(_answer(session, shapes, text, readings, problems, stored, replacements, now))
     return answers
 
 
@@ -145,6 +154,7 @@ def _answer(
     problems: list[str],
     stored: dict[str, IssuedCode],
     replacements: dict[int, str],
+    now: datetime | None = None,
 ) -> DeskAnswer:
     if not shapes:
         return DeskAnswer(text, "malformed", reason="the register has no series yet")
@@ -162,9 +172,14 @@ def _answer(
         if row is None:
             continue
         answer = DeskAnswer(
-            text, row.status, reading.canonical, reading.shape.display(row.code),
-            reading.series.key, holder=row.holder,
+            text, standing(row.status, row.valid_until, now), reading.canonical,
+            reading.shape.display(row.code), reading.series.key, holder=row.holder,
+            valid_until=row.valid_until,
         )
+        if row.status == SUSPENDED:
+            answer.reason, answer.since = row.suspend_reason, row.suspended_at
+        elif answer.status == EXPIRED:
+            answer.reason = f"valid until {row.valid_until:%Y-%m-%d %H:%M} UTC"
         if row.status == VOIDED:
             answer.reason = row.void_reason
             if row.replaced_by_id:

@@ -23,7 +23,6 @@ import hashlib
 import json
 import stat
 from collections.abc import Callable
-from dataclasses import dataclass, field
 from typing import Any
 
 from sqlalchemy import text
@@ -31,53 +30,21 @@ from sqlalchemy.orm import Session
 
 from issuer.register.admin import snapshot, sqlite_path
 from issuer.register.doctor_files import check_folder, check_leftovers
+from issuer.register.doctor_states import check_fill, check_states
+from issuer.register.findings import (
+    OK,
+    PROBLEM,
+    SKIPPED,
+    WARN,
+    DoctorReport,
+    Finding,
+    _finding,
+)
 from issuer.register.log import verify_chain
 from issuer.register.models import SCATTERED
 from issuer.register.store import SCHEMA_HEAD, Register
 
-OK, WARN, PROBLEM, SKIPPED = "ok", "warn", "problem", "skipped"
-#: at most this many particulars listed per check
-MAX_DETAILS = 10
-
 Stage = Callable[[str], None]
-
-
-@dataclass
-class Finding:
-    check: str
-    status: str
-    summary: str
-    details: list[str] = field(default_factory=list)
-
-    def as_dict(self) -> dict[str, Any]:
-        return dict(self.__dict__)
-
-
-@dataclass
-class DoctorReport:
-    database: str
-    backend: str
-    findings: list[Finding]
-
-    @property
-    def healthy(self) -> bool:
-        return all(finding.status != PROBLEM for finding in self.findings)
-
-    def as_dict(self) -> dict[str, Any]:
-        return {
-            "database": self.database,
-            "backend": self.backend,
-            "healthy": self.healthy,
-            "findings": [finding.as_dict() for finding in self.findings],
-        }
-
-
-def _finding(check: str, problems: list[str], ok_summary: str, bad_summary: str) -> Finding:
-    if not problems:
-        return Finding(check, OK, ok_summary)
-    more = len(problems) - MAX_DETAILS
-    details = problems[:MAX_DETAILS] + ([f"... and {more} more"] if more > 0 else [])
-    return Finding(check, PROBLEM, bad_summary.format(n=len(problems)), details)
 
 
 def check_integrity(register: Register, session: Session) -> Finding:
@@ -361,6 +328,8 @@ def run_doctor(register: Register, stage: Stage | None = None, *, fix: bool = Fa
             run("counters", lambda: check_counters(session), session)
             run("batches", lambda: check_batches(session), session)
             run("log and codes", lambda: check_log_agrees(session), session)
+            run("states", lambda: check_states(session, register.clock()), session)
+            run("fill", lambda: check_fill(session), session)
         run("access", lambda: check_guard(register, session), session)
     path = sqlite_path(register)
     findings.append(Finding("folder", *check_folder(path)))

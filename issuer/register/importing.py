@@ -31,8 +31,9 @@ from issuer.readers.bulkread import BAD_CHECK, MALFORMED, read_codes
 from issuer.readers.scanfile import Table
 from issuer.register.driver import bind_value, execute_many, insert_many
 from issuer.register.log import NewEntry, append_entries
-from issuer.register.models import ISSUED, VOIDED, Batch, IssuedCode
+from issuer.register.models import EXPIRED, ISSUED, SUSPENDED, VOIDED, Batch, IssuedCode
 from issuer.register.series import all_series, code_format, get_series
+from issuer.register.standing import search_key
 from issuer.register.stocktake import series_codes
 from issuer.register.store import Register
 
@@ -50,6 +51,9 @@ IMPORT_ROLES: dict[str, tuple[str, ...]] = {
     "last_seen_at": ("last_seen_at",),
     "last_seen_where": ("last_seen_where",),
     "expected_where": ("expected_where", "expected_place", "place", "home", "location", "shelf"),
+    "valid_until": ("valid_until",),
+    "suspended_at": ("suspended_at",),
+    "suspend_reason": ("suspend_reason",),
 }
 #: each text column and the field whose limit it keeps (see issuer.limits)
 FIELDS = {
@@ -62,6 +66,7 @@ NAMED_IN_REFUSAL = 10
 ROW_COLUMNS = (
     "series_id", "code", "base", "status", "batch_id", "holder", "note", "issued_at", "issued_by",
     "void_reason", "voided_at", "voided_by", "print_count", "last_seen_at", "last_seen_where", "expected_where",
+    "holder_key", "note_key", "valid_until", "suspended_at", "suspended_by", "suspend_reason",
 )  # fmt: skip
 
 
@@ -90,6 +95,9 @@ class ImportRow:
     last_seen_where: str | None
     #: where the item belongs (a place column of the file)
     expected_where: str | None = None
+    valid_until: datetime | None = None
+    suspended_at: datetime | None = None
+    suspend_reason: str | None = None
 
 
 @dataclass
@@ -173,8 +181,10 @@ def plan_import(register: Register, key: str, table: Table) -> ImportPlan:
 
 def _row(line: int, code: str, base: int, index: int, cell: Callable[[str, int], str | None], now: datetime) -> ImportRow:
     status = (cell("status", index) or ISSUED).lower()
-    if status not in (ISSUED, VOIDED):
-        raise ValueError(f"status must be issued or voided, not {status!r}")
+    if status == EXPIRED:  # an export's word for an issued code past its validity
+        status = ISSUED
+    if status not in (ISSUED, VOIDED, SUSPENDED):
+        raise ValueError(f"status must be issued, expired, suspended or voided, not {status!r}")
     issued_at = _time(text, "issued_at") if (text := cell("issued_at", index)) else None
     if issued_at is not None and issued_at > now:
         raise ValueError(f"issued_at {text} is in the future")
@@ -184,6 +194,7 @@ def _row(line: int, code: str, base: int, index: int, cell: Callable[[str, int],
     if voided_at is not None and issued_at is not None and voided_at < issued_at:
         raise ValueError("voided_at is before issued_at")
     seen_at = _time(text, "last_seen_at") if (text := cell("last_seen_at", index)) else None
+    valid_until = _time(text, "valid_until") if (text := cell("valid_until", index)) else None
     values = {name: cell(name, index) for name in FIELDS}
     for name, field_name in FIELDS.items():
         try:
@@ -197,6 +208,10 @@ def _row(line: int, code: str, base: int, index: int, cell: Callable[[str, int],
         void_reason=values["void_reason"] if status == VOIDED else None,
         replaces=cell("replaces", index), last_seen_at=seen_at, last_seen_where=values["last_seen_where"],
         expected_where=" ".join(values["expected_where"].split()) if values["expected_where"] else None,
+        valid_until=valid_until,
+        suspended_at=(_time(text, "suspended_at") if (text := cell("suspended_at", index)) else now)
+        if status == SUSPENDED else None,
+        suspend_reason=cell("suspend_reason", index) if status == SUSPENDED else None,
     )  # fmt: skip
 
 
@@ -263,7 +278,10 @@ def apply_import(
                  bind("issued_at", row.issued_at or now), row.issued_by or register.actor,
                  row.void_reason, bind("voided_at", row.voided_at or now) if row.status == VOIDED else None,
                  (row.voided_by or register.actor) if row.status == VOIDED else None, 0,
-                 bind("last_seen_at", row.last_seen_at), row.last_seen_where, row.expected_where)
+                 bind("last_seen_at", row.last_seen_at), row.last_seen_where, row.expected_where,
+                 search_key(row.holder), search_key(row.note), bind("valid_until", row.valid_until),
+                 bind("suspended_at", row.suspended_at), register.actor if row.status == SUSPENDED else None,
+                 row.suspend_reason)
                 for row in chunk
             ])  # fmt: skip
             if progress is not None:

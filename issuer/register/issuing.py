@@ -11,6 +11,7 @@ from __future__ import annotations
 
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
+from datetime import datetime
 from typing import Any
 
 from sqlalchemy import select
@@ -30,6 +31,7 @@ from issuer.register.bulk import CHUNK, CodeSink, IssuedChunk, store_bulk
 from issuer.register.log import NewEntry, append_entry
 from issuer.register.models import Batch, IssuedCode, Series
 from issuer.register.series import code_format
+from issuer.register.standing import clean_text, validity_for
 from issuer.register.store import Register
 
 Progress = Callable[[int], None]
@@ -149,6 +151,7 @@ def issue_codes(
     progress: Progress | None = None,
     collect: bool = True,
     sink: CodeSink | None = None,
+    valid_until: datetime | None = None,
 ) -> IssueResult:
     """Issue ``count`` codes from series ``key`` in one transaction.
 
@@ -159,11 +162,15 @@ def issue_codes(
     (e.g. :class:`~issuer.register.bulk.CodesCsv`) receives every code as it is made.
     A bulk batch of a scattered series lists its codes in number order (they are all
     issued at one instant; see :func:`~issuer.register.bulk.allocate_chunks`).
+    ``valid_until`` ends the codes' validity; without it the series' default period
+    (if any) runs from the moment of issue.
     """
     limits.number("count", count)
-    limits.text("holder", holder)
-    limits.text("note", note)
     limits.text("request id", request_id)
+    holder = clean_text(holder, what="holder")
+    note = clean_text(note, what="note")
+    if valid_until is not None and valid_until <= register.clock():
+        raise InvalidFormat("--valid-until has passed already: a code cannot be issued expired")
     if request_id is not None and not request_id.strip():
         raise InvalidFormat("a request id cannot be empty")
 
@@ -175,8 +182,10 @@ def issue_codes(
             if replay is not None:
                 return replay
         if count < BULK_FROM:
-            return _issue_few(session, register, key, count, holder, note, request_id, sink)
-        return _issue_many(session, register, key, count, holder, note, request_id, collect, sink, progress)
+            return _issue_few(session, register, key, count, holder, note, request_id, sink, valid_until)
+        return _issue_many(
+            session, register, key, count, holder, note, request_id, collect, sink, progress, valid_until
+        )
 
     try:
         return register.write(work)
@@ -215,13 +224,14 @@ def _issue_few(
     note: str | None,
     request_id: str | None,
     sink: CodeSink | None,
+    valid_until: datetime | None = None,
 ) -> IssueResult:
     """A small batch: claim, batch row, codes (:func:`~issuer.register.allotment.place_codes`)
     and the log entry."""
     at = register.clock()
     placed = place_codes(
         session, key=key, count=count, kind="issue", at=at, actor=register.actor,
-        request_id=request_id, holder=holder, note=note,
+        request_id=request_id, holder=holder, note=note, valid_until=valid_until,
     )  # fmt: skip
     series, batch_id, codes, bases = placed.series, placed.batch_id, placed.codes, placed.bases
     append_entry(
@@ -250,6 +260,7 @@ def _issue_many(
     collect: bool,
     sink: CodeSink | None,
     progress: Progress | None,
+    valid_until: datetime | None = None,
 ) -> IssueResult:
     """A large batch: the same claim, batch row, code statement and log entry as a
     small one; the codes are made with numpy and written a chunk at a time."""
@@ -264,6 +275,7 @@ def _issue_many(
     outcome = store_bulk(
         session, series=series.as_series, batch_id=batch_id, count=count, holder=holder, note=note,
         at=at, actor=register.actor, collect=collect, sink=sink, progress=progress,
+        valid_until=validity_for(series.valid_for_days, at, valid_until),
     )  # fmt: skip
     drawn_to = series.next_counter  # drawing moves the counters on as it goes
     series.next_counter, series.code_count = start, series.code_count - count

@@ -20,6 +20,7 @@ from issuer.register.allotment import place_codes
 from issuer.register.log import NewEntry, append_entry
 from issuer.register.models import ISSUED, VOIDED, IssuedCode, LogEntry, Series
 from issuer.register.series import all_series, code_format, unknown_series
+from issuer.register.standing import standing
 from issuer.register.store import Register
 
 
@@ -84,6 +85,13 @@ class CodeRecord:
     print_count: int
     last_seen_at: datetime | None
     last_seen_where: str | None
+    valid_until: datetime | None = None
+    suspended_at: datetime | None = None
+    suspended_by: str | None = None
+    suspend_reason: str | None = None
+    erased_at: datetime | None = None
+    #: the status as it answers at the time asked: ``expired`` past validity
+    standing: str = ""
     #: where the item belongs (``issuer place``)
     expected_where: str | None = None
 
@@ -91,7 +99,7 @@ class CodeRecord:
         return dict(self.__dict__)
 
 
-def code_record(session: Session, row: IssuedCode) -> CodeRecord:
+def code_record(session: Session, row: IssuedCode, now: datetime | None = None) -> CodeRecord:
     series = session.get(Series, row.series_id)
     assert series is not None
 
@@ -118,6 +126,12 @@ def code_record(session: Session, row: IssuedCode) -> CodeRecord:
         print_count=row.print_count,
         last_seen_at=row.last_seen_at,
         last_seen_where=row.last_seen_where,
+        valid_until=row.valid_until,
+        suspended_at=row.suspended_at,
+        suspended_by=row.suspended_by,
+        suspend_reason=row.suspend_reason,
+        erased_at=row.erased_at,
+        standing=standing(row.status, row.valid_until, now),
         expected_where=row.expected_where,
     )
 
@@ -169,7 +183,7 @@ def replace_code(register: Register, text: str, *, reason: str) -> Replacement:
         _void(session, register, old, why, at)
         placed = place_codes(
             session, series_id=old.series_id, count=1, kind="replace", at=at, actor=register.actor,
-            holder=old.holder, note=old.note, replaces_id=old.id,
+            holder=old.holder, note=old.note, replaces_id=old.id, valid_until=old.valid_until, keep_until=True,
         )  # fmt: skip
         series, (new_code,) = placed.series, placed.codes
         new_id = session.scalar(select(IssuedCode.id).where(IssuedCode.code == new_code))
@@ -204,7 +218,7 @@ def restore_code(register: Register, text: str, *, reason: str) -> CodeRecord:
         if row.replaced_by_id is not None:
             replacement = session.get(IssuedCode, row.replaced_by_id)
             assert replacement is not None
-            if replacement.status == ISSUED:
+            if replacement.status != VOIDED:
                 raise Conflict(
                     f"{row.code} was replaced by {replacement.code}; void that first"
                 )
@@ -214,6 +228,7 @@ def restore_code(register: Register, text: str, *, reason: str) -> CodeRecord:
         row.void_reason = None
         row.voided_at = None
         row.voided_by = None
+        row.suspended_at = row.suspended_by = row.suspend_reason = None
         append_entry(
             session,
             NewEntry("restore", row.series_id, row.code, None, {"reason": why, "void_reason": previous}),
@@ -254,8 +269,11 @@ def _events(session: Session, statement: Any) -> list[Event]:
     ]
 
 
-def code_history(session: Session, text: str) -> tuple[CodeRecord, list[Event]]:
-    """A code's record and every logged event that concerns it, oldest first."""
+def code_history(
+    session: Session, text: str, now: datetime | None = None
+) -> tuple[CodeRecord, list[Event]]:
+    """A code's record (standing at ``now``) and every logged event that concerns it,
+    oldest first."""
     row = find_code(session, text)
     statement = (
         select(LogEntry)
@@ -267,7 +285,7 @@ def code_history(session: Session, text: str) -> tuple[CodeRecord, list[Event]]:
         )
         .order_by(LogEntry.id)
     )
-    return code_record(session, row), _events(session, statement)
+    return code_record(session, row, now), _events(session, statement)
 
 
 def log_entries(

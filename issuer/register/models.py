@@ -38,6 +38,12 @@ NAMING = {
 #: code statuses
 ISSUED = "issued"
 VOIDED = "voided"
+#: held back for a while (a card reported lost that may turn up); reinstate or replace
+SUSPENDED = "suspended"
+#: never stored: an issued code past its ``valid_until`` answers so (the clock decides)
+EXPIRED = "expired"
+#: what a series warns at when it fills past these percentages, unless it says otherwise
+DEFAULT_FILL_LEVELS = "80,95"
 
 #: series modes
 SEQUENTIAL = "sequential"
@@ -64,6 +70,11 @@ class UTCDateTime(TypeDecorator[datetime]):
         if value.tzinfo is None:
             return value.replace(tzinfo=UTC)  # type: ignore[no-any-return]
         return value.astimezone(UTC)  # type: ignore[no-any-return]
+
+
+#: folded holder/note text for prefix search; byte order (collation "C") on PostgreSQL so
+#: a prefix range is an index range whatever the database's locale
+SEARCH_KEY = String(200).with_variant(String(200, collation="C"), "postgresql")
 
 
 class Base(DeclarativeBase):
@@ -102,6 +113,10 @@ class Series(Base):
     #: whether holders are people (member cards), which makes them personal data, or
     #: places and things (a workshop shelf): the personal-data caution follows this
     holds_people: Mapped[bool] = mapped_column(Boolean, default=False, server_default=false())
+    #: how long a newly issued code stays valid, in days; None: no end
+    valid_for_days: Mapped[int | None] = mapped_column(Integer, default=None)
+    #: percentages of the capacity at which issuing warns, ascending, comma-separated
+    fill_levels: Mapped[str] = mapped_column(String(32), default=DEFAULT_FILL_LEVELS)
 
 
 class Batch(Base):
@@ -149,6 +164,17 @@ class IssuedCode(Base):
     #: where the item carrying this code belongs (shelf, room); a count seeing it
     #: anywhere else reports it as found elsewhere
     expected_where: Mapped[str | None] = mapped_column(String(200), default=None)
+    #: holder and note folded for search (see :func:`issuer.register.standing.search_key`);
+    #: erased together with the texts they come from
+    holder_key: Mapped[str | None] = mapped_column(SEARCH_KEY, default=None, index=True)
+    note_key: Mapped[str | None] = mapped_column(SEARCH_KEY, default=None, index=True)
+    #: the last instant the code is valid; None: valid until voided
+    valid_until: Mapped[datetime | None] = mapped_column(UTCDateTime(), default=None)
+    suspended_at: Mapped[datetime | None] = mapped_column(UTCDateTime(), default=None)
+    suspended_by: Mapped[str | None] = mapped_column(String(120), default=None)
+    suspend_reason: Mapped[str | None] = mapped_column(Text, default=None)
+    #: when holder and note were last erased (the texts are gone; the act is logged)
+    erased_at: Mapped[datetime | None] = mapped_column(UTCDateTime(), default=None)
 
 
 class LogEntry(Base):

@@ -24,7 +24,7 @@ from sqlalchemy.orm import Session
 from issuer.errors import Conflict, InvalidFormat, NotFound
 from issuer.register.lifecycle import find_code, require_reason
 from issuer.register.log import NewEntry, append_entries
-from issuer.register.models import SCATTERED, VOIDED, Batch, IssuedCode, Series
+from issuer.register.models import SCATTERED, SUSPENDED, VOIDED, Batch, IssuedCode, Series
 from issuer.register.series import code_format, get_series
 from issuer.register.store import Register
 
@@ -240,15 +240,23 @@ def select_for_printing(
         else:
             assert series is not None
             rows, words = _by_series(session, series, first, last)
+    suspended = [row.display for row in rows if row.status == SUSPENDED]
+    if suspended and void != VOID_OMIT:
+        raise Conflict(
+            f"{len(suspended)} suspended code{'s' if len(suspended) != 1 else ''} in {words}: "
+            f"{_named(suspended)}; a suspended code is not printed (reinstate it, or replace it "
+            "for a new code), or leave it out (--without-void)"
+        )
+    rows = [row for row in rows if row.status != SUSPENDED]
     voided = [row.display for row in rows if row.void]
-    omitted: tuple[str, ...] = ()
+    omitted: tuple[str, ...] = tuple(suspended)
     if voided and void == VOID_REFUSE:
         raise VoidedInSelection(
             f"{len(voided)} voided code{'s' if len(voided) != 1 else ''} in {words}: "
             f"{_named(voided)}; voided codes are printed only when asked for, marked VOID"
         )
     if voided and void == VOID_OMIT:
-        omitted = tuple(voided)
+        omitted += tuple(voided)
         rows = [row for row in rows if not row.void]
     if not rows:
         left_out = f" once its {len(omitted)} voided code(s) are left out" if omitted else ""
@@ -319,6 +327,9 @@ def record_prints(
         missing = [code for code in codes if code not in stored]
         if missing:
             raise NotFound(f"not in this register: {_named(missing)}")
+        held_back = [code for code in codes if stored[code][2] == SUSPENDED]
+        if held_back:
+            raise Conflict(f"suspended meanwhile, so not printed: {_named(held_back)}; nothing was recorded")
         voided = [code for code in codes if stored[code][2] == VOIDED and code not in marked]
         if voided:
             raise Conflict(

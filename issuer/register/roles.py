@@ -5,8 +5,13 @@ Two group roles, and the log append-only for both:
 * the **clerk** issues, checks, reprints and reconciles: it reads everything, adds
   batches, codes and log entries, and may move only the columns those acts move (a
   series' counters, the log head, a code's print count and last sighting);
-* the **admin** also defines series, voids, replaces, restores and imports: more
-  columns of ``series`` and ``issued_code`` may change.
+* the **admin** also defines series, voids, replaces, restores and imports, erases and
+  purges holders, suspends and reinstates: more columns of ``series`` and
+  ``issued_code`` may change.
+
+The clerk may set and clear a code's holder and note and renew its validity; erasing
+writes ``erased_at`` and suspending writes ``status`` and ``suspended_*``, columns only
+the admin may move.
 
 Neither may UPDATE, DELETE or TRUNCATE ``log_entry``. A trigger refuses those acts to
 every role — the table's owner and superusers included — so even the account that runs
@@ -58,7 +63,11 @@ CLERK_POLICY: dict[str, TableGrants] = {
     "series": TableGrants(update=("next_counter", "code_count")),
     "batch": TableGrants(insert=True),
     "issued_code": TableGrants(
-        insert=True, update=("print_count", "last_seen_at", "last_seen_where", "expected_where")
+        insert=True,
+        update=(
+            "print_count", "last_seen_at", "last_seen_where", "expected_where",
+            "holder", "holder_key", "note", "note_key", "valid_until",  # holder set/clear, renew
+        ),
     ),
     "log_entry": TableGrants(insert=True),
     "log_head": TableGrants(update=("last_id", "last_hash")),
@@ -73,7 +82,7 @@ ADMIN_POLICY: dict[str, TableGrants] = {
         update=(
             "key", "title", "scheme", "alphabet", "length", "prefix", "suffix", "grouping",
             "separator", "mode", "range_start", "range_end", "next_counter", "code_count",
-            "imported_count",
+            "imported_count", "valid_for_days", "fill_levels",
         ),
     ),
     "batch": TableGrants(insert=True),
@@ -83,12 +92,16 @@ ADMIN_POLICY: dict[str, TableGrants] = {
             "status", "holder", "note", "void_reason", "voided_at", "voided_by",
             "replaces_id", "replaced_by_id", "print_count", "last_seen_at", "last_seen_where",
             "expected_where",
+            "holder_key", "note_key", "valid_until", "erased_at",
+            "suspended_at", "suspended_by", "suspend_reason",
         ),
     ),
     "log_entry": TableGrants(insert=True),
     "log_head": TableGrants(update=("last_id", "last_hash")),
     "alembic_version": TableGrants(),
     **COUNT_GRANTS,
+    # erasure also clears a holder named as a count's scope
+    "stock_count": TableGrants(insert=True, update=("state", "closed_at", "closed_by", "result", "scope_text")),
 }
 
 
@@ -194,9 +207,9 @@ def roles_statements(
         "-- start from nothing, so running this again converges",
         f"REVOKE ALL ON ALL TABLES IN SCHEMA {on_schema} FROM PUBLIC, {roles};",
         f"REVOKE ALL ON ALL SEQUENCES IN SCHEMA {on_schema} FROM PUBLIC, {roles};",
-        f"-- clerk {clerk}: issue, check, reprint, reconcile",
+        f"-- clerk {clerk}: issue, check, reprint, reconcile, holder set/clear, renew",
         *_grant_lines(clerk, schema, CLERK_POLICY, tables),
-        f"-- admin {admin}: the clerk's acts, series definition, void, replace, restore, import",
+        f"-- admin {admin}: the clerk's acts, series, void, replace, restore, import, erase, suspend",
         *_grant_lines(admin, schema, ADMIN_POLICY, tables),
         "-- new codes, batches and series take ids from sequences",
         f"GRANT USAGE ON ALL SEQUENCES IN SCHEMA {on_schema} TO {roles};",

@@ -5,6 +5,7 @@ from __future__ import annotations
 import re
 import threading
 from dataclasses import dataclass
+from datetime import datetime
 from functools import lru_cache
 from typing import TYPE_CHECKING
 
@@ -15,8 +16,18 @@ from issuer import limits
 from issuer.checking.codes import CodeFormat, normalise_affix
 from issuer.checking.schemes import get_scheme
 from issuer.errors import Conflict, InvalidFormat, NotFound, OutOfLimits, did_you_mean
+from issuer.register.fill import level_reached, levels_text, series_levels
 from issuer.register.log import NewEntry, append_entry
-from issuer.register.models import ISSUED, SCATTERED, SEQUENTIAL, VOIDED, IssuedCode, Series
+from issuer.register.models import (
+    ISSUED,
+    SCATTERED,
+    SEQUENTIAL,
+    SUSPENDED,
+    VOIDED,
+    IssuedCode,
+    Series,
+)
+from issuer.register.standing import period_text
 
 if TYPE_CHECKING:
     from issuer.register.store import Register
@@ -46,6 +57,10 @@ class SeriesSpec:
     title: str = ""
     #: holders are people (personal data); None: yes for a scattered series, no otherwise
     holds_people: bool | None = None
+    #: how long each new code stays valid, in days (0 or None: no end)
+    valid_for_days: int | None = None
+    #: percentages of the capacity at which issuing warns
+    fill_levels: tuple[int, ...] = (80, 95)
 
 
 @lru_cache(maxsize=256)
@@ -233,6 +248,8 @@ def add_series(register: Register, spec: SeriesSpec) -> Series:
             created_at=register.clock(),
             created_by=register.actor,
             holds_people=spec.mode == SCATTERED if spec.holds_people is None else spec.holds_people,
+            valid_for_days=spec.valid_for_days or None,
+            fill_levels=levels_text(spec.fill_levels),
         )
         session.add(series)
         session.flush()
@@ -252,6 +269,8 @@ def add_series(register: Register, spec: SeriesSpec) -> Series:
                     "end": end,
                     "title": series.title,
                     "holds_people": series.holds_people,
+                    "valid_for_days": series.valid_for_days,
+                    "fill_levels": series.fill_levels,
                 },
             ),
             actor=register.actor,
@@ -268,11 +287,13 @@ def _spec_of(series: Series) -> SeriesSpec:
         prefix=series.prefix, suffix=series.suffix, mode=series.mode, start=series.range_start,
         end=series.range_end, group=tuple(int(g) for g in series.grouping.split(",") if g),
         sep=series.separator, title=series.title, holds_people=series.holds_people,
+        valid_for_days=series.valid_for_days, fill_levels=series_levels(series),
     )  # fmt: skip
 
 
 #: what may change after a series' first code: nothing on a printed label or in a code
-_ANY_TIME = frozenset(("title", "holds_people"))
+#: what may change after the first code: none of these alters a code already issued
+_ANY_TIME = frozenset(("title", "holds_people", "valid_for_days", "fill_levels"))
 
 
 def change_series(register: Register, key: str, **changes: object) -> Series:
@@ -324,6 +345,8 @@ def change_series(register: Register, key: str, **changes: object) -> Series:
                 series.scatter_key = new_key() if spec.mode == SCATTERED else None
         series.title = spec.title
         series.holds_people = bool(spec.holds_people)
+        series.valid_for_days = spec.valid_for_days or None
+        series.fill_levels = levels_text(spec.fill_levels)
         session.flush()
         append_entry(
             session,
@@ -392,12 +415,19 @@ class SeriesState:
     example: str
     protected: bool | None
     holds_people: bool = False
+    suspended: int = 0
+    #: issued codes past their validity at the time asked (None: not counted)
+    expired: int | None = None
+    valid_for: str | None = None
+    fill_levels: tuple[int, ...] = ()
+    #: the highest warning level the series has reached, if any
+    fill_level: int | None = None
 
     def as_dict(self) -> dict[str, object]:
         return dict(self.__dict__)
 
 
-def series_state(session: Session, series: Series) -> SeriesState:
+def series_state(session: Session, series: Series, now: datetime | None = None) -> SeriesState:
     shape = code_format(series)
     counts: dict[str, int] = {
         status: int(number)
@@ -409,6 +439,14 @@ def series_state(session: Session, series: Series) -> SeriesState:
     }
     total = capacity(series)
     remaining = total - series.code_count
+    expired = None
+    if now is not None:
+        expired = int(session.scalar(
+            select(func.count()).where(
+                IssuedCode.series_id == series.id, IssuedCode.status == ISSUED, IssuedCode.valid_until < now
+            )
+        ) or 0)  # fmt: skip
+    levels = series_levels(series)
     next_code = None
     protected: bool | None = None
     if series.mode == SEQUENTIAL and remaining > 0:
@@ -436,4 +474,9 @@ def series_state(session: Session, series: Series) -> SeriesState:
         example=shape.display(shape.code_for_base(series.range_start)),
         protected=protected,
         holds_people=series.holds_people,
+        suspended=int(counts.get(SUSPENDED, 0)),
+        expired=expired,
+        valid_for=period_text(series.valid_for_days),
+        fill_levels=levels,
+        fill_level=level_reached(levels, total, series.code_count),
     )

@@ -20,7 +20,7 @@ from sqlalchemy.orm import Session, aliased
 
 from issuer.register.driver import bind_value, driver_rows, execute_many
 from issuer.register.log import NewEntry, append_entries, timestamp_text
-from issuer.register.models import ISSUED, VOIDED, IssuedCode, Series
+from issuer.register.models import ISSUED, SUSPENDED, VOIDED, IssuedCode, Series
 from issuer.register.series import code_format, get_series
 from issuer.register.store import Register
 
@@ -233,19 +233,29 @@ class HeldCodes:
 
     issued: CodeSet
     voided: CodeSet
+    suspended: CodeSet
+    #: the issued codes past their validity at the time asked (a part of ``issued``)
+    expired: CodeSet
 
 
-def held_codes(session: Session, series: Series) -> HeldCodes:
-    """The series' issued and voided codes in one round trip: the database joins each
-    set into one text, so a million codes cost no million row objects (nor strings)."""
+def held_codes(session: Session, series: Series, now: datetime | None = None) -> HeldCodes:
+    """The series' issued, voided and suspended codes (and which issued ones have expired
+    at ``now``) in one round trip: the database joins each set into one text, so a
+    million codes cost no million row objects (nor strings)."""
     dialect = session.get_bind().dialect.name
     join = "group_concat({}, char(10))" if dialect == "sqlite" else "string_agg({}, chr(10))"
     issued = join.format(f"CASE WHEN status = '{ISSUED}' THEN code END")
     voided = join.format(f"CASE WHEN status = '{VOIDED}' THEN code END")
+    suspended = join.format(f"CASE WHEN status = '{SUSPENDED}' THEN code END")
+    expired = join.format(f"CASE WHEN status = '{ISSUED}' AND valid_until < ? THEN code END")
     # on SQLite '+series_id' reads the table in order instead of through an index
     where = "+series_id" if dialect == "sqlite" else "series_id"
-    ((issued_text, voided_text),) = driver_rows(
-        session, f"SELECT {issued}, {voided} FROM issued_code WHERE {where} = ?", (series.id,)
+    column = IssuedCode.__table__.c.valid_until
+    moment = bind_value(session, column, now) if now is not None else None  # type: ignore[arg-type]
+    ((issued_text, voided_text, suspended_text, expired_text),) = driver_rows(
+        session,
+        f"SELECT {issued}, {voided}, {suspended}, {expired} FROM issued_code WHERE {where} = ?",
+        (moment, series.id),
     )
     shape = code_format(series)
     symbols = shape.scheme.alphabet.symbols + shape.scheme.check_alphabet.symbols
@@ -253,7 +263,31 @@ def held_codes(session: Session, series: Series) -> HeldCodes:
     return HeldCodes(
         CodeSet.from_lines(issued_text, **form),
         CodeSet.from_lines(voided_text, **form),
+        CodeSet.from_lines(suspended_text, **form),
+        CodeSet.from_lines(expired_text, **form),
     )
+
+
+@dataclass(frozen=True)
+class StandingDetail:
+    """Why a code found in a stocktake is not simply in use."""
+
+    valid_until: datetime | None
+    suspended_at: datetime | None
+    suspend_reason: str | None
+
+
+def standing_details(session: Session, codes: Iterable[str]) -> dict[str, StandingDetail]:
+    """Validity and suspension of each of ``codes``."""
+    wanted = list(dict.fromkeys(codes))
+    found: dict[str, StandingDetail] = {}
+    for at in range(0, len(wanted), IN_CHUNK):
+        statement = select(
+            IssuedCode.code, IssuedCode.valid_until, IssuedCode.suspended_at, IssuedCode.suspend_reason
+        ).where(IssuedCode.code.in_(wanted[at: at + IN_CHUNK]))
+        for code, until, since, reason in session.execute(statement):
+            found[code] = StandingDetail(until, since, reason)
+    return found
 
 
 @dataclass(frozen=True)
@@ -373,11 +407,13 @@ __all__ = [
     "HeldCodes",
     "LastSeen",
     "Sighting",
+    "StandingDetail",
     "VoidDetail",
     "held_codes",
     "last_seen",
     "record_sightings",
     "write_sightings",
     "series_codes",
+    "standing_details",
     "void_details",
 ]

@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import json
 from collections.abc import Callable, Sequence
+from datetime import datetime
 from typing import IO, Any
 
 from sqlalchemy import ColumnElement, Select, String, case, func, literal, select, type_coerce
@@ -22,12 +23,12 @@ from sqlalchemy.orm import Session, aliased
 from issuer.errors import InvalidFormat, NotFound
 from issuer.limits import json_safe
 from issuer.register.driver import stream_rows
-from issuer.register.models import ISSUED, VOIDED, Batch, IssuedCode, Series
+from issuer.register.models import EXPIRED, ISSUED, SUSPENDED, VOIDED, Batch, IssuedCode, Series
 from issuer.register.series import code_format, get_series
 from issuer.register.store import Register
 
 FORMATS = ("csv", "json", "jsonl")
-STATUS_CHOICES = ("issued", "voided", "all")
+STATUS_CHOICES = ("issued", "expired", "suspended", "voided", "all")
 #: rows fetched from the server per round
 FETCH_ROWS = 10_000
 
@@ -35,6 +36,7 @@ FETCH_ROWS = 10_000
 EXPORT_COLUMNS = (
     "code", "display", "status", "issued_at", "issued_by", "holder", "note",
     "voided_at", "voided_by", "void_reason", "replaces", "last_seen_at", "last_seen_where",
+    "valid_until", "suspended_at", "suspend_reason",
 )  # fmt: skip
 
 
@@ -87,15 +89,21 @@ def _series_filter(series: Series, dialect: str) -> ColumnElement[bool]:
     return IssuedCode.series_id == series.id
 
 
-def export_statement(series: Series, status: str, dialect: str, batch: int | None = None) -> Select[Any]:
+def export_statement(
+    series: Series, status: str, dialect: str, batch: int | None = None, now: datetime | None = None
+) -> Select[Any]:
+    """The export's rows; with ``now``, an issued code past its validity is written as
+    expired (import reads it back as issued, with its validity)."""
     if status not in STATUS_CHOICES:
         raise InvalidFormat(f"--status must be one of {', '.join(STATUS_CHOICES)}, not {status!r}")
     replaced = aliased(IssuedCode)
+    past = (IssuedCode.status == ISSUED) & (IssuedCode.valid_until < now) if now is not None else None
+    shown_status = case((past, literal(EXPIRED, String)), else_=IssuedCode.status) if past is not None else IssuedCode.status
     statement = (
         select(
             IssuedCode.code,
             _display(series),
-            IssuedCode.status,
+            shown_status,
             _utc_text(IssuedCode.issued_at, dialect),
             IssuedCode.issued_by,
             IssuedCode.holder,
@@ -106,6 +114,9 @@ def export_statement(series: Series, status: str, dialect: str, batch: int | Non
             replaced.code,
             _utc_text(IssuedCode.last_seen_at, dialect),
             IssuedCode.last_seen_where,
+            _utc_text(IssuedCode.valid_until, dialect),
+            _utc_text(IssuedCode.suspended_at, dialect),
+            IssuedCode.suspend_reason,
         )
         .outerjoin(replaced, replaced.id == IssuedCode.replaces_id)
         .where(_series_filter(series, dialect))
@@ -113,8 +124,12 @@ def export_statement(series: Series, status: str, dialect: str, batch: int | Non
     )
     if status == "issued":
         statement = statement.where(IssuedCode.status == ISSUED)
-    elif status == "voided":
-        statement = statement.where(IssuedCode.status == VOIDED)
+        if past is not None:
+            statement = statement.where(~past | IssuedCode.valid_until.is_(None))
+    elif status == "expired":
+        statement = statement.where(past if past is not None else IssuedCode.id.is_(None))
+    elif status in (VOIDED, SUSPENDED):
+        statement = statement.where(IssuedCode.status == status)
     if batch is not None:
         statement = statement.where(IssuedCode.batch_id == batch)
     return statement
@@ -136,8 +151,9 @@ def count_codes(register: Register, key: str, status: str = "all", *, batch: int
         _require_batch(session, series, batch)
         statement = select(func.count()).select_from(IssuedCode).where(IssuedCode.series_id == series.id)
         if status != "all":
-            statement = statement.where(IssuedCode.status == status)
-        if batch is not None:
+            inner = export_statement(series, status, session.get_bind().dialect.name, batch, register.clock())
+            statement = select(func.count()).select_from(inner.subquery())
+        elif batch is not None:
             statement = statement.where(IssuedCode.batch_id == batch)
         return int(session.scalar(statement) or 0)
 
@@ -193,7 +209,7 @@ def export_codes(
     with register.reading() as session:
         series = get_series(session, key)
         _require_batch(session, series, batch)
-        statement = export_statement(series, status, session.get_bind().dialect.name, batch)
+        statement = export_statement(series, status, session.get_bind().dialect.name, batch, register.clock())
         for part in stream_rows(session, statement, FETCH_ROWS):  # no ORM or Core work per row
             writer.rows(part)
             written += len(part)
@@ -203,9 +219,11 @@ def export_codes(
     return written
 
 
-def export_session_rows(session: Session, series: Series, status: str = "all") -> list[tuple[Any, ...]]:
+def export_session_rows(
+    session: Session, series: Series, status: str = "all", now: datetime | None = None
+) -> list[tuple[Any, ...]]:
     """Every exported row of a series as tuples (for tests and small series)."""
-    statement = export_statement(series, status, session.get_bind().dialect.name)
+    statement = export_statement(series, status, session.get_bind().dialect.name, now=now)
     return [tuple(row) for row in session.execute(statement)]
 
 

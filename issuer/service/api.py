@@ -165,7 +165,7 @@ def check_many(body: CheckBody, state: StateDep, caller: CallerDep) -> list[dict
 
     require(caller, "read")
     with state.register.reading() as session:
-        return _jsonable([answer.as_dict() for answer in check_codes(session, body.codes)])
+        return _jsonable([answer.as_dict() for answer in check_codes(session, body.codes, state.register.clock())])
 
 
 @router.get("/check/{code}", summary="Check one code")
@@ -176,7 +176,7 @@ def check_one(code: str, state: StateDep, caller: CallerDep) -> dict[str, Any]:
     if len(code) > 200:
         raise HTTPException(422, "a code is at most 200 characters")
     with state.register.reading() as session:
-        return _jsonable(check_codes(session, [code])[0].as_dict())
+        return _jsonable(check_codes(session, [code], state.register.clock())[0].as_dict())
 
 
 @router.get("/codes/{code}/history", summary="A code's record and every logged event about it")

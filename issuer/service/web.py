@@ -90,7 +90,7 @@ def _desk(request: Request, web: WebSession, *, code: str | None = None, message
     answer = None
     with state.register.reading() as session:
         if code is not None and code.strip():
-            answer = check_codes(session, [code[:200]])[0]
+            answer = check_codes(session, [code[:200]], state.register.clock())[0]
         series = [{"key": s.key, "title": s.title} for s in all_series(session)]
     may = {act: caller.may(act) for act in ("issue", "void", "replace", "reprint")}
     context = {

@@ -44,20 +44,28 @@ from issuer.errors import InvalidFormat, OutOfLimits
 from issuer.readers.bulkread import BAD_CHECK, MALFORMED, read_codes
 from issuer.readers.scanfile import Table, read_table
 from issuer.register.counting import CountInfo, scope_query_filter
-from issuer.register.models import ISSUED, VOIDED
+from issuer.register.models import EXPIRED, ISSUED, SUSPENDED, VOIDED
 from issuer.register.places import codes_of_other_series, expected_places, same_place, scope_codes
 from issuer.register.series import code_format, get_series
-from issuer.register.stocktake import CodeSet, Sighting, held_codes, last_seen, record_sightings, void_details
+from issuer.register.stocktake import (
+    CodeSet,
+    Sighting,
+    held_codes,
+    last_seen,
+    record_sightings,
+    standing_details,
+    void_details,
+)
 from issuer.register.store import Register
 from issuer.stocktake.results import (
     COUNT_KEYS,
     LINE_CLASSES,
     Likely,
     MissingCode,
-    close_advice,
     Reconciliation,
     ScanLine,
     Tally,
+    close_advice,
 )
 from issuer.stocktake.zones import parse_scan_time, zone_named
 
@@ -137,19 +145,22 @@ def reconcile(
     with register.reading() as session:
         series = get_series(session, key)
         shape = code_format(series)
-        held = held_codes(session, series)
-        issued, voided = held.issued, held.voided
+        held = held_codes(session, series, register.clock())
+        issued, voided, suspended, expired = held.issued, held.voided, held.suspended, held.expired
         read = read_codes(shape, table.codes)
         canonical, fixed = read.canonical, read.fixed
         readable = read.state != MALFORMED
         # one class per line, worked out over whole arrays
         in_issued = issued.contains(fixed) & readable
+        in_expired = expired.contains(fixed) & in_issued
         in_voided = voided.contains(fixed) & readable & ~in_issued
+        in_suspended = suspended.contains(fixed) & readable & ~in_issued & ~in_voided
         kinds = np.select(
-            [read.state == MALFORMED, read.state == BAD_CHECK, in_issued, in_voided], [0, 1, 2, 3], 4
+            [read.state == MALFORMED, read.state == BAD_CHECK, in_expired, in_issued, in_voided, in_suspended],
+            [0, 1, 5, 2, 3, 6], 4,
         ).astype(np.int8)
-        del in_issued, in_voided
-        names = ("malformed", "bad_check", ISSUED, VOIDED, "not_issued")
+        del in_issued, in_voided, in_expired, in_suspended
+        names = ("malformed", "bad_check", ISSUED, VOIDED, "not_issued", EXPIRED, SUSPENDED)
         statuses = [names[kind] for kind in kinds.tolist()]
         expected = issued
         if count is not None and count.scope != "all":
@@ -160,6 +171,10 @@ def reconcile(
         times = Tally(fixed[readable], issued)
         voided_seen = voided.codes(times.codes.contains_keys(voided.array))
         voids = void_details(session, voided_seen)
+        held_back = [*expired.codes(times.codes.contains_keys(expired.array)),
+                     *suspended.codes(times.codes.contains_keys(suspended.array))]  # fmt: skip
+        standings = standing_details(session, held_back) if held_back else {}
+        # a suspended code (a card reported lost) is not among those expected on the shelf
         missing = expected.codes(~times.codes.contains_keys(expected.array))
         seen_before = last_seen(session, series) if missing else {}
     away = _away(canonical, seen, places)
@@ -174,7 +189,10 @@ def reconcile(
         elif index in others:
             statuses[index] = "other_series"
     scanned = times.codes.array
-    unknown = set(times.codes.codes(~issued.contains_keys(scanned) & ~voided.contains_keys(scanned)))  # bad check, never issued
+    # bad check, never issued
+    unknown = set(times.codes.codes(
+        ~issued.contains_keys(scanned) & ~voided.contains_keys(scanned) & ~suspended.contains_keys(scanned)
+    ))  # fmt: skip
     unknown.difference_update(canonical[index] for index in others)
     first_line: dict[str, int] = {}
     if unknown:
@@ -228,6 +246,7 @@ def reconcile(
         zone=zone,
         expected=len(expected),
         found=len(expected) - len(missing),
+        standings=standings,
     )
 
 
@@ -265,7 +284,7 @@ def sightings(recon: Reconciliation) -> list[Sighting]:
     for index, (number, code, status) in enumerate(
         zip(recon.table.lines, recon.canonical, recon.statuses)
     ):
-        if status not in (ISSUED, VOIDED, "elsewhere", "out_of_scope") or code is None:
+        if status not in (ISSUED, EXPIRED, SUSPENDED, VOIDED, "elsewhere", "out_of_scope") or code is None:
             continue
         when = None
         if times_text is not None and times_text[index]:

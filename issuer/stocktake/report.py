@@ -114,6 +114,12 @@ def _entry(recon: Reconciliation, index: int, line: ScanLine) -> dict[str, Any]:
         entry["scanned"] = line.scanned
         entry["likely"] = [item.as_dict() for item in line.likely]
         entry["advice"] = close_advice(line.likely)
+    elif line.status in ("expired", "suspended"):
+        held = recon.standings.get(line.code)  # type: ignore[arg-type]
+        entry["valid_until"] = iso(held.valid_until) if held else None
+        if line.status == "suspended":
+            entry["since"] = iso(held.suspended_at) if held else None
+            entry["reason"] = held.suspend_reason if held else None
     return entry
 
 

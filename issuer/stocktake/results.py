@@ -13,16 +13,17 @@ from issuer.checking.likely import advice
 from issuer.readers.scanfile import Table
 from issuer.register.models import ISSUED, VOIDED
 from issuer.register.places import OtherSeries
-from issuer.register.stocktake import CodeSet, LastSeen, VoidDetail
+from issuer.register.stocktake import CodeSet, LastSeen, StandingDetail, VoidDetail
 
 #: the classes of a scanned line, in report order
 LINE_CLASSES = (
-    "issued", "elsewhere", "out_of_scope", "voided", "other_series", "bad_check", "not_issued", "malformed",
+    "issued", "elsewhere", "out_of_scope", "expired", "suspended", "voided", "other_series", "bad_check",
+    "not_issued", "malformed",
 )  # fmt: skip
 #: the keys of ``counts`` that say something is to be looked at (all but ``issued``)
 COUNT_KEYS = (
-    "issued", "elsewhere", "out_of_scope", "voided", "other_series", "bad_check", "not_issued", "malformed",
-    "duplicates", "missing",
+    "issued", "elsewhere", "out_of_scope", "expired", "suspended", "voided", "other_series", "bad_check",
+    "not_issued", "malformed", "duplicates", "missing",
 )  # fmt: skip
 #: lines that are not scans, counted alike in every file format
 NOTE_KEYS = ("blank_lines", "comment_lines")
@@ -31,6 +32,8 @@ MEANINGS = {
     "issued": "in use, and found where expected",
     "elsewhere": "found, but not at its expected place",
     "out_of_scope": "issued in this series, but outside this count",
+    "expired": "past its validity: collect or renew",
+    "suspended": "suspended (reported lost?), found again",
     "voided": "voided: should have been pulled",
     "other_series": "a code of another series",
     "bad_check": "check character wrong: misread or mistyped",
@@ -155,6 +158,8 @@ class Reconciliation:
     #: expected codes (the scope's issued codes) and how many of them were found
     expected: int = 0
     found: int = 0
+    #: validity and suspension of the expired and suspended codes found
+    standings: dict[str, StandingDetail] = field(default_factory=dict, repr=False)
 
     @property
     def time_column(self) -> str | None:
@@ -179,6 +184,14 @@ class Reconciliation:
                 return "voided"
             text = f"voided: {void.reason}" if void.reason else "voided"
             return f"{text}; replaced by {void.replacement}" if void.replacement else text
+        if status in ("expired", "suspended") and code is not None:
+            held = self.standings.get(code)
+            if held is None:
+                return status
+            if status == "expired":
+                return f"expired: valid until {held.valid_until:%Y-%m-%d %H:%M} UTC" if held.valid_until else "expired"
+            since = f" since {held.suspended_at:%Y-%m-%d %H:%M} UTC" if held.suspended_at else ""
+            return f"suspended{since}: {held.suspend_reason}"
         if status == "bad_check":
             return "the check character does not match: a misread or mistyped code"
         if status == "not_issued":

@@ -210,15 +210,18 @@ def test_doctor_finds_what_was_broken(register_url: str, breakage: str) -> None:
 
 
 def test_doctor_finds_a_damaged_file(cli: Any, db_path: Path) -> None:
-    fill(str(db_path))
+    codes = fill(str(db_path))
     with sqlite3.connect(db_path) as connection:
         connection.execute("PRAGMA wal_checkpoint(TRUNCATE)")
     data = bytearray(db_path.read_bytes())
     size = 4096
-    # flip one bit in a key near the end of an index leaf page (page type 0x0a)
-    leaves = [page for page in range(1, len(data) // size) if data[page * size] == 0x0A]
-    page = leaves[len(leaves) // 2]
-    data[(page + 1) * size - 3] ^= 0x01
+    # flip one bit of a code's text where an index leaf page (type 0x0a) keeps it
+    needle = codes[60].encode("ascii")
+    spots = [
+        at for at in range(len(data)) if data[at: at + len(needle)] == needle and data[at - at % size] == 0x0A
+    ]
+    assert spots
+    data[spots[0] + 2] ^= 0x01
     db_path.write_bytes(bytes(data))
     result = cli("doctor", "--json")
     assert result.exit_code == 1

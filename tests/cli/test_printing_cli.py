@@ -261,7 +261,7 @@ def test_voided_code_refused_unless_asked_for(cli: Any, db_path: Path, folder: P
 
     left_out = folder / "without.pdf"
     result = _ok(cli("labels", "--batch", str(batch), "--out", str(left_out), "--without-void"))
-    assert "Left out 1 voided code" in " ".join(result.stdout.split())
+    assert "Left out 1 voided or suspended code" in " ".join(result.stdout.split())
     assert in_sheet_order(left_out, "a4-3x8") == codes[:3] + codes[4:]
     _refused(
         cli("labels", "--batch", str(batch), "--out", str(folder / "x.pdf"), "--void-labels",

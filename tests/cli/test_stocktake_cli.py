@@ -99,7 +99,7 @@ def test_json_output_only_json_and_exit_zero_when_clean(cli: Any, tags: list[str
     result = cli("reconcile", "tools", str(path), "--json")
     assert result.exit_code == 0, result.output
     data = json.loads(result.stdout)
-    assert data["counts"] == {"issued": 7, "voided": 0, "bad_check": 0, "not_issued": 0, "malformed": 0,
+    assert data["counts"] == {"issued": 7, "expired": 0, "suspended": 0, "voided": 0, "bad_check": 0, "not_issued": 0, "malformed": 0,
                               "duplicates": 0, "missing": 0, "elsewhere": 0, "out_of_scope": 0,
                               "other_series": 0, "blank_lines": 0, "comment_lines": 0}
     assert [entry["code"] for entry in data["issued"]] == tags[:7]

@@ -98,11 +98,11 @@ def test_codes_stream_to_a_csv_written_whole(register: Register, tmp_path: Path)
         result = issue_codes(register, "tools", 300, collect=False, sink=sink)
     with out.open(newline="") as stream:
         rows = list(csv.reader(stream))
-    assert rows[0] == ["code", "display", "base", "series", "batch"]
+    assert rows[0] == ["code", "display", "base", "series", "batch", "holder"]
     assert len(rows) == 301
     codes = [row[0] for row in stored(register, "tools")]
     assert [row[0] for row in rows[1:]] == codes
-    assert rows[1][1:] == [f"QTL-{codes[0][3:7]}-{codes[0][7:]}", "1", "tools", str(result.batch)]
+    assert rows[1][1:] == [f"QTL-{codes[0][3:7]}-{codes[0][7:]}", "1", "tools", str(result.batch), ""]
     # small batches reach the sink too
     small = tmp_path / "small.csv"
     with CodesCsv(small) as sink:

@@ -192,7 +192,7 @@ def test_out_of_range_and_bad_fields_are_refused(register: Register, tmp_path: P
         import_codes(register, "tools", read_table(path, roles=IMPORT_ROLES))
     message = str(caught.value)
     assert f"line 2: {luhn_code('QTL', '0000050')} lies outside the series' range 100..999" in message
-    assert "line 3: status must be issued or voided, not 'lost'" in message
+    assert "line 3: status must be issued, expired, suspended or voided, not 'lost'" in message
     assert "line 4: voided_at is given but the status is not voided" in message
     assert "line 5: voided_at 'yesterday' is not a date" in message
 

@@ -104,6 +104,8 @@ def test_a_count_over_three_files_from_two_scanners(register: Register, planted:
     assert status.found == 29 - len(planted["missing"])
     assert status.counts == {
         "issued": 10,  # tags 0-2, 4 (A) and 10-15 (B); tag 1 twice
+        "expired": 0,
+        "suspended": 0,
         "elsewhere": 1,  # tag 3: expected on Shelf A, seen on Shelf B
         "out_of_scope": 1,  # tag 35
         "voided": 1,

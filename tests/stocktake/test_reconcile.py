@@ -129,6 +129,8 @@ def plant(register: Register) -> Planted:
                      if code not in scanned_codes and code not in (issued[30], issued[31]))
     counts = {
         "issued": 20 + 1 + 1,
+        "expired": 0,
+        "suspended": 0,
         "voided": 2,
         "bad_check": sum(1 for row in expected if row["status"] == "bad_check"),
         "not_issued": sum(1 for row in expected if row["status"] == "not_issued"),
@@ -211,7 +213,7 @@ def test_json_carries_counts_and_the_lists(register: Register, planted: Planted,
     recon = reconcile(register, "tools", read_scans(write_scan(tmp_path / "scan.csv", planted.rows)))
     data = json.loads(json.dumps(as_json(recon), default=str))
     assert data["counts"] == planted.counts
-    assert set(data["counts"]) == {"issued", "voided", "bad_check", "not_issued", "malformed", "duplicates", "missing",
+    assert set(data["counts"]) == {"issued", "expired", "suspended", "voided", "bad_check", "not_issued", "malformed", "duplicates", "missing",
                                    "elsewhere", "out_of_scope", "other_series", "blank_lines", "comment_lines"}
     for key in ("issued", "voided", "bad_check", "not_issued"):
         want = list(dict.fromkeys(row["code"] for row in planted.expected if row["status"] == key))
@@ -240,7 +242,7 @@ def test_plain_list_and_a_clean_stocktake(register: Register, tmp_path: Path) ->
     scan.write_text("\n".join(codes) + "\n\n")
     recon = reconcile(register, "tools", read_scans(scan))
     assert recon.clean
-    assert recon.counts == {"issued": 12, "voided": 0, "bad_check": 0, "not_issued": 0, "malformed": 0,
+    assert recon.counts == {"issued": 12, "expired": 0, "suspended": 0, "voided": 0, "bad_check": 0, "not_issued": 0, "malformed": 0,
                             "duplicates": 0, "missing": 0, "elsewhere": 0, "out_of_scope": 0, "other_series": 0,
                             "blank_lines": 1, "comment_lines": 0}
     assert [line.line for line in recon.lines()] == list(range(1, 13))
@@ -350,7 +352,7 @@ def test_ten_thousand_scans_cost_a_handful_of_queries(register: Register, tmp_pa
     finally:
         event.remove(register.engine, "before_cursor_execute", count)
     # damm catches every single substitution (common practice: a property of Damm's quasigroup)
-    assert recon.counts == {"issued": 8_999, "voided": 1, "bad_check": 100, "not_issued": 0,
+    assert recon.counts == {"issued": 8_999, "expired": 0, "suspended": 0, "voided": 1, "bad_check": 100, "not_issued": 0,
                             "malformed": 0, "duplicates": 50, "missing": 1_000, "elsewhere": 0,
                             "out_of_scope": 0, "other_series": 0, "blank_lines": 0, "comment_lines": 0}
     assert len(statements) < 20, statements
