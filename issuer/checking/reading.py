@@ -97,6 +97,17 @@ def shown(text: str, limit: int = 40) -> str:
     return "'" + "".join(out) + ("\u2026" if len(text) > limit else "") + "'"
 
 
+def echo(text: str) -> str:
+    """What was typed, as safe to show and to write as JSON: control characters and
+    undecodable bytes as U+FFFD, cut after :data:`MAX_TYPED` characters."""
+    cut = text[:MAX_TYPED]
+    if not cut.isprintable():
+        cut = "".join(
+            "\ufffd" if unicodedata.category(ch) in ("Cc", "Cs") else ch for ch in cut
+        )
+    return cut + ("\u2026" if len(text) > MAX_TYPED else "")
+
+
 def _refuse(ch: str, position: int, what: str) -> InvalidComponent:
     name = unicodedata.name(ch, "")
     named = f"U+{ord(ch):04X}" + (f" {name}" if name else "")
@@ -335,6 +346,7 @@ __all__ = [
     "MAX_TYPED",
     "Read",
     "Reading",
+    "echo",
     "fold_symbols",
     "read_code",
     "shown",

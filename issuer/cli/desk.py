@@ -139,6 +139,9 @@ def desk(
         except (EOFError, KeyboardInterrupt):
             typer.echo()  # the shell's prompt starts on a line of its own
             break
+        except UnicodeDecodeError:  # bytes that are not text: say so and read on
+            out.print("[magenta]not a code[/magenta]  that line is not UTF-8 text")
+            continue
         word = text.strip().lower()
         if not word:
             continue

@@ -13,7 +13,7 @@ from sqlalchemy.orm import Session
 
 from issuer.checking.codes import CodeFormat, normalise_text
 from issuer.checking.likely import Ranked, advice
-from issuer.checking.reading import read_code
+from issuer.checking.reading import echo, read_code
 from issuer.errors import InvalidFormat
 from issuer.register.models import EXPIRED, ISSUED, SUSPENDED, VOIDED, IssuedCode, Series
 from issuer.register.series import all_series, code_format
@@ -142,7 +142,9 @@ def check_codes(
         }
     answers = []
     for text, (readings, problems) in zip(inputs, per_input):
-        answers.append(_answer(session, shapes, text, readings, problems, stored, replacements, now))
+        answer = _answer(session, shapes, text, readings, problems, stored, replacements, now)
+        answer.input = echo(text)  # what was typed, safe to show and to write as JSON
+        answers.append(answer)
     return answers
 
 
