@@ -167,9 +167,10 @@ def replace(
 
     result = replace_code(open_register_from_options(db, actor), code, reason=reason)
     if as_json:
-        print_json({"code": result.code, "replaces": result.replaces, "display": result.display, "batch": result.batch})
+        print_json({"code": result.code, "display": result.display, "replaces": result.replaces,
+                    "replaces_display": result.replaces_display, "batch": result.batch})
     else:
-        console().print(f"Voided {result.replaces}; its replacement is [bold]{result.display}[/bold]")
+        console().print(f"Voided {result.replaces_display}; its replacement is [bold]{result.display}[/bold]")
 
 
 @app.command("restore")
@@ -227,9 +228,9 @@ def history(
     if record.erased_at:
         facts.append(f"holder and note erased {record.erased_at:%Y-%m-%d}")
     if record.replaces:
-        facts.append(f"replaces {record.replaces}")
+        facts.append(f"replaces {record.replaces_display}")
     if record.replaced_by:
-        facts.append(f"replaced by {record.replaced_by}")
+        facts.append(f"replaced by {record.replaced_by_display}")
     if record.last_seen_at:
         facts.append(f"last seen {record.last_seen_at:%Y-%m-%d %H:%M} UTC {record.last_seen_where or ''}".rstrip())
     out.print("; ".join(facts))
@@ -240,5 +241,5 @@ def history(
 
     for event in events:
         table.add_row(str(event.id), f"{event.at:%Y-%m-%d %H:%M:%S}", shown(event.actor), event.action,
-                      shown(_detail_summary(event.detail)))
+                      shown(_detail_summary(event.shown_detail)))
     out.print(table)

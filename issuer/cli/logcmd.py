@@ -85,9 +85,9 @@ def _render_entries(events: list[Any]) -> None:
             shown(event.actor),
             event.action,
             event.series or "",
-            shown(event.code or ""),
+            shown(event.display or ""),
             str(event.batch or ""),
-            shown(_detail_summary(event.detail)),
+            shown(_detail_summary(event.shown_detail)),
         )
     rows.print(console())
 

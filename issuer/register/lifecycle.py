@@ -94,6 +94,9 @@ class CodeRecord:
     standing: str = ""
     #: where the item belongs (``issuer place``)
     expected_where: str | None = None
+    #: the linked codes in display form
+    replaces_display: str | None = None
+    replaced_by_display: str | None = None
 
     def as_dict(self) -> dict[str, Any]:
         return dict(self.__dict__)
@@ -108,9 +111,14 @@ def code_record(session: Session, row: IssuedCode, now: datetime | None = None) 
             return None
         return session.scalar(select(IssuedCode.code).where(IssuedCode.id == row_id))
 
+    shape = code_format(series)
+
+    def in_display(code: str | None) -> str | None:
+        return shape.display(code) if code is not None else None
+
     return CodeRecord(
         code=row.code,
-        display=code_format(series).display(row.code),
+        display=shape.display(row.code),
         series=series.key,
         status=row.status,
         base=row.base,
@@ -133,12 +141,20 @@ def code_record(session: Session, row: IssuedCode, now: datetime | None = None) 
         erased_at=row.erased_at,
         standing=standing(row.status, row.valid_until, now),
         expected_where=row.expected_where,
+        replaces_display=in_display(code_of(row.replaces_id)),
+        replaced_by_display=in_display(code_of(row.replaced_by_id)),
     )
+
+
+def _display(session: Session, row: IssuedCode) -> str:
+    """A stored code in the form people read."""
+    series = session.get(Series, row.series_id)
+    return code_format(series).display(row.code) if series is not None else row.code
 
 
 def _void(session: Session, register: Register, row: IssuedCode, reason: str, at: datetime) -> None:
     if row.status == VOIDED:
-        raise Conflict(f"{row.code} is voided already ({row.void_reason})")
+        raise Conflict(f"{_display(session, row)} is voided already ({row.void_reason})")
     row.status = VOIDED
     row.void_reason = reason
     row.voided_at = at
@@ -171,6 +187,7 @@ class Replacement:
     display: str
     replaces: str
     batch: int
+    replaces_display: str = ""
 
 
 def replace_code(register: Register, text: str, *, reason: str) -> Replacement:
@@ -201,7 +218,8 @@ def replace_code(register: Register, text: str, *, reason: str) -> Replacement:
             at=at,
         )
         session.flush()
-        return Replacement(new_code, code_format(series.as_series).display(new_code), old.code, placed.batch_id)
+        shape = code_format(series.as_series)
+        return Replacement(new_code, shape.display(new_code), old.code, placed.batch_id, shape.display(old.code))
 
     return register.write(work)
 
@@ -214,13 +232,13 @@ def restore_code(register: Register, text: str, *, reason: str) -> CodeRecord:
     def work(session: Session) -> CodeRecord:
         row = find_code(session, text, lock=True)
         if row.status != VOIDED:
-            raise Conflict(f"{row.code} is not voided")
+            raise Conflict(f"{_display(session, row)} is not voided")
         if row.replaced_by_id is not None:
             replacement = session.get(IssuedCode, row.replaced_by_id)
             assert replacement is not None
             if replacement.status != VOIDED:
                 raise Conflict(
-                    f"{row.code} was replaced by {replacement.code}; void that first"
+                    f"{_display(session, row)} was replaced by {_display(session, replacement)}; void that first"
                 )
         at = register.clock()
         previous = row.void_reason
@@ -251,22 +269,42 @@ class Event:
     code: str | None
     batch: int | None
     detail: str
+    #: the code in display form, and the detail with its codes in display form (for people)
+    display: str | None = None
+    shown_detail: str = "{}"
 
     def as_dict(self) -> dict[str, Any]:
         import json
 
         data = dict(self.__dict__)
         data["detail"] = json.loads(self.detail)
+        del data["shown_detail"]
         return data
 
 
+#: detail fields that hold a canonical code, shown in display form to people
+CODE_FIELDS = ("replaces", "replaced_by", "first", "last")
+
+
 def _events(session: Session, statement: Any) -> list[Event]:
-    keys = {series_id: key for series_id, key in session.execute(select(Series.id, Series.key))}
-    return [
-        Event(e.id, e.at, e.actor, e.action, keys.get(e.series_id) if e.series_id else None,
-              e.code, e.batch_id, e.detail)
-        for e in session.scalars(statement)
-    ]
+    import json
+
+    known = {series.id: series for series in all_series(session)}
+    shapes = {series_id: code_format(series) for series_id, series in known.items()}
+    events = []
+    for e in session.scalars(statement):
+        shape = shapes.get(e.series_id) if e.series_id else None
+        display = shape.display(e.code) if shape is not None and e.code else e.code
+        shown = e.detail
+        if shape is not None and any(f'"{name}"' in e.detail for name in CODE_FIELDS):
+            data = json.loads(e.detail)
+            for name in CODE_FIELDS:
+                if isinstance(data.get(name), str):
+                    data[name] = shape.display(data[name])
+            shown = json.dumps(data)
+        key = known[e.series_id].key if e.series_id in known else None
+        events.append(Event(e.id, e.at, e.actor, e.action, key, e.code, e.batch_id, e.detail, display, shown))
+    return events
 
 
 def code_history(

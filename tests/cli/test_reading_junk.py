@@ -117,3 +117,30 @@ def test_import_and_reconcile_refuse_junk_files_in_one_line(cli: Any, held: str,
         result = cli("reconcile", "tools", str(path), "--json")
         clean_failure(result, allowed=(1, 2))
     assert state(db_path) == before
+
+
+def test_check_reads_a_sloppy_code_and_answers_in_both_forms(cli: Any, held: str) -> None:
+    typed = held[3:7] + " " + held[7:].replace("0", "O").replace("1", "l")  # prefix left off, O for 0, l for 1
+    result = cli("check", typed, "--json")
+    assert result.exit_code == 0, result.output
+    (answer,) = json.loads(result.stdout)
+    assert (answer["status"], answer["code"]) == ("issued", held)
+    assert answer["display"].replace("-", "") == held and "-" in answer["display"]
+    table = cli("check", typed)
+    assert answer["display"] in table.stdout and held not in table.stdout
+
+
+def test_close_candidates_are_said_in_words_at_the_cli(cli: Any, held: str) -> None:
+    # three in-order codes: a typo of the middle one's check is one slip from its neighbours too
+    codes = [held[:-1] + str(d) for d in range(10)]
+    typo = next(c for c in codes if c != held)
+    result = cli("check", typo, "--json")
+    (answer,) = json.loads(result.stdout)
+    assert answer["suggestions"], answer
+    assert {"code", "display", "error", "description", "likelihood"} <= set(answer["suggestions"][0])
+    likelihoods = [s["likelihood"] for s in answer["suggestions"]]
+    assert likelihoods == sorted(likelihoods, reverse=True)
+    close = len(likelihoods) > 1 and likelihoods[1] >= 0.5 * likelihoods[0]
+    assert (answer["advice"] is not None) == close
+    if close:
+        assert "ask the person to read it again" in cli("check", typo).stdout
