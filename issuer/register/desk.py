@@ -96,7 +96,9 @@ def _ranked(session: Session, shape: CodeFormat, typed: str) -> list[Ranked]:
     from issuer.checking.likely import suggest
 
     def issued(codes: list[str]) -> set[str]:
-        return {code for code, row in _stored(session, codes).items() if row.status == ISSUED}
+        # two plain columns, not ORM rows: this runs on every typo
+        statement = select(IssuedCode.code).where(IssuedCode.code.in_(codes), IssuedCode.status == ISSUED)
+        return set(session.scalars(statement))
 
     return suggest(shape, typed, issued)
 
