@@ -17,10 +17,9 @@ from datetime import datetime
 from typing import Any
 
 from sqlalchemy import func, select
-from sqlalchemy.exc import IntegrityError
 from sqlalchemy.orm import Session
 
-from issuer.errors import Conflict, InvalidFormat, NotFound
+from issuer.errors import Conflict, DuplicateRow, InvalidFormat, NotFound
 from issuer.register.driver import bind_value, execute_many
 from issuer.register.log import NewEntry, append_entries, append_entry
 from issuer.register.models import (
@@ -228,7 +227,7 @@ def open_count(register: Register, name: str, key: str, scope: CountScope, *, zo
 
     try:
         return register.write(work)
-    except IntegrityError:
+    except DuplicateRow:
         raise Conflict(f"a count called {name!r} exists already; choose another name") from None
 
 
@@ -281,7 +280,7 @@ def add_scan_file(
 
     try:
         return register.write(work)
-    except IntegrityError:
+    except DuplicateRow:
         # another desk added the same file at the same moment; its digest is taken now
         raise Conflict(f"{scan_file.name} was added to count {name!r} already (same contents)") from None
 
