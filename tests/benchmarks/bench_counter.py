@@ -1,0 +1,158 @@
+"""The counter screen's two speed targets (issue 13), each beside a baseline in the same run.
+
+1. Start-up to the first usable screen: a subprocess runs ``issuer counter`` (the console
+   script's own path: only the counter command loads) over a small SQLite register,
+   headless, and exits after the first refresh once the screen is mounted; timed against
+   ``python -c "import textual"``, interleaved rounds, medians. Target: under 1 s.
+2. Each answer on a register of 1M codes (warm): ``CounterDesk.check`` (the call the
+   screen makes for every scan: the answer plus the stored record) on issued codes,
+   typos, voided codes and junk, median and p95, beside an indexed lookup of the code
+   itself (one ``SELECT ... WHERE code = ?`` on the same file). Target: under 50 ms.
+
+Run from the repository root: .venv/bin/python tests/benchmarks/bench_counter.py [codes]
+(BENCH_ROUNDS start-up rounds, default 7). Demo data: the fictional Quillmere Tool Library.
+"""
+
+from __future__ import annotations
+
+import os
+import random
+import sqlite3
+import statistics
+import subprocess
+import sys
+import tempfile
+import time
+from collections.abc import Callable
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parents[2]
+sys.path.insert(0, str(ROOT))
+
+ROUNDS = int(os.environ.get("BENCH_ROUNDS", "7"))
+SAMPLES = 200  # answers timed per kind
+
+# the counter as `issuer counter --db X --series tools` starts it, made to leave once drawn
+STARTUP = """
+import sys
+from issuer.cli import _launch
+_launch.only_command = "counter"
+from issuer.counter import app as counter_app
+mounted = counter_app.CounterApp.on_mount
+def on_mount(self):
+    mounted(self)
+    self.call_after_refresh(self.exit)  # the first frame is drawn: the screen is usable
+counter_app.CounterApp.on_mount = on_mount
+run = counter_app.CounterApp.run
+counter_app.CounterApp.run = lambda self, **kw: run(self, headless=True, **kw)
+sys.argv = ["issuer", "counter", "--db", sys.argv[1], "--series", "tools"]
+from issuer.cli.main import main
+main()
+"""
+
+
+def timed(argv: list[str]) -> float:
+    began = time.perf_counter()
+    done = subprocess.run(argv, capture_output=True, text=True, cwd=ROOT)
+    elapsed = time.perf_counter() - began
+    if done.returncode != 0:
+        raise SystemExit(f"{argv[:3]} failed: {done.stderr.strip()[-400:]}")
+    return elapsed
+
+
+def startup(folder: Path) -> None:
+    from issuer.register.issuing import issue_codes
+    from issuer.register.series import SeriesSpec, add_series
+    from issuer.register.store import open_register
+
+    path = folder / "small.sqlite"
+    register = open_register(str(path), actor="bench")
+    add_series(register, SeriesSpec(key="tools", scheme="luhn", length=6, prefix="QT", title="Tool tags"))
+    issue_codes(register, "tools", 200, holder="workshop shelf B")
+    register.close()
+    counter_argv = [sys.executable, "-c", STARTUP, str(path)]
+    textual_argv = [sys.executable, "-c", "import textual"]
+    timed(counter_argv)  # warm the file cache and the bytecode once
+    counter, textual = [], []
+    for _ in range(ROUNDS):
+        counter.append(timed(counter_argv))
+        textual.append(timed(textual_argv))
+    c, t = statistics.median(counter), statistics.median(textual)
+    print(f"Start-up to the first usable screen (median of {ROUNDS} interleaved rounds)")
+    print(f"  issuer counter, mounted and drawn  {c * 1000:7.0f} ms   (target < 1000 ms)")
+    print(f"  python -c 'import textual'         {t * 1000:7.0f} ms")
+    print(f"  ratio                              {c / t:7.2f}x")
+
+
+def spread(fn: Callable[[str], object], inputs: list[str]) -> tuple[float, float]:
+    times = []
+    for text in inputs:
+        began = time.perf_counter()
+        fn(text)
+        times.append(time.perf_counter() - began)
+    times.sort()
+    return statistics.median(times) * 1000, times[min(len(times) - 1, int(0.95 * len(times)))] * 1000
+
+
+def typo(code: str, rng: random.Random) -> str:
+    """One digit of the number part changed (a check-digit catch)."""
+    digits = [i for i, ch in enumerate(code) if ch.isdigit()]
+    i = rng.choice(digits)
+    return code[:i] + str((int(code[i]) + rng.randint(1, 9)) % 10) + code[i + 1 :]
+
+
+def answers(folder: Path, count: int) -> None:
+    from issuer.counter.desk import CounterDesk
+    from issuer.register.issuing import issue_codes
+    from issuer.register.lifecycle import void_code
+    from issuer.register.series import SeriesSpec, add_series
+    from issuer.register.store import open_register
+
+    path = folder / "million.sqlite"
+    register = open_register(str(path), actor="bench")
+    add_series(register, SeriesSpec(key="tools", scheme="luhn", length=8, prefix="QT", title="Tool tags"))
+    began = time.perf_counter()
+    result = issue_codes(register, "tools", count, collect=False)
+    print(f"\nAnswers on a register of {count:,} codes (issued in {time.perf_counter() - began:.1f} s, bulk)")
+    first, last = result.first.code, result.last.code  # type: ignore[union-attr]
+    raw = sqlite3.connect(path)
+    rng = random.Random(13)
+    # issued codes spread over the whole series, read from the file (no list of a million)
+    low = raw.execute("SELECT min(id) FROM issued_code").fetchone()[0]
+    picks = rng.sample(range(count), SAMPLES * 2)
+    rows = [raw.execute("SELECT code FROM issued_code WHERE id = ?", (low + n,)).fetchone()[0] for n in picks]
+    issued, to_void = rows[:SAMPLES], rows[SAMPLES:]
+    for code in to_void[:SAMPLES]:
+        void_code(register, code, reason="tag lost in the workshop")
+    typos = [typo(code, rng) for code in issued]
+    junk = [rng.choice(["hello?", "QT-", "12", "QTX1234567", "drill bit 3", "QT" + "9" * 20, "¿?"]) for _ in range(SAMPLES)]
+    desk = CounterDesk(register, series="tools")
+    for text in issued[:20] + typos[:20]:
+        desk.check(text)  # warm: caches, the page cache, the series' shapes
+    statuses = {desk.check(t).answer.status for t in to_void[:5]}
+    print(f"  first {first}, last {last}; voided answers read {sorted(statuses)}")
+
+    def indexed(code: str) -> object:
+        return raw.execute("SELECT * FROM issued_code WHERE code = ?", (code,)).fetchone()
+
+    p50, p95 = spread(indexed, issued)
+    print(f"  {'indexed lookup of the code':34} median {p50:6.2f} ms   p95 {p95:6.2f} ms   (baseline)")
+    base = p50
+    for name, inputs in (("issued", issued), ("typo", typos), ("voided", to_void), ("junk", junk)):
+        p50, p95 = spread(desk.check, inputs)
+        print(f"  {'CounterDesk.check, ' + name:34} median {p50:6.2f} ms   p95 {p95:6.2f} ms   "
+              f"({p50 / base:5.0f}x lookup; target < 50 ms)")  # fmt: skip
+    raw.close()
+    register.close()
+
+
+def main() -> None:
+    count = int(sys.argv[1]) if len(sys.argv) > 1 else 1_000_000
+    with tempfile.TemporaryDirectory() as name:
+        folder = Path(name)
+        startup(folder)
+        answers(folder, count)
+
+
+if __name__ == "__main__":
+    main()
