@@ -33,7 +33,7 @@ first, :func:`advice` says so in words.
 
 from __future__ import annotations
 
-from collections.abc import Callable, Iterable, Mapping
+from collections.abc import Callable, Container, Iterable, Mapping
 from dataclasses import dataclass
 from types import MappingProxyType
 
@@ -124,7 +124,7 @@ def likelihood(fmt: CodeFormat, meant: str, typed: str, error: str) -> float:
     raise ValueError(f"unknown error class {error!r}")
 
 
-def rank(fmt: CodeFormat, typed: str, candidates: Iterable[Neighbour], issued: set[str]) -> list[Ranked]:
+def rank(fmt: CodeFormat, typed: str, candidates: Iterable[Neighbour], issued: Container[str]) -> list[Ranked]:
     """The issued ones among ``candidates`` (each one slip from ``typed``), likeliest
     first, those under :data:`THRESHOLD` left out. Ties keep the candidates' order."""
     ranked = [

@@ -359,7 +359,7 @@ def _moment_text(moment: Any) -> str:
         moment = datetime.fromisoformat(moment)
     if moment.tzinfo is None:
         moment = moment.replace(tzinfo=UTC)
-    return moment.astimezone(UTC).isoformat()
+    return str(moment.astimezone(UTC).isoformat())
 
 
 def close_count(

@@ -154,9 +154,9 @@ def codes_of_other_series(
             for code, status in session.execute(statement):
                 found[readable[code]] = OtherSeries(other.key, other.title, code, status)
         # several texts may read as one code: every one of them is that code
-        for (index, _), code, state in zip(left, read.canonical, read.state.tolist()):
-            if index not in found and state == VALID and code in readable:
-                first = found.get(readable[code])
+        for (index, _), text, state in zip(left, read.canonical, read.state.tolist()):
+            if index not in found and state == VALID and text is not None and text in readable:
+                first = found.get(readable[text])
                 if first is not None:
                     found[index] = first
     return found

@@ -108,7 +108,7 @@ class CodeSet:
         """Codes joined by newlines, as the database hands them back."""
         import numpy as np
 
-        form = {"prefix": prefix, "suffix": suffix, "width": width, "symbols": symbols}
+        form: dict[str, Any] = {"prefix": prefix, "suffix": suffix, "width": width, "symbols": symbols}
         if not text:
             return cls(np.array([], dtype="S1"), **form)
         data = text.encode("utf-8")
@@ -412,8 +412,8 @@ __all__ = [
     "held_codes",
     "last_seen",
     "record_sightings",
-    "write_sightings",
     "series_codes",
     "standing_details",
     "void_details",
+    "write_sightings",
 ]

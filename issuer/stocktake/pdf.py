@@ -111,11 +111,12 @@ def _when_text(text: str | None) -> str:
 
 def write_pdf(info: CountInfo, files: Sequence[FileInfo], result: dict[str, Any], stream: IO[bytes]) -> None:
     """Write the report of count ``info`` (its ``files`` and ``result``) as a PDF to ``stream``."""
+    from xml.sax.saxutils import escape
+
     from reportlab.lib.pagesizes import A4
     from reportlab.lib.styles import getSampleStyleSheet
     from reportlab.lib.units import mm
     from reportlab.platypus import Paragraph, SimpleDocTemplate, Spacer
-    from xml.sax.saxutils import escape
 
     styles = getSampleStyleSheet()
     body, heading = styles["BodyText"], styles["Heading2"]
@@ -130,7 +131,7 @@ def write_pdf(info: CountInfo, files: Sequence[FileInfo], result: dict[str, Any]
         Paragraph(escape(f"Stock count {info.name}"), styles["Title"]),
         Paragraph(escape(f"Series {info.series}; scope: {result.get('scope', '')}; state: {state}"), body),
         Paragraph(escape(f"Opened {_when(info.opened_at)} by {info.opened_by}; closed {_when(info.closed_at)}"
-                         + (f" by {info.closed_by}" if info.closed_by else "")), body),  # fmt: skip
+                         + (f" by {info.closed_by}" if info.closed_by else "")), body),
         Paragraph(escape(f"Scan times written without a time zone were read in {result.get('zone', info.zone)}."), body),
         Spacer(1, 4 * mm),
     ]

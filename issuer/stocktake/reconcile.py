@@ -114,7 +114,7 @@ def _seen_where(table: Table, count: CountInfo | None) -> list[str] | None:
     where = table.role("where")
     if where is None:
         return [default] * len(table) if default else None
-    return [place or default for place in where] if default else where  # type: ignore[misc]
+    return [place or default for place in where] if default else where
 
 
 def _away(canonical: Sequence[str | None], seen: list[str] | None, places: dict[str, str]) -> set[str]:
@@ -124,10 +124,11 @@ def _away(canonical: Sequence[str | None], seen: list[str] | None, places: dict[
         return set()
     home: dict[str, bool] = {}
     for code, where in zip(canonical, seen):
-        expected = places.get(code) if code is not None else None
-        if expected is None or not where:
+        if code is None or not where:
             continue
-        home[code] = home.get(code, False) or same_place(expected, where)  # type: ignore[index]
+        expected = places.get(code)
+        if expected is not None:
+            home[code] = home.get(code, False) or same_place(expected, where)
     return {code for code, at_home in home.items() if not at_home}
 
 
@@ -149,6 +150,7 @@ def reconcile(
         issued, voided, suspended, expired = held.issued, held.voided, held.suspended, held.expired
         read = read_codes(shape, table.codes)
         canonical, fixed = read.canonical, read.fixed
+        assert fixed is not None
         readable = read.state != MALFORMED
         # one class per line, worked out over whole arrays
         in_issued = issued.contains(fixed) & readable
@@ -181,17 +183,18 @@ def reconcile(
     for index, status in enumerate(statuses):
         if status == ISSUED:
             code = canonical[index]
+            assert code is not None
             if expected is not issued and code not in expected:
-                moved = where_count is not None and code in places and not same_place(places[code], where_count)  # type: ignore[index]
+                moved = where_count is not None and code in places and not same_place(places[code], where_count)
                 statuses[index] = "elsewhere" if moved else "out_of_scope"
             elif code in away:
                 statuses[index] = "elsewhere"
         elif index in others:
             statuses[index] = "other_series"
-    scanned = times.codes.array
+    tallied = times.codes.array
     # bad check, never issued
     unknown = set(times.codes.codes(
-        ~issued.contains_keys(scanned) & ~voided.contains_keys(scanned) & ~suspended.contains_keys(scanned)
+        ~issued.contains_keys(tallied) & ~voided.contains_keys(tallied) & ~suspended.contains_keys(tallied)
     ))  # fmt: skip
     unknown.difference_update(canonical[index] for index in others)
     first_line: dict[str, int] = {}

@@ -11,7 +11,7 @@ from typing import Any
 from issuer.checking.codes import CodeFormat
 from issuer.checking.likely import advice
 from issuer.readers.scanfile import Table
-from issuer.register.models import ISSUED, VOIDED
+from issuer.register.models import ISSUED
 from issuer.register.places import OtherSeries
 from issuer.register.stocktake import CodeSet, LastSeen, StandingDetail, VoidDetail
 

@@ -11,8 +11,6 @@ import subprocess
 import sys
 from pathlib import Path
 
-import pytest
-
 from issuer.register.counting import SCAN_CHUNK
 from issuer.register.issuing import issue_codes
 from issuer.register.series import SeriesSpec, add_series
@@ -72,7 +70,7 @@ def test_a_desk_killed_while_adding_leaves_nothing_and_the_file_goes_in_once(tmp
 
 
 def test_two_desks_adding_at_once_lose_nothing(register_url: str, tmp_path: Path) -> None:  # noqa: F811
-    codes, paths = _setup(register_url, tmp_path, 8, 400)
+    _codes, paths = _setup(register_url, tmp_path, 8, 400)
     shared = paths[-1]
     # each desk adds its own three files and then the shared one: exactly one may add it
     desks = [_desk(register_url, "add", [*paths[0:3], shared]), _desk(register_url, "add", [*paths[3:6], shared])]

@@ -119,7 +119,7 @@ def test_a_count_over_three_files_from_two_scanners(register: Register, planted:
         "comment_lines": 3,
     }
     assert status.unexpected == 6
-    info, files, result = count_result(register, "spring-aisle-1")
+    _info, files, result = count_result(register, "spring-aisle-1")
     assert [(f.name, f.scanner, f.scans) for f in files] == [("north-1.txt", "north", 6), ("north-2.csv", "north", 9),
                                                              ("south.jsonl", "south", 4)]
     assert result["zone"] == "Europe/Lisbon"
