@@ -81,7 +81,7 @@ class UserError(click_exceptions.ClickException):
     exit_code = 2
 
     def show(self, file: Any = None) -> None:
-        typer.echo(redact(f"issuer: {printable(self.format_message())}"), err=True)
+        typer.echo(redact(f"issuer: {one_line(self.format_message())}"), err=True)
 
 
 class IssuerGroup(TyperGroup):
@@ -122,6 +122,12 @@ def _finish(standalone_mode: bool, code: int) -> Any:
     return code
 
 
+def one_line(message: str) -> str:
+    """A message as one terminal line: controls escaped, and a line break inside a
+    quoted value (a CSV header, a note) shown as ``\\n`` rather than starting a line."""
+    return printable(message).replace("\n", "\\n").replace("\t", " ")
+
+
 def print_json(data: Any) -> None:
     """JSON on stdout, exactly, with nothing else around it."""
     sys.stdout.write(json_safe(json.dumps(data, ensure_ascii=False, default=str)))
@@ -131,7 +137,7 @@ def print_json(data: Any) -> None:
 
 def fail(message: str, code: int = 2) -> NoReturn:
     """Stop with one line on stderr."""
-    typer.echo(redact(f"issuer: {printable(message)}"), err=True)
+    typer.echo(redact(f"issuer: {one_line(message)}"), err=True)
     raise typer.Exit(code)
 
 

@@ -353,7 +353,7 @@ def _fill(
     name = table.source
     keys = [header_key(cell) for cell in header]
     table.header = [cell.strip().strip("\ufeff").strip() for cell in header]
-    shown = ", ".join(table.header)
+    shown = ", ".join(header.replace("\n", " ") for header in table.header)
     if column is not None:
         code_at = _find(keys, [column])
         if code_at is None:
