@@ -44,14 +44,12 @@ def prefix_range(prefix: str) -> tuple[str, str | None]:
 
 
 def clean_text(value: str | None, *, what: str) -> str | None:
-    """A holder, note or reason (``what``) as stored: stripped, None when empty, refused
-    by :mod:`issuer.limits` when too long or carrying characters it does not allow."""
-    if value is None:
+    """A holder, note or reason (``what``) as stored: exactly as given (an export must
+    give it back), None when blank, refused by :mod:`issuer.limits` when too long or
+    carrying characters it does not allow."""
+    if value is None or not value.strip():
         return None
-    text = value.strip()
-    if not text:
-        return None
-    return limits.text(what, text)
+    return limits.text(what, value)
 
 
 def parse_period(text: str) -> int:
