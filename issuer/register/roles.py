@@ -13,6 +13,10 @@ The clerk may set and clear a code's holder and note and renew its validity; era
 writes ``erased_at`` and suspending writes ``status`` and ``suspended_*``, columns only
 the admin may move.
 
+Neither may read ``access_token`` (the service's tokens: salts and scrypt digests a
+guesser could work on offline); only the register's owner, the account the service runs
+as, touches it.
+
 Neither may UPDATE, DELETE or TRUNCATE ``log_entry``. A trigger refuses those acts to
 every role — the table's owner and superusers included — so even the account that runs
 migrations cannot edit the log without first dropping the trigger (which
@@ -58,6 +62,9 @@ COUNT_GRANTS: dict[str, TableGrants] = {
     "stock_count_scan": TableGrants(insert=True),
 }
 
+#: the service's tokens: the owner's alone (the service runs as the owner)
+NO_ACCESS = TableGrants(select=False)
+
 #: the clerk: issue, check, reprint, reconcile
 CLERK_POLICY: dict[str, TableGrants] = {
     "series": TableGrants(update=("next_counter", "code_count")),
@@ -72,6 +79,7 @@ CLERK_POLICY: dict[str, TableGrants] = {
     "log_entry": TableGrants(insert=True),
     "log_head": TableGrants(update=("last_id", "last_hash")),
     "alembic_version": TableGrants(),
+    "access_token": NO_ACCESS,
     **COUNT_GRANTS,
 }
 
@@ -99,6 +107,7 @@ ADMIN_POLICY: dict[str, TableGrants] = {
     "log_entry": TableGrants(insert=True),
     "log_head": TableGrants(update=("last_id", "last_hash")),
     "alembic_version": TableGrants(),
+    "access_token": NO_ACCESS,
     **COUNT_GRANTS,
     # erasure also clears a holder named as a count's scope
     "stock_count": TableGrants(insert=True, update=("state", "closed_at", "closed_by", "result", "scope_text")),
@@ -135,6 +144,8 @@ def _grant_lines(role: str, schema: str, policy: dict[str, TableGrants], tables:
             privileges.append("INSERT")
         if privileges:
             lines.append(f"GRANT {', '.join(privileges)} ON {target} TO {_q(role)};")
+        elif not grants.update:
+            lines.append(f"-- {table}: no access (revoked above)")
         if grants.update:
             columns = ", ".join(_q(column) for column in grants.update)
             lines.append(f"GRANT UPDATE ({columns}) ON {target} TO {_q(role)};")

@@ -26,6 +26,7 @@ from issuer.register.issuing import issue_codes
 from issuer.register.lifecycle import replace_code, restore_code, void_code
 from issuer.register.series import SeriesSpec, add_series
 from issuer.register.store import open_register
+from issuer.register.tokens import add_token, list_tokens
 from tests.register.consistency import assert_consistent
 from tests.register.pg import (
     admin_sql,
@@ -69,6 +70,7 @@ def guarded(pg_database: str, groups: Groups) -> Guarded:  # noqa: F811
     add_series(register, SeriesSpec(key="tools", scheme="luhn", length=6, prefix="T"))
     add_series(register, SeriesSpec(key="members", scheme="luhn", length=7, prefix="M", mode="scattered"))
     codes = [info.code for info in issue_codes(register, "tools", 5).codes]
+    add_token(register, "front-desk", "clerk")  # the service's token, held by the owner
     apply_statements(register, roles_script(register, clerk=groups.clerk, admin=groups.admin))
     register.close()
     clerk = new_login_role(pg_database, groups.clerk)
@@ -169,9 +171,31 @@ def test_the_log_is_append_only_for_everyone(guarded: Guarded, who: str) -> None
         from issuer.register.admin import verify_log
 
         report, _ = verify_log(checked)
-        assert report.intact and report.entries == 3  # two series defined, one batch
+        assert report.intact and report.entries == 4  # two series defined, one batch, one token
     finally:
         checked.close()
+
+
+@pytest.mark.parametrize("who", ["clerk", "admin"])
+def test_neither_role_reads_the_service_tokens(guarded: Guarded, who: str) -> None:
+    register = as_role(getattr(guarded, who), who)
+    try:
+        message = refused(lambda: raw(register, "SELECT salt, digest FROM access_token"))
+        assert "access_token" in message
+        refused(lambda: raw(register, "SELECT count(*) FROM access_token"))
+        # the read path hands on the driver's refusal as it is (the write path makes it one line)
+        with pytest.raises(Exception, match="permission denied for table access_token"):
+            list_tokens(register)
+        refused(lambda: add_token(register, "side-door", "admin"))
+        refused(lambda: raw(register, "DELETE FROM access_token"))
+    finally:
+        register.close()
+    # the owner (the account the service runs as) still reads its one token
+    owner = as_role(guarded.owner, "owner")
+    try:
+        assert [token.name for token in list_tokens(owner)] == ["front-desk"]
+    finally:
+        owner.close()
 
 
 def test_the_command_line_says_no_in_one_line(guarded: Guarded) -> None:
@@ -197,6 +221,7 @@ def test_db_roles_prints_the_policy(guarded: Guarded, groups: Groups) -> None:
     assert 'GRANT UPDATE ("next_counter", "code_count") ON' in script
     assert f'"series" TO "{groups.clerk}";' in script
     assert "REVOKE UPDATE, DELETE, TRUNCATE ON" in script
+    assert "-- access_token: no access" in script and '"access_token" TO' not in script
     assert "BEFORE UPDATE OR DELETE ON" in script and "BEFORE TRUNCATE ON" in script
     # applying twice converges
     again = CliRunner().invoke(
