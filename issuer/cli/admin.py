@@ -1,5 +1,5 @@
-"""Looking after a register: ``issuer db`` (status, upgrade, roles), ``issuer backup``,
-``issuer doctor``, and ``issuer log verify`` / ``issuer log anchor``."""
+"""Looking after a register: ``issuer db`` (status, upgrade, roles), ``issuer backup``
+and ``issuer doctor``."""
 
 from __future__ import annotations
 
@@ -8,41 +8,25 @@ from typing import Annotated, Any
 
 import typer
 
-from issuer.cli.app import app
 from issuer.cli.common import (
     ActorOption,
     DbOption,
     JsonOption,
-    close_with_command,
+    command_set,
     console,
     err_console,
+    open_existing_from_options,
     print_json,
 )
-from issuer.cli.logcmd import log_app
+
+commands = command_set()
 
 db_app = typer.Typer(
     help="The register's database: its status, schema upgrades, and the roles PostgreSQL enforces.",
     no_args_is_help=True,
 )
-app.add_typer(db_app, name="db")
+commands.add_typer(db_app, name="db")
 
-TAMPER_NOTE = (
-    "The chain shows edits made behind issuer's back; someone able to rewrite the whole "
-    "log and its head can hide them: compare with an anchor written down elsewhere "
-    "('issuer log anchor')."
-)
-
-
-def _open_existing(db: str | None) -> Any:
-    """The register the settings point at, as it is: no upgrade, no new file."""
-    from issuer.config import load_settings
-    from issuer.register.admin import open_existing
-
-    settings = load_settings(database=db)
-    timeout = int(settings.section("register").get("busy_timeout_ms", 15000))
-    register = open_existing(settings.database, actor=settings.actor, busy_timeout_ms=timeout)
-    close_with_command(register)
-    return register
 
 
 # --- issuer db ----------------------------------------------------------------------
@@ -53,7 +37,7 @@ def db_status(db: DbOption = None, as_json: JsonOption = False) -> None:
     """Which database, which schema level, how much it holds, and the log's head."""
     from issuer.register.admin import register_status
 
-    register = _open_existing(db)
+    register = open_existing_from_options(db)
     status = register_status(register)
     register.close()
     if as_json:
@@ -105,7 +89,7 @@ def db_upgrade(db: DbOption = None, as_json: JsonOption = False) -> None:
     """Bring an older register up to this issuer's schema ('db init' makes a new one)."""
     from issuer.register.admin import upgrade_register
 
-    register = _open_existing(db)
+    register = open_existing_from_options(db)
     before, after = upgrade_register(register)
     register.close()
     if as_json:
@@ -143,7 +127,7 @@ def db_roles(
     from issuer.register.admin import apply_statements, roles_script
     from issuer.register.roles import render_script
 
-    register = _open_existing(db)
+    register = open_existing_from_options(db)
     statements = roles_script(register, clerk=clerk, admin=admin)
     if apply:
         apply_statements(register, statements)
@@ -162,7 +146,7 @@ def db_roles(
 # --- issuer backup ------------------------------------------------------------------
 
 
-@app.command("backup")
+@commands.command("backup")
 def backup(
     destination: Annotated[Path, typer.Argument(help="The backup file to write (owner-only).", dir_okay=False)],
     *,
@@ -177,7 +161,7 @@ def backup(
     """
     from issuer.register import admin
 
-    register = _open_existing(db)
+    register = open_existing_from_options(db)
     if register.backend == "postgresql":
         dump = admin.pg_dump_command(register, str(destination))
         restore = admin.pg_restore_command(register, str(destination))
@@ -231,7 +215,7 @@ def _backup_with_progress(register: Any, destination: Path, force: bool) -> Any:
 _STATUS_STYLE = {"ok": "green", "warn": "yellow", "problem": "bold red", "skipped": "dim"}
 
 
-@app.command("doctor")
+@commands.command("doctor")
 def doctor(
     db: DbOption = None,
     as_json: JsonOption = False,
@@ -247,7 +231,7 @@ def doctor(
     """
     from issuer.register.doctor import run_doctor
 
-    register = _open_existing(db)
+    register = open_existing_from_options(db)
     if as_json:
         report = run_doctor(register, fix=fix)
     else:
@@ -279,97 +263,3 @@ def _render_doctor(report: Any) -> None:
         out.print("[green]The register is whole.[/]")
     else:
         out.print("[bold red]The register disagrees with itself; see the problems above.[/]")
-
-
-# --- issuer log verify / anchor -----------------------------------------------------
-
-
-@log_app.command("verify")
-def log_verify(
-    *,
-    anchor: Annotated[
-        list[str] | None,
-        typer.Option(
-            "--anchor",
-            help="An anchor written down earlier (ID:HASH from 'issuer log anchor'): check the "
-            "entry is still in the chain, unchanged. Repeat for several.",
-        ),
-    ] = None,
-    db: DbOption = None,
-    as_json: JsonOption = False,
-) -> None:
-    """Recompute the log's hash chain and name the first entry edited behind issuer's back.
-
-    Reports the first entry altered, deleted or inserted. Exit 1 when the chain or an
-    anchor does not hold. Someone able to rewrite the whole chain and its head can hide
-    an edit: check against an anchor written down elsewhere ('issuer log anchor').
-    """
-    from issuer.register.admin import parse_anchor, verify_log
-
-    anchors = [parse_anchor(value) for value in anchor or []]
-    register = _open_existing(db)
-    if as_json:
-        report, checks = verify_log(register, anchors)
-    else:
-        with err_console().status("Recomputing the log's hash chain"):
-            report, checks = verify_log(register, anchors)
-    register.close()
-    broken = report.problem is not None or any(not check.holds for check in checks)
-    if as_json:
-        print_json({
-            "intact": report.intact,
-            "entries": report.entries,
-            "head": {"id": report.head_id, "hash": report.head_hash},
-            "problem": None if report.problem is None else {
-                "entry": report.problem.entry_id, "problem": report.problem.problem,
-            },
-            "anchors": [
-                {"anchor": str(check.anchor), "holds": check.holds, "problem": check.problem}
-                for check in checks
-            ],
-        })
-    else:
-        out = console()
-        if report.problem is None:
-            out.print(
-                f"[green]Log intact[/]: {report.entries:,} entries, head "
-                f"{report.head_id}:{report.head_hash}"
-            )
-        else:
-            out.print(
-                f"[bold red]Log broken at entry {report.problem.entry_id}[/]: {report.problem.problem}"
-            )
-        for check in checks:
-            if check.holds:
-                out.print(f"[green]Anchor holds[/]: {check.anchor.entry_id} is unchanged")
-            else:
-                out.print(f"[bold red]Anchor fails[/]: {check.problem}")
-        out.print(TAMPER_NOTE, style="dim")
-    if broken:
-        raise typer.Exit(1)
-
-
-@log_app.command("anchor")
-def log_anchor(db: DbOption = None, as_json: JsonOption = False) -> None:
-    """Print the log's newest entry as ID:HASH, to write down or publish elsewhere.
-
-    Later, 'issuer log verify --anchor ID:HASH' shows whether the log up to it changed.
-    """
-    from issuer.register.admin import current_anchor
-
-    register = _open_existing(db)
-    anchor, at = current_anchor(register)
-    register.close()
-    if as_json:
-        print_json({"id": anchor.entry_id, "hash": anchor.hash, "at": at, "anchor": str(anchor)})
-        return
-    if anchor.entry_id == 0:
-        console().print("The log is empty; there is nothing to anchor yet.")
-        return
-    typer.echo(str(anchor))
-    when = f" (entry of {at:%Y-%m-%d %H:%M:%S} UTC)" if at is not None else ""
-    err_console().print(
-        f"Write this down or publish it somewhere the register cannot reach{when}; "
-        "check it later with: issuer log verify --anchor ID:HASH",
-        style="dim",
-    )

@@ -15,11 +15,11 @@ import typer
 
 try:  # recent Typer releases carry their own copy of click
     from typer._click import exceptions as click_exceptions
-    from typer._click.core import Context
+    from typer._click.core import Command, Context
 except ImportError:  # pragma: no cover - older Typer uses the click package
-    from click import Context  # type: ignore[no-redef]
+    from click import Command, Context  # type: ignore[assignment]
     from click import exceptions as click_exceptions  # type: ignore[no-redef]
-from typer.core import TyperGroup, TyperOption
+from typer.core import TyperCommand, TyperGroup, TyperOption
 
 from issuer.errors import IssuerError, redact
 from issuer.limits import json_safe, printable
@@ -73,6 +73,30 @@ def _flag_shows_no_type(self: TyperOption, ctx: Context) -> str | None:
 
 
 TyperOption.display_type_rich = _flag_shows_no_type  # type: ignore[method-assign]
+
+
+UsageError = click_exceptions.UsageError
+#: every group Typer builds (the root included) is one of these
+Group = TyperGroup
+__all__ = ["Command", "Context", "Group", "TyperCommand", "UsageError"]  # the click names faces use
+
+
+def command_set() -> typer.Typer:
+    """The Typer a command module adds its commands to (as ``commands``); the root group
+    (:mod:`issuer.cli.app`) imports the module and takes them only when one runs."""
+    return typer.Typer(add_completion=False, rich_markup_mode="rich", pretty_exceptions_enable=False)
+
+
+def open_existing_from_options(db: str | None) -> Any:
+    """The register the settings point at, as it is: no upgrade, no new file."""
+    from issuer.config import load_settings
+    from issuer.register.admin import open_existing
+
+    settings = load_settings(database=db)
+    timeout = int(settings.section("register").get("busy_timeout_ms", 15000))
+    register = open_existing(settings.database, actor=settings.actor, busy_timeout_ms=timeout)
+    close_with_command(register)
+    return register
 
 
 class UserError(click_exceptions.ClickException):

@@ -7,11 +7,12 @@ from typing import Annotated
 
 import typer
 
-from issuer.cli.app import app
-from issuer.cli.common import ActorOption, DbOption, open_register_from_options
+from issuer.cli.common import ActorOption, DbOption, command_set, open_register_from_options
+
+commands = command_set()
 
 
-@app.command("counter")
+@commands.command("counter")
 def counter(
     *,
     series: Annotated[str | None, typer.Option("--series", help="The series new codes come from (F10 changes it).")] = None,

@@ -8,12 +8,12 @@ from typing import TYPE_CHECKING, Annotated
 
 import typer
 
-from issuer.cli.app import app
 from issuer.cli.common import (
     ActorOption,
     DbOption,
     ForceOption,
     JsonOption,
+    command_set,
     console,
     err_console,
     fail,
@@ -23,6 +23,8 @@ from issuer.cli.common import (
 )
 from issuer.cli.inputs import FileOption, read_inputs
 
+commands = command_set()
+
 if TYPE_CHECKING:
     from issuer.stocktake.counts import CountStatus
 
@@ -30,7 +32,7 @@ stocktake_app = typer.Typer(
     help="Counts that span days: open a count (a series, or one place, range, batch or holder), add the "
     "scanners' files as they come in, watch its progress, close it, print its report."
 )
-app.add_typer(stocktake_app, name="stocktake")
+commands.add_typer(stocktake_app, name="stocktake")
 
 ZoneOption = Annotated[
     str | None,
@@ -266,7 +268,7 @@ def report(
     err_console().print(f"Report written to {out}")
 
 
-@app.command("place", epilog="A place is where an item belongs; a count that sees it elsewhere says so.")
+@commands.command("place", epilog="A place is where an item belongs; a count that sees it elsewhere says so.")
 def place(
     codes: Annotated[list[str] | None, typer.Argument(help="Codes to place ('-' reads them from standard input).")] = None,
     *,

@@ -8,18 +8,20 @@ from typing import Annotated
 
 import typer
 
-from issuer.cli.app import app
 from issuer.cli.common import (
     CHECK_CAUTION,
     PERSONAL_DATA_CAUTION,
     SCATTER_CAUTION,
+    command_set,
     console,
     fail,
     open_register_from_options,
 )
 
+commands = command_set()
 
-@app.command("demo")
+
+@commands.command("demo")
 def demo(
     *,
     db: Annotated[

@@ -9,15 +9,17 @@ from typing import Annotated, Any
 
 import typer
 
-from issuer.cli.app import app
 from issuer.cli.common import (
     CHECK_CAUTION,
     DbOption,
+    command_set,
     console,
     open_register_from_options,
     print_json,
     shown,
 )
+
+commands = command_set()
 
 STYLE = {
     "issued": "green",
@@ -112,7 +114,7 @@ DESK_HELP = (
 )
 
 
-@app.command("desk")
+@commands.command("desk")
 def desk(
     *,
     series: Annotated[

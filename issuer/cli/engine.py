@@ -11,17 +11,19 @@ from typing import TYPE_CHECKING, Annotated, Any
 
 import typer
 
-from issuer.cli.app import app
 from issuer.cli.common import (
     CHECK_CAUTION,
     ActorOption,
     DbOption,
     JsonOption,
+    command_set,
     console,
     print_json,
 )
 from issuer.cli.inputs import FileOption, read_inputs
 from issuer.errors import InvalidFormat
+
+commands = command_set()
 
 if TYPE_CHECKING:
     from collections.abc import Callable
@@ -57,7 +59,7 @@ SCHEMES_MEASURE_LIMIT_VERIFIED = 5_000
 _BULK_CALC = 2_000
 
 
-@app.command("schemes")
+@commands.command("schemes")
 def schemes(as_json: JsonOption = False) -> None:
     """List the check-character schemes, their alphabets and what each measurably
     detects (single substitutions, adjacent transpositions) on a short series."""
@@ -141,7 +143,7 @@ def _bulk_checks(scheme: Scheme, bodies: list[str]) -> list[str]:
     return checks
 
 
-@app.command("calc")
+@commands.command("calc")
 def calc(
     bodies: Annotated[
         list[str] | None,
@@ -164,7 +166,7 @@ def calc(
         sys.stdout.write("".join(row["code"] + "\n" for row in rows))
 
 
-@app.command("check")
+@commands.command("check")
 def check(
     codes: Annotated[
         list[str] | None,
@@ -249,7 +251,7 @@ def _show_check(bound: Scheme, result: Any, *, summary: bool, as_json: bool) -> 
     )
 
 
-@app.command("assess")
+@commands.command("assess")
 def assess_command(
     scheme: Annotated[
         list[str],

@@ -6,12 +6,12 @@ from typing import Annotated
 
 import typer
 
-from issuer.cli.app import app
 from issuer.cli.common import (
     PERSONAL_DATA_CAUTION,
     ActorOption,
     DbOption,
     JsonOption,
+    command_set,
     console,
     err_console,
     open_register_from_options,
@@ -20,15 +20,17 @@ from issuer.cli.common import (
     shown,
 )
 
+commands = command_set()
+
 ERASURE_REACH = (
     "Erasure cannot reach copies made before it: backups, exported files, printed labels, "
     "and any reason or note typed into the log."
 )
 
 holder_app = typer.Typer(help="Who holds a code: set, clear or erase it. Personal data: " + PERSONAL_DATA_CAUTION)
-app.add_typer(holder_app, name="holder")
+commands.add_typer(holder_app, name="holder")
 holders_app = typer.Typer(help="Holders in bulk: erase them by age, as your retention policy says.")
-app.add_typer(holders_app, name="holders")
+commands.add_typer(holders_app, name="holders")
 
 CodeArgument = Annotated[str, typer.Argument(help="The code, as typed or scanned.")]
 
@@ -132,7 +134,7 @@ def holders_purge(
     err_console().print(ERASURE_REACH)
 
 
-@app.command("find")
+@commands.command("find")
 def find(
     text: Annotated[str, typer.Argument(help="The start of a holder or note; case and spacing do not matter.")],
     *,

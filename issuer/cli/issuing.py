@@ -7,13 +7,13 @@ from typing import Annotated, Any
 
 import typer
 
-from issuer.cli.app import app
 from issuer.cli.common import (
     PERSONAL_DATA_CAUTION,
     ActorOption,
     DbOption,
     ForceOption,
     JsonOption,
+    command_set,
     console,
     open_register_from_options,
     print_json,
@@ -21,13 +21,15 @@ from issuer.cli.common import (
     shown,
 )
 
+commands = command_set()
+
 #: batches up to this size are listed code by code in the terminal
 LIST_UP_TO = 50
 
 ReasonOption = Annotated[str, typer.Option("--reason", help="Why, in a few words: it goes into the log.")]
 
 
-@app.command("issue")
+@commands.command("issue")
 def issue(
     key: Annotated[str, typer.Argument(help="The series to issue from.")],
     *,
@@ -134,7 +136,7 @@ def _render_issue(result: Any, out: Path | None, has_holder: bool) -> None:
         out_console.print(PERSONAL_DATA_CAUTION, style="dim")
 
 
-@app.command("void")
+@commands.command("void")
 def void(
     code: Annotated[str, typer.Argument(help="The code to void, as typed or scanned.")],
     *,
@@ -153,7 +155,7 @@ def void(
         console().print(f"Voided [bold]{record.display}[/bold] ({record.series}): {shown(record.void_reason)}")
 
 
-@app.command("replace")
+@commands.command("replace")
 def replace(
     code: Annotated[str, typer.Argument(help="The code to replace, as typed or scanned.")],
     *,
@@ -173,7 +175,7 @@ def replace(
         console().print(f"Voided {result.replaces_display}; its replacement is [bold]{result.display}[/bold]")
 
 
-@app.command("restore")
+@commands.command("restore")
 def restore(
     code: Annotated[str, typer.Argument(help="The voided code to bring back.")],
     *,
@@ -192,7 +194,7 @@ def restore(
         console().print(f"Restored [bold]{record.display}[/bold]: it is in use again")
 
 
-@app.command("history")
+@commands.command("history")
 def history(
     code: Annotated[str, typer.Argument(help="The code, as typed or scanned.")],
     *,

@@ -4,8 +4,9 @@ from __future__ import annotations
 
 from typing import Any
 
-from issuer.cli.app import app
-from issuer.cli.common import JsonOption, console, print_json
+from issuer.cli.common import JsonOption, command_set, console, print_json
+
+commands = command_set()
 
 
 def _layout_rows() -> list[dict[str, Any]]:
@@ -26,7 +27,7 @@ def _n(value: float) -> str:
     return f"{value:.3f}".rstrip("0").rstrip(".")
 
 
-@app.command("layouts")
+@commands.command("layouts")
 def layouts(as_json: JsonOption = False) -> None:
     """List the label layouts: built-in presets and your own layouts.NAME tables from the
     config file, with their physical dimensions (mm). Print label PDFs at 100 % scale

@@ -7,22 +7,26 @@ from typing import Annotated, Any
 
 import typer
 
-from issuer.cli.app import app
 from issuer.cli.common import (
     DbOption,
     JsonOption,
+    command_set,
     console,
+    err_console,
+    open_existing_from_options,
     open_register_from_options,
     print_json,
     shown,
 )
+
+commands = command_set()
 
 log_app = typer.Typer(
     help="Show the log of who did what and when; 'log verify' checks that nobody edited it.",
     invoke_without_command=True,
     no_args_is_help=False,
 )
-app.add_typer(log_app, name="log")
+commands.add_typer(log_app, name="log")
 
 
 def parse_since(text: str | None) -> datetime | None:
@@ -129,3 +133,104 @@ def _detail_summary(detail: str) -> str:
     data = json.loads(detail)
     data.pop("codes_sha256", None)
     return ", ".join(f"{key}={value}" for key, value in data.items())
+
+
+TAMPER_NOTE = (
+    "The chain shows edits made behind issuer's back; someone able to rewrite the whole "
+    "log and its head can hide them: compare with an anchor written down elsewhere "
+    "('issuer log anchor')."
+)
+
+
+# --- issuer log verify / anchor -----------------------------------------------------
+
+
+@log_app.command("verify")
+def log_verify(
+    *,
+    anchor: Annotated[
+        list[str] | None,
+        typer.Option(
+            "--anchor",
+            help="An anchor written down earlier (ID:HASH from 'issuer log anchor'): check the "
+            "entry is still in the chain, unchanged. Repeat for several.",
+        ),
+    ] = None,
+    db: DbOption = None,
+    as_json: JsonOption = False,
+) -> None:
+    """Recompute the log's hash chain and name the first entry edited behind issuer's back.
+
+    Reports the first entry altered, deleted or inserted. Exit 1 when the chain or an
+    anchor does not hold. Someone able to rewrite the whole chain and its head can hide
+    an edit: check against an anchor written down elsewhere ('issuer log anchor').
+    """
+    from issuer.register.admin import parse_anchor, verify_log
+
+    anchors = [parse_anchor(value) for value in anchor or []]
+    register = open_existing_from_options(db)
+    if as_json:
+        report, checks = verify_log(register, anchors)
+    else:
+        with err_console().status("Recomputing the log's hash chain"):
+            report, checks = verify_log(register, anchors)
+    register.close()
+    broken = report.problem is not None or any(not check.holds for check in checks)
+    if as_json:
+        print_json({
+            "intact": report.intact,
+            "entries": report.entries,
+            "head": {"id": report.head_id, "hash": report.head_hash},
+            "problem": None if report.problem is None else {
+                "entry": report.problem.entry_id, "problem": report.problem.problem,
+            },
+            "anchors": [
+                {"anchor": str(check.anchor), "holds": check.holds, "problem": check.problem}
+                for check in checks
+            ],
+        })
+    else:
+        out = console()
+        if report.problem is None:
+            out.print(
+                f"[green]Log intact[/]: {report.entries:,} entries, head "
+                f"{report.head_id}:{report.head_hash}"
+            )
+        else:
+            out.print(
+                f"[bold red]Log broken at entry {report.problem.entry_id}[/]: {report.problem.problem}"
+            )
+        for check in checks:
+            if check.holds:
+                out.print(f"[green]Anchor holds[/]: {check.anchor.entry_id} is unchanged")
+            else:
+                out.print(f"[bold red]Anchor fails[/]: {check.problem}")
+        out.print(TAMPER_NOTE, style="dim")
+    if broken:
+        raise typer.Exit(1)
+
+
+@log_app.command("anchor")
+def log_anchor(db: DbOption = None, as_json: JsonOption = False) -> None:
+    """Print the log's newest entry as ID:HASH, to write down or publish elsewhere.
+
+    Later, 'issuer log verify --anchor ID:HASH' shows whether the log up to it changed.
+    """
+    from issuer.register.admin import current_anchor
+
+    register = open_existing_from_options(db)
+    anchor, at = current_anchor(register)
+    register.close()
+    if as_json:
+        print_json({"id": anchor.entry_id, "hash": anchor.hash, "at": at, "anchor": str(anchor)})
+        return
+    if anchor.entry_id == 0:
+        console().print("The log is empty; there is nothing to anchor yet.")
+        return
+    typer.echo(str(anchor))
+    when = f" (entry of {at:%Y-%m-%d %H:%M:%S} UTC)" if at is not None else ""
+    err_console().print(
+        f"Write this down or publish it somewhere the register cannot reach{when}; "
+        "check it later with: issuer log verify --anchor ID:HASH",
+        style="dim",
+    )

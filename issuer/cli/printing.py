@@ -11,13 +11,13 @@ from typing import Annotated, Any
 
 import typer
 
-from issuer.cli.app import app
 from issuer.cli.common import (
     PERSONAL_DATA_CAUTION,
     ActorOption,
     DbOption,
     ForceOption,
     JsonOption,
+    command_set,
     console,
     open_register_from_options,
     print_json,
@@ -27,6 +27,8 @@ from issuer.cli.proofs import PrintOption, ProofOption
 
 # the defaults live with the print job; named here for --help
 from issuer.labels.layouts import DEFAULT_SHEET_LAYOUT, DEFAULT_SINGLE_LAYOUT
+
+commands = command_set()
 
 #: jobs of at least this many labels show a progress bar (about a second of drawing)
 PROGRESS_FROM = 1000
@@ -311,7 +313,7 @@ def _void_mode(void_labels: bool, without_void: bool) -> str:
     return VOID_MARK if void_labels else VOID_OMIT if without_void else VOID_REFUSE
 
 
-@app.command("labels", help=LABELS_HELP)
+@commands.command("labels", help=LABELS_HELP)
 def labels(
     codes: Annotated[
         list[str] | None,
@@ -381,7 +383,7 @@ def labels(
     )  # fmt: skip
 
 
-@app.command("reprint", help=REPRINT_HELP)
+@commands.command("reprint", help=REPRINT_HELP)
 def reprint(
     codes: Annotated[
         list[str],

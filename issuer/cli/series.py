@@ -6,12 +6,12 @@ from typing import Annotated
 
 import typer
 
-from issuer.cli.app import app
 from issuer.cli.common import (
     SCATTER_CAUTION,
     ActorOption,
     DbOption,
     JsonOption,
+    command_set,
     console,
     err_console,
     open_register_from_options,
@@ -19,6 +19,8 @@ from issuer.cli.common import (
     shown,
 )
 from issuer.errors import InvalidFormat
+
+commands = command_set()
 
 PeopleOption = Annotated[
     bool | None,
@@ -32,7 +34,7 @@ PeopleOption = Annotated[
 ]
 
 series_app = typer.Typer(help="Define series (the shape of their codes) and see how full they are.")
-app.add_typer(series_app, name="series")
+commands.add_typer(series_app, name="series")
 
 
 def parse_group(text: str | None) -> tuple[int, ...]:

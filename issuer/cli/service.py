@@ -7,14 +7,23 @@ from typing import Annotated
 
 import typer
 
-from issuer.cli.app import app
-from issuer.cli.common import ActorOption, DbOption, JsonOption, console, open_register_from_options, print_json
+from issuer.cli.common import (
+    ActorOption,
+    DbOption,
+    JsonOption,
+    command_set,
+    console,
+    open_register_from_options,
+    print_json,
+)
+
+commands = command_set()
 
 tokens_app = typer.Typer(help="Bearer tokens for the HTTP service: add, list, revoke.")
-app.add_typer(tokens_app, name="tokens")
+commands.add_typer(tokens_app, name="tokens")
 
 
-@app.command("serve")
+@commands.command("serve")
 def serve(
     *,
     host: Annotated[str, typer.Option("--host", help="Address to listen on. Keep the default and put a TLS reverse proxy in front for other machines.")] = "127.0.0.1",

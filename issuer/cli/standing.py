@@ -7,21 +7,23 @@ from typing import Annotated
 
 import typer
 
-from issuer.cli.app import app
 from issuer.cli.common import (
     ActorOption,
     DbOption,
     JsonOption,
+    command_set,
     console,
     open_register_from_options,
     print_json,
     shown,
 )
 
+commands = command_set()
+
 CodeArgument = Annotated[str, typer.Argument(help="The code, as typed or scanned.")]
 
 
-@app.command("renew")
+@commands.command("renew")
 def renew(
     code: CodeArgument,
     *,
@@ -49,7 +51,7 @@ def renew(
     console().print(f"[bold]{renewal.display}[/bold] is valid until {renewal.valid_until:%Y-%m-%d %H:%M} UTC")
 
 
-@app.command("suspend")
+@commands.command("suspend")
 def suspend(
     code: CodeArgument,
     *,
@@ -69,7 +71,7 @@ def suspend(
     console().print(f"[bold]{record.display}[/bold] is suspended: {shown(record.suspend_reason)}")
 
 
-@app.command("reinstate")
+@commands.command("reinstate")
 def reinstate(
     code: CodeArgument,
     *,

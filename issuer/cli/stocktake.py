@@ -9,12 +9,12 @@ from typing import TYPE_CHECKING, Annotated, Any
 
 import typer
 
-from issuer.cli.app import app
 from issuer.cli.common import (
     ActorOption,
     DbOption,
     ForceOption,
     JsonOption,
+    command_set,
     console,
     err_console,
     open_register_from_options,
@@ -23,6 +23,8 @@ from issuer.cli.common import (
     shown,
 )
 from issuer.outputs import check_target, output_text
+
+commands = command_set()
 
 if TYPE_CHECKING:
     from issuer.stocktake.reconcile import Reconciliation
@@ -37,7 +39,7 @@ SHOWN = (
 )
 
 
-@app.command(
+@commands.command(
     "reconcile",
     epilog="Exit status: 0 when every scan is an issued code, scanned once, and nothing is "
     "missing; 1 when the stocktake found something to look at; 2 on bad input.",
@@ -88,7 +90,6 @@ def reconcile_command(
     from issuer.stocktake.reconcile import read_scans, reconcile, record_seen, sightings
     from issuer.stocktake.report import as_json as report_json
     from issuer.stocktake.report import write_report
-
     from issuer.stocktake.zones import resolve_zone
 
     zone = resolve_zone(tz)

@@ -9,13 +9,13 @@ from typing import TYPE_CHECKING, Annotated
 
 import typer
 
-from issuer.cli.app import app
 from issuer.cli.common import (
     PERSONAL_DATA_CAUTION,
     ActorOption,
     DbOption,
     ForceOption,
     JsonOption,
+    command_set,
     console,
     err_console,
     fail,
@@ -25,6 +25,8 @@ from issuer.cli.common import (
 )
 from issuer.outputs import check_target, output_text
 
+commands = command_set()
+
 if TYPE_CHECKING:
     from issuer.register.importing import ImportPlan, ImportResult
 
@@ -32,7 +34,7 @@ if TYPE_CHECKING:
 SHOW_ROWS = 10
 
 
-@app.command(
+@commands.command(
     "export",
     epilog=f"{PERSONAL_DATA_CAUTION} An export carries each code's holder; keep the file accordingly.",
 )
@@ -77,7 +79,7 @@ def export(
     err_console().print(f"Exported {written:,} codes of series {key} to {out}")
 
 
-@app.command(
+@commands.command(
     "import",
     epilog=f"{PERSONAL_DATA_CAUTION} Import holders only where your policy allows it.",
 )

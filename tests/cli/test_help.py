@@ -11,12 +11,17 @@ import typer.main
 from typer.testing import CliRunner
 
 from issuer.cli.app import app
+from issuer.cli.common import Context, Group
 
 
 def _walk(command: Any, path: tuple[str, ...] = ()) -> Iterator[tuple[tuple[str, ...], Any]]:
+    """Through Click's own interface (list_commands/get_command), so the root group's
+    lazily loaded commands are walked too."""
     yield path, command
-    for name, sub in sorted(getattr(command, "commands", {}).items()):
-        yield from _walk(sub, (*path, name))
+    if isinstance(command, Group):
+        context = Context(command)
+        for name in sorted(command.list_commands(context)):
+            yield from _walk(command.get_command(context, name), (*path, name))
 
 
 COMMANDS = list(_walk(typer.main.get_command(app)))

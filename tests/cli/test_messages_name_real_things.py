@@ -16,10 +16,19 @@ from typing import Any
 import typer.main
 
 from issuer.cli.app import app
+from issuer.cli.common import Context, Group
 from issuer.config import bundled_config_text
 
 PACKAGE_ROOT = Path(str(resources.files("issuer")))
 ROOT = typer.main.get_command(app)
+
+
+def _subcommands(command: Any) -> dict[str, Any]:
+    """A group's commands through Click's interface (the root loads its commands lazily)."""
+    if not isinstance(command, Group):
+        return {}
+    context = Context(command)
+    return {name: command.get_command(context, name) for name in command.list_commands(context)}
 
 # options of other programs that issuer prints in full command lines (pg_dump, pg_restore)
 OTHER_PROGRAMS = {"--file", "--dbname", "--clean", "--if-exists"}
@@ -32,7 +41,7 @@ OPTION = re.compile(r"(?<![\w-])--[a-z][a-z0-9-]*")
 
 def _commands(command: Any = ROOT, path: tuple[str, ...] = ()) -> Iterator[tuple[tuple[str, ...], Any]]:
     yield path, command
-    for name, sub in getattr(command, "commands", {}).items():
+    for name, sub in _subcommands(command).items():
         yield from _commands(sub, (*path, name))
 
 
@@ -70,7 +79,7 @@ def _resolve(words: list[str]) -> tuple[tuple[str, ...], Any] | None:
     path: tuple[str, ...] = ()
     command = ROOT
     for word in words:
-        sub = getattr(command, "commands", {}).get(word)
+        sub = _subcommands(command).get(word)
         if sub is None:
             break
         path, command = (*path, word), sub
