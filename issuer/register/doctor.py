@@ -12,9 +12,13 @@ not wrong) or ``problem`` (the register disagrees with itself). The checks:
 * every batch whole: as many codes as it says, each batch logged once, the logged
   count and the SHA-256 over its codes matching what is stored;
 * voids logged, replacement links pointing both ways;
-* SQLite: the file owner-only; PostgreSQL: the log's append-only trigger in place;
-* SQLite: the register's folder owner-only; temporaries of output files left behind by a
-  stopped process (``--fix`` removes them).
+* the log replayed against the register (:mod:`issuer.register.replay`): each code's
+  status, void reason, links, holder, print count and last sighting, each batch's kind
+  and author, each series' shape, as the logged acts imply;
+* SQLite: the file and its folder owner-only, temporaries of output files left behind by
+  a stopped process reported (``--fix`` removes them); PostgreSQL: the log's append-only triggers, the append
+  function and the counter guard in force (missing or disabled is a problem), and the
+  rights triggers of ``db roles --apply`` all present once any is.
 """
 
 from __future__ import annotations
@@ -262,6 +266,19 @@ def check_log_agrees(session: Session) -> Finding:
     )
 
 
+def check_replay(session: Session) -> Finding:
+    from issuer.register.replay import replay_problems
+
+    problems, warnings, named = replay_problems(session)
+    if problems:
+        found = _finding("replay", problems, "", "{n} difference(s) between the register and what its log's acts imply")
+        found.details += warnings
+        return found
+    if warnings:
+        return Finding("replay", WARN, warnings[0], warnings[1:])
+    return Finding("replay", OK, f"the register is what its log's acts imply ({named:,} codes and batches named)")
+
+
 def check_guard(register: Register, session: Session) -> Finding:
     if register.backend == "sqlite":
         path = sqlite_path(register)
@@ -278,21 +295,14 @@ def check_guard(register: Register, session: Session) -> Finding:
         return Finding("access", OK, f"the register file is owner-only (mode {mode:o})")
     if register.backend != "postgresql":
         return Finding("access", SKIPPED, f"no access check for {register.backend}")
-    from issuer.register.roles import GUARD_TRIGGER
+    from issuer.register.rights import guard_problems
 
-    present = session.execute(
-        text(
-            "SELECT count(*) FROM pg_trigger WHERE tgrelid = to_regclass('log_entry') "
-            "AND tgname = :name AND tgenabled <> 'D'"
-        ),
-        {"name": GUARD_TRIGGER},
-    ).scalar_one()
-    if present:
-        return Finding("access", OK, "log_entry is append-only (trigger in place)")
-    return Finding(
-        "access", WARN,
-        "log_entry has no append-only trigger: 'issuer db roles --apply' sets it and the roles up",
-    )
+    problems, notes = guard_problems(session)
+    if problems:
+        return Finding("access", PROBLEM, "the database's guards are not all in force", problems + notes)
+    if notes:
+        return Finding("access", WARN, notes[0], notes[1:])
+    return Finding("access", OK, "log_entry is append-only and appended by one function (triggers in force)")
 
 
 def run_doctor(register: Register, stage: Stage | None = None, *, fix: bool = False) -> DoctorReport:
@@ -330,6 +340,7 @@ def run_doctor(register: Register, stage: Stage | None = None, *, fix: bool = Fa
             run("log and codes", lambda: check_log_agrees(session), session)
             run("states", lambda: check_states(session, register.clock()), session)
             run("fill", lambda: check_fill(session), session)
+            run("replay", lambda: check_replay(session), session)
         run("access", lambda: check_guard(register, session), session)
     path = sqlite_path(register)
     findings.append(Finding("folder", *check_folder(path)))

@@ -30,7 +30,7 @@ from issuer.errors import Conflict, InvalidFormat, OutOfLimits
 from issuer.readers.bulkread import BAD_CHECK, MALFORMED, read_codes
 from issuer.readers.scanfile import Table
 from issuer.register.driver import bind_value, execute_many, insert_many
-from issuer.register.log import NewEntry, append_entries
+from issuer.register.log import NewEntry, append_entries, rows_digest, timestamp_text
 from issuer.register.models import EXPIRED, ISSUED, SUSPENDED, VOIDED, Batch, IssuedCode
 from issuer.register.series import all_series, code_format, get_series
 from issuer.register.standing import search_key
@@ -300,14 +300,30 @@ def apply_import(
         entries = [NewEntry("import", series.id, plan.rows[0].code if len(plan.rows) == 1 else None, batch.id, {
             "count": len(plan.rows), "first": plan.rows[0].code, "last": plan.rows[-1].code,
             "codes_sha256": digest.hexdigest(), "source": plan.source, "voided": len(voided),
-            "skipped": len(plan.rejected),
+            "skipped": len(plan.rejected), "rows_sha256": rows_digest(
+                (row.issued_at or now, row.issued_by or register.actor) for row in plan.rows
+            ),
+            "links": [[old, new] for old, new in links],
         })]  # fmt: skip
         entries.extend(
             NewEntry("void", series.id, row.code, None, {
                 "reason": row.void_reason, "imported": True,
-                "voided_at": (row.voided_at or now).isoformat(),
+                "voided_at": (row.voided_at or now).isoformat(), "voided_by": row.voided_by or register.actor,
             })
             for row in voided
+        )
+        # a sighting the file brings is logged as one, so the replay knows where each code was last seen
+        entries.extend(
+            NewEntry("seen", series.id, row.code, None, {
+                "seen_at": timestamp_text(row.last_seen_at), "source": plan.source, "imported": True,
+                **({"where": row.last_seen_where} if row.last_seen_where else {}),
+            })
+            for row in plan.rows if row.last_seen_at is not None
+        )
+        # a code brought in suspended is logged as suspended (no holder text, like every entry)
+        entries.extend(
+            NewEntry("suspend", series.id, row.code, None, {"reason": "suspended in the imported file", "imported": True})
+            for row in plan.rows if row.status == SUSPENDED
         )
         append_entries(session, entries, actor=register.actor, at=now)
         return ImportResult(series.key, batch.id, len(plan.rows), len(voided), plan.rows[0].code, plan.rows[-1].code)

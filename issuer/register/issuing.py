@@ -202,8 +202,11 @@ def issue_codes(
         return replay
 
 
-def issue_detail(codes: Sequence[str], request_id: str | None) -> dict[str, Any]:
-    """What the log entry of a small batch says about it."""
+def issue_detail(
+    codes: Sequence[str], request_id: str | None, holder: str | None = None, note: str | None = None
+) -> dict[str, Any]:
+    """What the log entry of a small batch says about it (never holder text: the log keeps
+    no personal data)."""
     detail: dict[str, Any] = {
         "count": len(codes),
         "first": codes[0],
@@ -237,7 +240,7 @@ def _issue_few(
     append_entry(
         session,
         NewEntry("issue", series.id, codes[0] if count == 1 else None, batch_id,
-                 issue_detail(codes, request_id)),
+                 issue_detail(codes, request_id, holder, note)),
         actor=register.actor,
         at=at,
     )  # fmt: skip

@@ -12,12 +12,12 @@ from __future__ import annotations
 
 import hashlib
 import json
-from collections.abc import Generator, Iterable, Mapping
+from collections.abc import Generator, Iterable, Mapping, Sequence
 from dataclasses import dataclass
 from datetime import datetime
 from typing import Any, cast
 
-from sqlalchemy import Table, bindparam, insert, select, update
+from sqlalchemy import Table, bindparam, insert, select, text, update
 from sqlalchemy.orm import Session
 
 from issuer.register.driver import Prepared
@@ -42,8 +42,9 @@ def entry_hash(
     batch_id: int | None,
     detail: str,
     prev_hash: str,
+    login: str | None = None,
 ) -> str:
-    content = {
+    content: dict[str, Any] = {
         "id": entry_id,
         "at": timestamp_text(at),
         "actor": actor,
@@ -54,6 +55,8 @@ def entry_hash(
         "detail": detail,
         "prev": prev_hash,
     }
+    if login is not None:  # PostgreSQL's append function records the login (SQLite has none)
+        content["login"] = login
     data = json.dumps(content, sort_keys=True, separators=(",", ":"), ensure_ascii=False)
     return hashlib.sha256(data.encode("utf-8")).hexdigest()
 
@@ -67,6 +70,20 @@ class NewEntry:
     code: str | None = None
     batch_id: int | None = None
     detail: Mapping[str, Any] | None = None
+
+
+#: the columns of an imported row that its import's log entry covers (later acts never change them)
+IMPORTED_COLUMNS = ("issued_at", "issued_by")  # never holder text: the log keeps no personal data
+
+
+def rows_digest(rows: Iterable[Sequence[Any]]) -> str:
+    """SHA-256 over rows of plain values, one JSON line each, times as :func:`timestamp_text`:
+    an import's log entry covers who holds what, with which note, since when and from whom."""
+    digest = hashlib.sha256()
+    for row in rows:
+        values = [timestamp_text(v) if isinstance(v, datetime) else v for v in row]
+        digest.update(json.dumps(values, ensure_ascii=False).encode("utf-8") + b"\n")
+    return digest.hexdigest()
 
 
 def detail_text(detail: Mapping[str, Any] | None) -> str:
@@ -123,18 +140,37 @@ def chain_rows(
     return rows
 
 
+#: PostgreSQL: the one append path (SECURITY DEFINER, migration log_rights): it locks the head,
+#: computes the hashes and records the login itself
+_APPEND_FUNCTION = text("SELECT issuer_log_append(:at, :actor, :entries)")
+
+
 def append_entries(
     session: Session, entries: Iterable[NewEntry], *, actor: str, at: datetime
 ) -> int:
     """Append entries to the chain inside the caller's transaction; returns how many.
 
-    The one place where the log grows: every act appends through here. The head row is
-    locked first, so concurrent writers append one after another; then the entries go
+    The one place where the log grows: every act appends through here. On PostgreSQL the
+    database's own SECURITY DEFINER function appends (it locks the head, computes the hashes
+    and records the login), so no role needs the right to write the log's tables. Otherwise
+    the head row is locked first, so concurrent writers append one after another; then the entries go
     in (one statement) and the head moves (one more). Writes go straight to the
     session's connection (flush ORM objects they refer to first): an ORM object that
     the caller loaded from these tables would not see them.
     """
     connection = session.connection()
+    if connection.dialect.name == "postgresql":
+        payload = [
+            {"action": e.action, "series": e.series_id, "code": e.code, "batch": e.batch_id,
+             "detail": detail_text(e.detail)}
+            for e in entries
+        ]  # fmt: skip
+        if not payload:
+            return 0
+        added = connection.execute(
+            _APPEND_FUNCTION, {"at": at, "actor": actor, "entries": json.dumps(payload)}
+        ).scalar_one()
+        return int(added)
     found = _LOCK_HEAD.one(connection)
     assert found is not None, "the register has no log head (not created by its migrations?)"
     rows = chain_rows(entries, actor=actor, at=at, last_id=int(found[0]), last_hash=str(found[1]))
@@ -209,6 +245,7 @@ def verify_chain(session: Session) -> ChainReport:
             batch_id=entry.batch_id,
             detail=entry.detail,
             prev_hash=entry.prev_hash,
+            login=entry.login,
         )
         if recomputed != entry.hash:
             problem = ChainProblem(entry.id, "its content no longer matches its hash (altered)")

@@ -182,7 +182,7 @@ class LogEntry(Base):
     hash, so an entry altered, removed or inserted behind the tool's back shows."""
 
     __tablename__ = "log_entry"
-    __table_args__ = (Index(None, "series_id", "id"), Index(None, "code"))
+    __table_args__ = (Index(None, "series_id", "id"), Index(None, "code"), Index(None, "batch_id"))
 
     id: Mapped[int] = mapped_column(Integer, primary_key=True)
     at: Mapped[datetime] = mapped_column(UTCDateTime())
@@ -195,6 +195,8 @@ class LogEntry(Base):
     detail: Mapped[str] = mapped_column(Text, default="{}")
     prev_hash: Mapped[str] = mapped_column(String(64))
     hash: Mapped[str] = mapped_column(String(64), unique=True)
+    #: the database login that appended it (PostgreSQL's session_user); None on SQLite
+    login: Mapped[str | None] = mapped_column(String(120), default=None)
 
 
 class LogHead(Base):

@@ -1,6 +1,6 @@
 """Roles the database enforces (PostgreSQL).
 
-Two group roles, and the log append-only for both:
+Two group roles; the log append-only and written only by one function:
 
 * the **clerk** issues, checks, reprints and reconciles: it reads everything, adds
   batches, codes and log entries, and may move only the columns those acts move (a
@@ -17,7 +17,12 @@ Neither may read ``access_token`` (the service's tokens: salts and scrypt digest
 guesser could work on offline); only the register's owner, the account the service runs
 as, touches it.
 
-Neither may UPDATE, DELETE or TRUNCATE ``log_entry``. A trigger refuses those acts to
+Neither may write ``log_entry`` or ``log_head`` directly: entries are appended only by
+the SECURITY DEFINER function ``issuer_log_append``, which computes the chain and
+records the database login itself. The rules grants cannot express (a code inserted
+only as issued, every change logged by the same act, counters never backwards) are
+triggers: see :mod:`issuer.register.rights`. A trigger refuses UPDATE, DELETE and TRUNCATE
+of the log to
 every role — the table's owner and superusers included — so even the account that runs
 migrations cannot edit the log without first dropping the trigger (which
 ``issuer doctor`` notices). Grants are per column, so a clerk's session cannot void a
@@ -35,6 +40,7 @@ import re
 from dataclasses import dataclass
 
 from issuer.errors import InvalidFormat
+from issuer.register.rights import rights_statements
 
 CLERK_ROLE = "issuer_clerk"
 ADMIN_ROLE = "issuer_admin"
@@ -42,6 +48,8 @@ ADMIN_ROLE = "issuer_admin"
 GUARD_FUNCTION = "issuer_log_append_only"
 GUARD_TRIGGER = "issuer_log_append_only"
 GUARD_TRUNCATE_TRIGGER = "issuer_log_no_truncate"
+#: the one way to append to the log (migration log_rights creates it)
+APPEND_FUNCTION = "issuer_log_append(timestamptz, text, text)"
 
 _NAME = re.compile(r"^[a-z_][a-z0-9_]{0,62}$")
 
@@ -76,8 +84,9 @@ CLERK_POLICY: dict[str, TableGrants] = {
             "holder", "holder_key", "note", "note_key", "valid_until",  # holder set/clear, renew
         ),
     ),
-    "log_entry": TableGrants(insert=True),
-    "log_head": TableGrants(update=("last_id", "last_hash")),
+    # the log is written only through issuer_log_append (SECURITY DEFINER)
+    "log_entry": TableGrants(),
+    "log_head": TableGrants(),
     "alembic_version": TableGrants(),
     "access_token": NO_ACCESS,
     **COUNT_GRANTS,
@@ -104,8 +113,8 @@ ADMIN_POLICY: dict[str, TableGrants] = {
             "suspended_at", "suspended_by", "suspend_reason",
         ),
     ),
-    "log_entry": TableGrants(insert=True),
-    "log_head": TableGrants(update=("last_id", "last_hash")),
+    "log_entry": TableGrants(),
+    "log_head": TableGrants(),
     "alembic_version": TableGrants(),
     "access_token": NO_ACCESS,
     **COUNT_GRANTS,
@@ -185,6 +194,9 @@ def guard_statements(schema: str) -> list[str]:
             f"CREATE TRIGGER {_q(GUARD_TRUNCATE_TRIGGER)} BEFORE TRUNCATE ON {table}\n"
             f"  FOR EACH STATEMENT EXECUTE FUNCTION {function}();"
         ),
+        # ALWAYS: they fire even under session_replication_role = replica
+        f"ALTER TABLE {table} ENABLE ALWAYS TRIGGER {_q(GUARD_TRIGGER)};",
+        f"ALTER TABLE {table} ENABLE ALWAYS TRIGGER {_q(GUARD_TRUNCATE_TRIGGER)};",
     ]
 
 
@@ -224,9 +236,15 @@ def roles_statements(
         *_grant_lines(admin, schema, ADMIN_POLICY, tables),
         "-- new codes, batches and series take ids from sequences",
         f"GRANT USAGE ON ALL SEQUENCES IN SCHEMA {on_schema} TO {roles};",
-        "-- the log is append-only for everyone, the table's owner included",
-        f"REVOKE UPDATE, DELETE, TRUNCATE ON {on_schema}.log_entry FROM PUBLIC, {roles};",
+        "-- the log is append-only for everyone, the table's owner included, and appended",
+        "-- only through the function that computes the chain and records the login",
+        f"REVOKE INSERT, UPDATE, DELETE, TRUNCATE ON {on_schema}.log_entry FROM PUBLIC, {roles};",
+        f"REVOKE INSERT, UPDATE, DELETE, TRUNCATE ON {on_schema}.log_head FROM PUBLIC, {roles};",
+        f"REVOKE ALL ON FUNCTION {on_schema}.{APPEND_FUNCTION} FROM PUBLIC;",
+        f"GRANT EXECUTE ON FUNCTION {on_schema}.{APPEND_FUNCTION} TO {roles};",
         *guard_statements(schema),
+        "-- what grants cannot say: values, and every change logged by the same act",
+        *rights_statements(schema, clerk=clerk, admin=admin),
         "-- give people their own login roles and make them members, for example:",
         f"--   CREATE ROLE alice LOGIN PASSWORD '...'; GRANT {_q(clerk)} TO alice;",
     ]

@@ -219,6 +219,7 @@ def add_series(register: Register, spec: SeriesSpec) -> Series:
 
     def work(session: Session) -> Series:
         lock_definitions(session)
+        at = register.clock()  # the series and its log entry carry the same moment
         if session.scalar(select(Series.id).where(Series.key == spec.key)) is not None:
             raise Conflict(f"a series {spec.key} exists already")
         for other in session.scalars(select(Series)):
@@ -245,7 +246,7 @@ def add_series(register: Register, spec: SeriesSpec) -> Series:
             code_count=0,
             imported_count=0,
             scatter_key=key_bytes,
-            created_at=register.clock(),
+            created_at=at,
             created_by=register.actor,
             holds_people=spec.mode == SCATTERED if spec.holds_people is None else spec.holds_people,
             valid_for_days=spec.valid_for_days or None,
@@ -259,6 +260,9 @@ def add_series(register: Register, spec: SeriesSpec) -> Series:
                 action="series.add",
                 series_id=series.id,
                 detail={
+                    "key": series.key,
+                    "grouping": series.grouping,
+                    "separator": series.separator,
                     "scheme": series.scheme,
                     "alphabet": series.alphabet,
                     "length": series.length,
@@ -271,10 +275,11 @@ def add_series(register: Register, spec: SeriesSpec) -> Series:
                     "holds_people": series.holds_people,
                     "valid_for_days": series.valid_for_days,
                     "fill_levels": series.fill_levels,
+                    "stored": stored_shape(series),
                 },
             ),
             actor=register.actor,
-            at=register.clock(),
+            at=at,
         )
         return series
 
@@ -353,7 +358,8 @@ def change_series(register: Register, key: str, **changes: object) -> Series:
             NewEntry(
                 action="series.change",
                 series_id=series.id,
-                detail={name: str(getattr(spec, name)) for name in sorted(wanted)},
+                detail={**{name: str(getattr(spec, name)) for name in sorted(wanted)},
+                        "stored": stored_shape(series)},
             ),
             actor=register.actor,
             at=register.clock(),
@@ -361,6 +367,24 @@ def change_series(register: Register, key: str, **changes: object) -> Series:
         return series
 
     return register.write(work)
+
+
+#: the series columns the log records at definition and change (the doctor replays them)
+SHAPE_COLUMNS = (
+    "key", "title", "scheme", "alphabet", "length", "prefix", "suffix", "grouping", "separator",
+    "mode", "range_start", "range_end",
+)  # fmt: skip
+
+
+def stored_shape(series: Series) -> dict[str, object]:
+    """The shape as stored, and a SHA-256 of the scatter key (it shows a changed key and
+    tells nothing about the key itself)."""
+    import hashlib
+
+    shape: dict[str, object] = {column: getattr(series, column) for column in SHAPE_COLUMNS}
+    key = series.scatter_key
+    shape["scatter_key_sha256"] = hashlib.sha256(bytes(key)).hexdigest() if key is not None else None
+    return shape
 
 
 def get_series(session: Session, key: str, *, lock: bool = False) -> Series:

@@ -23,6 +23,7 @@ from issuer.errors import PermissionDenied
 from issuer.register.admin import apply_statements, open_existing, roles_script
 from issuer.register.desk import check_codes
 from issuer.register.issuing import issue_codes
+from issuer.register.printing import record_prints
 from issuer.register.lifecycle import replace_code, restore_code, void_code
 from issuer.register.series import SeriesSpec, add_series
 from issuer.register.store import open_register
@@ -110,11 +111,11 @@ def test_a_clerk_issues_checks_reprints_and_reconciles(guarded: Guarded) -> None
         with clerk.reading() as session:
             answers = check_codes(session, [single.codes[0].code, guarded.codes[0]])
         assert [answer.status for answer in answers] == ["issued", "issued"]
-        # reprint and reconcile move only the columns granted to the clerk
-        assert raw(clerk, "UPDATE issued_code SET print_count = print_count + 1 WHERE code = :c",
-                   c=guarded.codes[1]) == 1  # fmt: skip
-        assert raw(clerk, "UPDATE issued_code SET last_seen_at = now(), last_seen_where = 'shelf B' "
-                   "WHERE code = :c", c=guarded.codes[2]) == 1  # fmt: skip
+        # a reprint moves the print count, logged by the same act
+        assert record_prints(clerk, [guarded.codes[1]], reprint=True, reason="label smudged") == 1
+        # the same column moved by hand, with no log entry, is refused at commit
+        refused(lambda: raw(clerk, "UPDATE issued_code SET last_seen_at = now(), last_seen_where = 'shelf B' "
+                            "WHERE code = :c", c=guarded.codes[2]))  # fmt: skip
     finally:
         clerk.close()
     assert_consistent(guarded.owner)
@@ -124,7 +125,7 @@ def test_a_clerk_may_not_void_replace_restore_or_define(guarded: Guarded) -> Non
     clerk = as_role(guarded.clerk, "clerk-ann")
     try:
         message = refused(lambda: void_code(clerk, guarded.codes[0], reason="lost"))
-        assert "issued_code" in message
+        assert "issued_code" in message or "act void" in message
         refused(lambda: replace_code(clerk, guarded.codes[0], reason="damaged"))
         refused(lambda: add_series(clerk, SeriesSpec(key="passes", scheme="luhn", length=5, prefix="D")))
         refused(lambda: raw(clerk, "UPDATE issued_code SET status = 'voided' WHERE code = :c", c=guarded.codes[0]))
@@ -220,7 +221,8 @@ def test_db_roles_prints_the_policy(guarded: Guarded, groups: Groups) -> None:
     assert script.startswith("BEGIN;") and script.rstrip().endswith("COMMIT;")
     assert 'GRANT UPDATE ("next_counter", "code_count") ON' in script
     assert f'"series" TO "{groups.clerk}";' in script
-    assert "REVOKE UPDATE, DELETE, TRUNCATE ON" in script
+    assert "REVOKE INSERT, UPDATE, DELETE, TRUNCATE ON" in script
+    assert "GRANT EXECUTE ON FUNCTION" in script and "issuer_log_append" in script
     assert "-- access_token: no access" in script and '"access_token" TO' not in script
     assert "BEFORE UPDATE OR DELETE ON" in script and "BEFORE TRUNCATE ON" in script
     # applying twice converges
