@@ -325,6 +325,13 @@ def apply_import(
             NewEntry("suspend", series.id, row.code, None, {"reason": "suspended in the imported file", "imported": True})
             for row in plan.rows if row.status == SUSPENDED
         )
+        # and a place the file gives as a placing, so the replay knows where each code belongs
+        entries.extend(
+            NewEntry("placed", series.id, row.code, None, {
+                "from": None, "to": row.expected_where, "by": plan.source, "imported": True,
+            })
+            for row in plan.rows if row.expected_where is not None
+        )
         append_entries(session, entries, actor=register.actor, at=now)
         return ImportResult(series.key, batch.id, len(plan.rows), len(voided), plan.rows[0].code, plan.rows[-1].code)
 

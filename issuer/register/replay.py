@@ -48,6 +48,7 @@ class CodeExpect:
     note: Any = UNKNOWN
     seen_at: str | None = None
     seen_where: str | None = None
+    expected_where: str | None = None
     last_entry: int = 0
 
 
@@ -170,6 +171,11 @@ def _status(status: str) -> Effect:
     return effect
 
 
+def _placed(replay: Replay, e: Entry) -> None:
+    if e.code is not None:
+        replay.code(e.code, e.id).expected_where = e.detail.get("to")
+
+
 def _series(replay: Replay, e: Entry) -> None:
     if e.series_id is None:
         return
@@ -212,7 +218,14 @@ ACTS: dict[str, Effect] = {
     "suspend": _status(SUSPENDED),
     "reinstate": _status(ISSUED),
     "renew": _nothing,  # validity moves on; the status stays what it was
+    "placed": _placed,
     "stocktake": _nothing,
+    # stock counts keep their own tables; access tokens theirs: no code, batch or series changes
+    "count_open": _nothing,
+    "count_add": _nothing,
+    "count_close": _nothing,
+    "token-add": _nothing,
+    "token-revoke": _nothing,
 }
 
 
@@ -262,7 +275,7 @@ def _same_time(one: Any, other: Any) -> bool:
 
 _CODE_ROWS = (
     "SELECT c.code, c.status, c.void_reason, c.holder, r1.code, r2.code, c.print_count, c.batch_id, "
-    "c.voided_by, c.voided_at, c.last_seen_at, c.last_seen_where, c.note FROM issued_code c "
+    "c.voided_by, c.voided_at, c.last_seen_at, c.last_seen_where, c.note, c.expected_where FROM issued_code c "
     "LEFT JOIN issued_code r1 ON r1.id = c.replaces_id LEFT JOIN issued_code r2 ON r2.id = c.replaced_by_id "
 )
 
@@ -294,6 +307,8 @@ def _code_problems(replay: Replay, row: Any, expect: CodeExpect) -> list[str]:
         if held_seen != expect.seen_at or row[11] != expect.seen_where:
             problems.append(f"{code}: last seen {held_seen} at {row[11]!r}, the log says "
                             f"{expect.seen_at} at {expect.seen_where!r}{where}")  # fmt: skip
+        if row[13] != expect.expected_where:
+            problems.append(f"{code}: expected at {row[13]!r}, the log's placings say {expect.expected_where!r}{where}")
     return problems
 
 
@@ -316,16 +331,18 @@ def replay_problems(session: Session) -> tuple[list[str], list[str], int]:
     # codes no act names: as their batch made them
     for row in session.execute(text(
         "SELECT c.code, c.status, c.void_reason, c.replaces_id, c.replaced_by_id, c.print_count, "
-        "c.last_seen_at, c.last_seen_where, c.voided_at, c.voided_by, c.batch_id FROM issued_code c "
+        "c.last_seen_at, c.last_seen_where, c.voided_at, c.voided_by, c.batch_id, c.expected_where "
+        "FROM issued_code c "
         "WHERE c.status <> 'issued' OR c.void_reason IS NOT NULL OR c.replaces_id IS NOT NULL "
         "OR c.replaced_by_id IS NOT NULL OR c.print_count <> 0 OR c.last_seen_at IS NOT NULL "
-        "OR c.last_seen_where IS NOT NULL OR c.voided_at IS NOT NULL OR c.voided_by IS NOT NULL"
+        "OR c.last_seen_where IS NOT NULL OR c.voided_at IS NOT NULL OR c.voided_by IS NOT NULL "
+        "OR c.expected_where IS NOT NULL"
     )):
         batch = replay.batches.get(row[10])
         if row[0] not in replay.codes and (batch is None or batch.complete or row[1] != ISSUED):
             what = {"status": row[1], "void reason": row[2], "replaces": row[3], "replaced by": row[4],
-                    "print count": row[5], "last seen": row[6], "last seen at": row[7],
-                    "voided at": row[8], "voided by": row[9]}  # fmt: skip
+                    "print count": row[5], "last seen": row[6], "last seen where": row[7],
+                    "voided at": row[8], "voided by": row[9], "expected at": row[11]}  # fmt: skip
             changed = ", ".join(f"{k} {v!r}" for k, v in what.items() if v not in (None, 0, ISSUED))
             problems.append(f"{row[0]}: {changed}, but no act in the log names this code")
     problems += _batch_problems(session, replay)

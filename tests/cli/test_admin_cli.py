@@ -183,7 +183,7 @@ BREAKAGES = {
     # a counter moved behind the tool's back: a gap in an in-order series
     "counter": ("UPDATE series SET next_counter = next_counter + 1 WHERE key = 'tools'", {"counters"}),
     # a code's text changed: the log's digest of its batch no longer matches
-    "code text": ("UPDATE issued_code SET code = 'T9999999' WHERE code = :a", {"log and codes"}),
+    "code text": ("UPDATE issued_code SET code = 'T9999999' WHERE code = :a", {"log and codes", "replay"}),
     # voided with no void logged
     "silent void": ("UPDATE issued_code SET status = 'voided' WHERE code = :b", {"log and codes", "replay"}),
     # the log edited (and its entry no longer names the batch's author)

@@ -30,6 +30,7 @@ from issuer.register.importing import IMPORT_ROLES, import_codes
 from issuer.register.issuing import issue_codes
 from issuer.register.lifecycle import replace_code, restore_code, void_code
 from issuer.register.models import Base
+from issuer.register.places import place_codes
 from issuer.register.printing import record_prints
 from issuer.register.series import SeriesSpec, add_series, code_format, get_series
 from issuer.register.stocktake import record_sightings
@@ -75,6 +76,7 @@ def build(url: str, folder: Path) -> Scene:
     void_code(register, tools[2], reason="mistake")
     restore_code(register, tools[2], reason="found again")
     record_prints(register, [tools[3]])
+    place_codes(register, [tools[3]], "shelf B2")
     from issuer.register.stocktake import Sighting
 
     record_sightings(register, "tools", [Sighting(code=tools[4], at=NOW, where="aisle 3", status="issued")],
