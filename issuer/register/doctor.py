@@ -323,7 +323,7 @@ def run_doctor(register: Register, stage: Stage | None = None, *, fix: bool = Fa
         except DBAPIError as exc:
             session.rollback()
             reason = str(exc.orig).splitlines()[0] if str(exc.orig) else type(exc.orig).__name__
-            findings.append(Finding(name, PROBLEM, f"the check could not run: {reason}"))
+            findings.append(Finding(name, PROBLEM, f"the check could not run: {reason}", [reason]))
 
     try:
         revision = register.schema_revision()
