@@ -140,10 +140,12 @@ def _quote(name: str) -> str:
 
 
 def upgrade() -> None:
-    with op.batch_alter_table("log_entry") as batch:
-        batch.add_column(sa.Column("login", sa.String(length=120), nullable=True))
-    op.create_index(op.f("ix_log_entry_batch_id"), "log_entry", ["batch_id"], unique=False)
     bind = op.get_bind()
+    # a downgrade keeps the column (the hashes of PostgreSQL's entries cover the login)
+    if "login" not in {c["name"] for c in sa.inspect(bind).get_columns("log_entry")}:
+        with op.batch_alter_table("log_entry") as batch:
+            batch.add_column(sa.Column("login", sa.String(length=120), nullable=True))
+        op.create_index(op.f("ix_log_entry_batch_id"), "log_entry", ["batch_id"], unique=False)
     if bind.dialect.name != "postgresql":
         for statement in SERIES_GUARD_SQLITE:
             op.execute(statement)
@@ -166,6 +168,4 @@ def downgrade() -> None:
     else:
         op.execute("DROP TRIGGER IF EXISTS issuer_series_counters")
         op.execute("DROP TRIGGER IF EXISTS issuer_series_shape")
-    op.drop_index(op.f("ix_log_entry_batch_id"), table_name="log_entry")
-    with op.batch_alter_table("log_entry") as batch:
-        batch.drop_column("login")
+    # log_entry.login and its index stay: dropping the logins would break the chain's hashes
