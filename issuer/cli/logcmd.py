@@ -110,7 +110,7 @@ def _render_acts(events: list[Any]) -> None:
             act.action,
             act.series or "",
             shown(_what(act)),
-            shown(_detail_summary(act.detail)),
+            shown(_detail_summary(act.detail, brief=True)),
         )
     rows.print(console())
 
@@ -127,12 +127,22 @@ def _what(act: Any) -> str:
     return ", ".join(parts)
 
 
-def _detail_summary(detail: str) -> str:
+#: an act's line shows at most this much of its details (--entries and --json show all)
+BRIEF_DETAILS = 72
+
+
+def _detail_summary(detail: str, *, brief: bool = False) -> str:
     import json
 
     data = json.loads(detail)
     data.pop("codes_sha256", None)
-    return ", ".join(f"{key}={value}" for key, value in data.items())
+    if brief:
+        # nested records (what a replay checks against) belong to --entries, not the act's line
+        data = {key: value for key, value in data.items() if not isinstance(value, dict | list)}
+    text = ", ".join(f"{key}={value}" for key, value in data.items())
+    if brief and len(text) > BRIEF_DETAILS:
+        text = text[: BRIEF_DETAILS - 1].rstrip(", ") + "…"
+    return text
 
 
 TAMPER_NOTE = (

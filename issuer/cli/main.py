@@ -3,8 +3,14 @@
 
 from __future__ import annotations
 
+import sys
+
 
 def main() -> None:
-    from issuer.cli.app import app
-
+    try:
+        from issuer.cli.app import app
+    except KeyboardInterrupt:
+        # Ctrl-C while the program was still loading: no command had begun to act
+        sys.stderr.write("\nissuer: interrupted while starting; nothing was done\n")
+        sys.exit(130)
     app(prog_name="issuer")
