@@ -267,7 +267,7 @@ def check_log_agrees(session: Session) -> Finding:
 
 
 def check_replay(session: Session) -> Finding:
-    from issuer.register.replay import replay_problems
+    from issuer.register.replay_findings import replay_problems
 
     problems, warnings, named = replay_problems(session)
     if problems:

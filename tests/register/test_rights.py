@@ -13,7 +13,6 @@ from sqlalchemy import text
 from sqlalchemy.exc import IntegrityError
 
 from issuer.errors import IssuerError
-
 from issuer.register.lifecycle import void_code
 from issuer.register.store import open_register
 from tests.register.consistency import assert_consistent
