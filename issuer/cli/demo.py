@@ -66,7 +66,7 @@ def demo(
         out.print(f"Replaced {old} with {new}")
     out.print(Rule("At the desk: codes as people typed them"))
     for (text, story), answer in zip(report.typed, report.answers):
-        answer.input = f"{text}\n[dim]{story}[/dim]"
+        answer.input = f"{text}\n({story})"  # plain: typed input is shown escaped
     render_answers(report.answers)
     out.print(f"[dim]{CHECK_CAUTION}\n{SCATTER_CAUTION}\n{PERSONAL_DATA_CAUTION}[/dim]")
     example = report.issued["tools"][0]
