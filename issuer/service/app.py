@@ -88,7 +88,7 @@ def create_app(register: Register, *, settings: Settings | None = None,
         from issuer.config import load_settings
 
         settings = load_settings()
-    app.state.issuer = ServiceState(register=register, settings=settings, max_body=max_body)
+    app.state.issuer = ServiceState(register=register, settings=settings)
     problems.install(app)
     app.include_router(api.router)
     app.include_router(web.router)

@@ -51,7 +51,6 @@ class ServiceState:
     register: Register
     #: the settings in force (label layouts, fonts, ...), as the CLI reads them
     settings: Settings
-    max_body: int = 8 * 1024 * 1024
     clock: Callable[[], float] = time.monotonic
     _gate: threading.Lock = field(default_factory=threading.Lock)
     _lock: threading.Lock = field(default_factory=threading.Lock)
