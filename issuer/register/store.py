@@ -171,6 +171,11 @@ def _is_permission_error(exc: DBAPIError) -> bool:
     return sqlstate == "42501" or "permission denied" in str(exc.orig).lower()
 
 
+def _refused(exc: DBAPIError) -> PermissionDenied:
+    first = str(exc.orig).splitlines()[0] if str(exc.orig).strip() else type(exc.orig).__name__
+    return PermissionDenied(f"the database refused this act for the connected role ({first})")
+
+
 @dataclass
 class Register:
     """An open register: an engine plus who is acting and the clock to use."""
@@ -185,9 +190,16 @@ class Register:
 
     @contextmanager
     def reading(self) -> Iterator[Session]:
-        """A session for reads; nothing it does is committed."""
+        """A session for reads; nothing it does is committed. A read the database refuses
+        to the connected role (a login without rights on a table) is one
+        :class:`PermissionDenied` line, as it is for :meth:`write`."""
         with Session(self.engine, expire_on_commit=False) as session:
-            yield session
+            try:
+                yield session
+            except DBAPIError as exc:
+                if _is_permission_error(exc):
+                    raise _refused(exc) from None
+                raise
 
     @contextmanager
     def writing(self) -> Iterator[Session]:
@@ -214,10 +226,7 @@ class Register:
                         "the connection to the register was lost; the act's outcome is unknown"
                     ) from None
                 if _is_permission_error(exc):
-                    raise PermissionDenied(
-                        "the database refused this act for the connected role "
-                        f"({str(exc.orig).splitlines()[0]})"
-                    ) from None
+                    raise _refused(exc) from None
                 if not _is_retryable(exc) or attempt == WRITE_ATTEMPTS:
                     if isinstance(exc, OperationalError) and _is_retryable(exc):
                         raise RegisterError(
