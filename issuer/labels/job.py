@@ -23,9 +23,16 @@ _PROGRESS_EVERY = 100
 
 @dataclass(frozen=True)
 class LabelContent:
-    """What one label shows: the canonical ``code`` (what the barcode carries), its grouped
-    ``display`` form, optional caption ``lines`` (series title, holder, a short caption),
-    whether it is marked VOID, and how many lines come before the code (``code_at``)."""
+    """What one label shows: the canonical ``code``, its grouped ``display`` form (the
+    printed line, and what the barcode carries), optional caption ``lines`` (series title,
+    holder, a short caption), whether it is marked VOID, and how many lines come before the
+    code (``code_at``).
+
+    The barcode carries the printed line character for character, so what a scanner types
+    into any system equals what a person reads beneath the symbol; issuer's own reading
+    rules read that form back as the code (separators are allowed anywhere). Only GS1
+    content differs: it carries the canonical code inside the AI (8004) element string, and
+    the GS1 human-readable line ``(8004) ...`` is printed with it."""
 
     code: str
     display: str
@@ -83,14 +90,14 @@ def prepare(
     gs1 = gs1_company_prefix is not None
     code_em = 0.0
     for label in labels:
+        whose = f"cannot print the label of {label.display}"
+        display = fonts.check(label.display, CODE_FONT, whose)
         if gs1:
             data = gs1_giai(str(gs1_company_prefix), label.code)
             lines = (f"({data[:4]}) {data[4:]}", *label.lines)
         else:
-            data, lines = label.code, tuple(label.lines)
+            data, lines = display, tuple(label.lines)
         symbols.append(encode(symbology, data, gs1=gs1))
-        whose = f"cannot print the label of {label.display}"
-        display = fonts.check(label.display, CODE_FONT, whose)
         displays.append(display)
         code_em = max(code_em, fonts.width(display, CODE_FONT, 1.0))
         all_lines.append(tuple(fonts.check(line, LINE_FONT, whose) for line in lines))

@@ -16,7 +16,7 @@ from issuer.labels import Layout, get_layout
 from issuer.register.models import IssuedCode, LogEntry
 from issuer.register.store import open_register
 
-from ..labels.conftest import MM_PER_PT, decode_pdf, page_text
+from ..labels.conftest import MM_PER_PT, decode_pdf, page_text, scanned
 
 TOOLS_TITLE = "Quillmere Tool Library"
 
@@ -62,8 +62,9 @@ def _state(db_path: Path) -> tuple[int, dict[str, int]]:
 
 
 def in_sheet_order(path: Path, layout: Layout | str) -> list[str]:
-    """Decoded texts read page by page, row by row, left to right — each symbol placed
-    in the layout cell that holds its centre."""
+    """The codes read from the decoded symbols page by page, row by row, left to right —
+    each symbol placed in the layout cell that holds its centre. A symbol carries its
+    printed line (the display form); :func:`scanned` reads it as issuer reads a scan."""
     layout = get_layout(layout) if isinstance(layout, str) else layout
     placed = []
     for found in decode_pdf(path):
@@ -74,7 +75,7 @@ def in_sheet_order(path: Path, layout: Layout | str) -> list[str]:
             if layout.cell(row, column).contains(*found.centre)
         ]
         assert len(cells) == 1, f"{found.text} is not inside exactly one cell"
-        placed.append((found.page, *cells[0], found.text))
+        placed.append((found.page, *cells[0], scanned(found.text)))
     return [text for *_, text in sorted(placed)]
 
 
@@ -107,6 +108,9 @@ def test_batch_sheet_over_two_pages(cli: Any, db_path: Path, folder: Path) -> No
     )
     text = " ".join(page_text(out))
     assert "QTL-0000-0018" in text and TOOLS_TITLE in text
+    # what a scanner types is the printed line, character for character
+    assert sorted(f.text for f in found) == sorted(set(text.split()) & {f.text for f in found})
+    assert "QTL-0000-0018" in {f.text for f in found}
     _, counts = _state(db_path)
     assert all(counts[code] == 1 for code in codes)
     assert sorted(p.name for p in folder.iterdir()) == ["batch.pdf"]

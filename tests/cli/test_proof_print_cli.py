@@ -13,7 +13,7 @@ import pytest
 
 from issuer.config import bundled_config_text
 
-from ..labels.conftest import decode_image, decode_pdf, page_text
+from ..labels.conftest import decode_image, decode_pdf, page_text, scanned
 from .test_printing_cli import _ok, _state, _tools
 
 # a stand-in print command: copies the file it is given to the path in argv[1]; exits with
@@ -57,7 +57,7 @@ def test_print_hands_the_complete_file_to_the_command(
     # the printer got the whole file: the same bytes as the kept PDF, every symbol on it
     assert received.read_bytes() == out.read_bytes()
     assert received.read_bytes().rstrip().endswith(b"%%EOF")
-    assert sorted(f.text for f in decode_pdf(received)) == sorted(codes)
+    assert sorted(scanned(f.text) for f in decode_pdf(received)) == sorted(codes)
     entries, counts = _state(db_path)
     assert set(counts.values()) == {1}
     history = json.loads(_ok(cli("history", codes[0], "--json")).stdout)
@@ -72,7 +72,7 @@ def test_print_without_out_keeps_no_file(
     before = set(tmp_path.iterdir())
     result = _ok(cli("labels", "--series", "tools", "--print"))
     assert "sent to the printer" in result.stdout
-    assert sorted(f.text for f in decode_pdf(received)) == sorted(codes)
+    assert sorted(scanned(f.text) for f in decode_pdf(received)) == sorted(codes)
     assert set(tmp_path.iterdir()) - before == {received}
     assert set(_state(db_path)[1].values()) == {1}
 
@@ -114,7 +114,7 @@ def test_proof_of_the_first_label_records_nothing(cli: Any, db_path: Path, tmp_p
         # 100 % scale: one 70 x 37 mm label of a4-3x8 at the recorded 300 dpi
         assert image.info["dpi"] == pytest.approx((300, 300), abs=0.01)
         assert image.size == pytest.approx((70 / 25.4 * 300, 37 / 25.4 * 300), abs=1)
-        assert [f.text for f in decode_image(image)] == [codes[0]]
+        assert [scanned(f.text) for f in decode_image(image)] == [codes[0]]
     assert _state(db_path) == before
 
 
@@ -128,7 +128,7 @@ def test_proof_of_a_page_with_outlines(cli: Any, db_path: Path, tmp_path: Path) 
     with Image.open(proof) as image:
         # an A4 page at 200 dpi: the first sheet, 22 labels after two used cells
         assert image.size == pytest.approx((210 / 25.4 * 200, 297 / 25.4 * 200), abs=1)
-        assert sorted(f.text for f in decode_image(image, dpi=200)) == sorted(codes[:22])
+        assert sorted(scanned(f.text) for f in decode_image(image, dpi=200)) == sorted(codes[:22])
     assert set(_state(db_path)[1].values()) == {0}
 
 
@@ -177,4 +177,4 @@ def test_member_card_layout_from_the_config_example(
     text = [line for line in page_text(out)[0].splitlines() if line.strip()]
     assert text[0] == "Quillmere Tool Library & Makers' Co-op"
     assert text[1] == "Ελένη Παπαδάκη" and text[3] == "Member"
-    assert [f.text for f in decode_pdf(out)] == [code]
+    assert [scanned(f.text) for f in decode_pdf(out)] == [code]

@@ -116,3 +116,11 @@ def page_text(path: Path) -> list[str]:
 @pytest.fixture
 def make_tags() -> Callable[..., list[LabelContent]]:
     return tool_tags
+
+
+def scanned(text: str) -> str:
+    """The code issuer reads from a decoded symbol: the barcode carries the printed line
+    (display form, separators and all), and the reading rules drop the separators."""
+    from issuer.checking.reading import typed_form
+
+    return typed_form(text)

@@ -60,7 +60,7 @@ def test_member_card_example_is_id1_and_prints_header_logo_and_fields_in_order(
         lines = [line for line in text.splitlines() if line.strip()]
         assert lines[0] == "Quillmere Tool Library & Makers' Co-op"
         assert lines[1:] == [name, c.display, "Member"]
-    assert [f.text for f in decode_pdf(out)] == [c.code for c in cards]
+    assert [f.text for f in decode_pdf(out)] == [c.display for c in cards]
 
 
 @pytest.mark.parametrize("symbology", ["code128", "qr", "datamatrix"])
@@ -69,7 +69,7 @@ def test_every_symbol_decodes_with_header_and_logo(tmp_path: Path, symbology: st
     tags = tool_tags(5)
     out = tmp_path / "tags.pdf"
     render_sheet(tags, tag, out, symbology=symbology)
-    assert [f.text for f in decode_pdf(out)] == [t.code for t in tags]
+    assert [f.text for f in decode_pdf(out)] == [t.display for t in tags]
     # the logo is drawn: dark pixels at the top-left, where the header band holds it
     page = rasterise(out)[0]
     px = 300 / 25.4
@@ -92,7 +92,7 @@ def test_png_logo_and_svg_output(tmp_path: Path) -> None:
     assert "data:image/png;base64," in svg and "Quillmere Tool Library" in svg
     render_labels([label], tag, tmp_path / "tag.png")
     [found] = decode_image(Image.open(tmp_path / "tag.png"))
-    assert found.text == label.code
+    assert found.text == label.display
 
 
 def _between_symbol_and_quiet_zone(tag: Layout, symbology: str) -> tuple[float, float]:
@@ -129,7 +129,7 @@ def test_logo_placement_is_checked(tmp_path: Path) -> None:
     cards = member_cards(1)
     out = tmp_path / "card.pdf"
     render_sheet(cards, card, out, symbology="qr", text_beside=True)
-    assert [f.text for f in decode_pdf(out)] == [cards[0].code]
+    assert [f.text for f in decode_pdf(out)] == [cards[0].display]
 
 
 @pytest.mark.parametrize(

@@ -65,7 +65,7 @@ def test_names_in_six_scripts_print_and_read_back(tmp_path: Path) -> None:
     for script, name in NAMES.items():
         assert name in text, script
     # every symbol still decodes beside the names
-    assert sorted(f.text for f in decode_pdf(out)) == sorted(card.code for card in cards)
+    assert sorted(f.text for f in decode_pdf(out)) == sorted(card.display for card in cards)
     data = out.read_bytes()
     # embedded TrueType subsets, never the built-in Type 1 fonts
     assert b"/FontFile2" in data and b"/Helvetica" not in data and b"/Courier" not in data

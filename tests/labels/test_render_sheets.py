@@ -40,7 +40,7 @@ def _assert_every_label_decodes_in_its_cell(
         assert (spot.page, spot.row, spot.column) == (page, row, column)
         assert spot.cell == layout.cell(row, column)
         here = [f for f in found if f.page == page and spot.cell.contains(*f.centre)]
-        assert [f.text for f in here] == [label.code], (
+        assert [f.text for f in here] == [label.display], (
             f"label {spot.index} at {page}/{row}/{column}"
         )
         symbol = here[0]
@@ -60,7 +60,7 @@ def _assert_every_label_decodes_in_its_cell(
             s.index for s in result.placements if s.page == f.page and s.cell.contains(*f.centre)
         ),
     )
-    assert [f.text for f in by_cell] == [label.code for label in labels]
+    assert [f.text for f in by_cell] == [label.display for label in labels]
 
 
 @pytest.mark.parametrize("layout_name", LAYOUTS)

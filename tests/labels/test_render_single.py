@@ -30,7 +30,7 @@ def test_png_single_label_decodes_at_its_size(tmp_path: Path, symbology: str) ->
         assert abs(image.size[1] - 25 / 25.4 * 300) < 1
         assert round(image.info["dpi"][0]) == 300
         found = decode_image(image.convert("L"))
-    assert [f.text for f in found] == [label.code]
+    assert [f.text for f in found] == [label.display]
     assert result.format == "png" and result.labels == 1
 
 
@@ -72,7 +72,7 @@ def test_svg_single_label(tmp_path: Path, symbology: str) -> None:
     title = root.find(f"{SVG}title")
     assert title is not None and title.text == f"{label.display} \u00b7 Quillmere Tool Library"
     assert not list(root.iter(f"{SVG}text")) and len(list(root.iter(f"{SVG}path"))) >= 2
-    assert [f.text for f in decode_image(_paint_svg(out))] == [label.code]
+    assert [f.text for f in decode_image(_paint_svg(out))] == [label.display]
 
 
 @pytest.mark.parametrize("symbology", ["code128", "datamatrix"])
@@ -130,7 +130,7 @@ def _nothing_written(folder: Path) -> bool:
         ),
         (
             lambda out: render_labels(
-                [LabelContent("QTL" + "0" * 60, "QTL-0")], get_layout("roll-50x25"), out
+                [LabelContent("QTL" + "0" * 60, "QTL-" + "0" * 60)], get_layout("roll-50x25"), out
             ),
             LabelError,
             "too small",

@@ -284,15 +284,17 @@ def test_a_large_job_is_one_transaction(register: Any) -> None:
 
 
 def test_print_selection_sheet_decodes_in_order_and_records(register: Any, folder: Path) -> None:
-    codes = [info.code for info in _tools(register, 28).codes]
+    issued = _tools(register, 28).codes
+    codes = [info.code for info in issued]
     selection = select_for_printing(register, series="tools")
     out = folder / "tools.pdf"
     outcome = print_selection(
         register, selection, out, LabelOptions(get_layout("a4-3x8"), lines=("title", "note"))
     )
     assert (outcome.labels, outcome.pages, outcome.logged) == (28, 2, 28)
-    # source: zxing-cpp, the reference decoder, reading each whole 300 dpi page
-    assert in_sheet_order(out, "a4-3x8") == codes
+    # source: zxing-cpp, the reference decoder, reading each whole 300 dpi page; each
+    # barcode carries the printed line (the display form)
+    assert in_sheet_order(out, "a4-3x8") == [info.display for info in issued]
     text = " ".join(page_text(out))
     assert "QTL-0000-0018" in text and TOOLS_TITLE in text and "workshop" in text
     assert set(_print_counts(register, codes)) == {1}
@@ -335,7 +337,8 @@ def test_failed_recording_leaves_no_new_file(register: Any, folder: Path) -> Non
 def test_reprint_of_one_png_label(register: Any, folder: Path) -> None:
     from ..labels.conftest import decode_image
 
-    code = _cards(register, 2).codes[1].code
+    card = _cards(register, 2).codes[1]
+    code = card.code
     selection = select_for_printing(register, codes=[code])
     out = folder / "card.png"
     with pytest.raises(InvalidFormat, match="reason"):
@@ -351,7 +354,7 @@ def test_reprint_of_one_png_label(register: Any, folder: Path) -> None:
 
     with Image.open(out) as image:
         # source: zxing-cpp, the reference decoder, over the whole label image
-        assert [f.text for f in decode_image(image)] == [code]
+        assert [f.text for f in decode_image(image)] == [card.display]
     with register.reading() as session:
         record, events = code_history(session, code)
     assert record.print_count == 1
