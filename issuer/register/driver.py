@@ -21,6 +21,18 @@ from sqlalchemy.sql import ClauseElement, Select
 from sqlalchemy.sql.compiler import SQLCompiler
 
 
+def driver_error(connection: Connection, sql: str, exc: Exception) -> DBAPIError:
+    """A driver's error as SQLAlchemy's own wrapped error, as Core would raise it: a
+    dropped connection is invalidated (the pool then replaces it) and flagged
+    ``connection_invalidated``, which the retry loop reads."""
+    dialect = connection.dialect
+    proxied = connection.connection
+    lost = bool(dialect.is_disconnect(exc, proxied.dbapi_connection, None))
+    if lost and not connection.invalidated:
+        connection.invalidate(exc)
+    return DBAPIError.instance(sql, None, exc, dialect.loaded_dbapi.Error, connection_invalidated=lost)
+
+
 def bind_value(session: Session, column: Column[Any], value: Any) -> Any:
     """``value`` as the driver takes it for ``column`` (what the ORM would send)."""
     dialect = session.get_bind().dialect
@@ -41,7 +53,7 @@ def execute_many(session: Session, sql: str, rows: Iterable[Sequence[Any]]) -> N
         cursor.executemany(sql, rows)  # type: ignore[arg-type]  # both drivers take any iterable
     except dialect.loaded_dbapi.Error as exc:
         # the same wrapped error the ORM would raise, so retries and callers see one kind
-        raise DBAPIError.instance(sql, None, exc, dialect.loaded_dbapi.Error) from None
+        raise driver_error(connection, sql, exc) from None
     finally:
         cursor.close()
 
@@ -65,7 +77,7 @@ def driver_rows(session: Session, sql: str, params: Sequence[Any] = ()) -> list[
         cursor.execute(sql, tuple(params))
         return list(cursor.fetchall())
     except dialect.loaded_dbapi.Error as exc:
-        raise DBAPIError.instance(sql, None, exc, dialect.loaded_dbapi.Error) from None
+        raise driver_error(connection, sql, exc) from None
     finally:
         cursor.close()
 
@@ -88,7 +100,7 @@ def stream_rows(session: Session, statement: Select[Any], size: int) -> Iterator
         while rows := cursor.fetchmany(size):
             yield rows
     except dialect.loaded_dbapi.Error as exc:
-        raise DBAPIError.instance(str(compiled), params, exc, dialect.loaded_dbapi.Error) from None
+        raise driver_error(connection, str(compiled), exc) from None
     finally:
         cursor.close()
 
@@ -156,7 +168,7 @@ class Prepared:
             return call(cursor, form)
         except dialect.loaded_dbapi.Error as exc:
             # the same wrapped error Core would raise, so retries and callers see one kind
-            raise DBAPIError.instance(form.sql, None, exc, dialect.loaded_dbapi.Error) from None
+            raise driver_error(connection, form.sql, exc) from None
         finally:
             cursor.close()
 
@@ -183,4 +195,4 @@ class Prepared:
         self._run(connection, call)
 
 
-__all__ = ["Prepared", "bind_value", "driver_rows", "execute_many", "insert_many", "stream_rows"]
+__all__ = ["Prepared", "bind_value", "driver_error", "driver_rows", "execute_many", "insert_many", "stream_rows"]

@@ -6,8 +6,12 @@ Backend quirks live here and nowhere else:
   foreign keys on, and every writing transaction opened with ``BEGIN IMMEDIATE`` — a
   deferred transaction that reads the counter and then writes fails at once under
   contention, whatever the busy timeout. New files are created owner-only (0600).
-* PostgreSQL (psycopg 3): writers lock the series row (FOR NO KEY UPDATE) and the log head with
-  ``SELECT ... FOR UPDATE``; serialization failures and deadlocks are retried.
+* PostgreSQL (psycopg 3): writers lock the series row (its counter moves in one
+  ``UPDATE … RETURNING``); serialization failures (SQLSTATE 40001) and deadlocks (40P01) are
+  retried. No ping on checkout: pooled connections are recycled after
+  :data:`POOL_RECYCLE_S`, and a connection found dead before the act's COMMIT was sent is
+  retried on a fresh one (nothing was committed); lost during the COMMIT, the outcome is
+  unknown and the act says so in one line (:class:`~issuer.errors.ConnectionLost`).
 
 The database is created and upgraded by Alembic (:mod:`issuer.register.migrate`);
 opening a register whose schema is already current never imports Alembic.
@@ -50,6 +54,10 @@ SCHEMA_HEAD = "log_rights"
 
 #: how often a writing transaction is tried when another desk holds the lock
 WRITE_ATTEMPTS = 20
+
+#: seconds after which a pooled PostgreSQL connection is replaced rather than reused
+#: (instead of a ping on every checkout, which costs a round trip per act)
+POOL_RECYCLE_S = 1800
 
 
 def _constraint_line(exc: IntegrityError) -> str:
@@ -153,7 +161,7 @@ def make_engine(url: str, *, busy_timeout_ms: int = 15000) -> Engine:
                 raise DBAPIError.instance(sql, None, exc, sqlite3.Error) from None
 
         return engine
-    return create_engine(url, pool_pre_ping=True)
+    return create_engine(url, pool_recycle=POOL_RECYCLE_S)
 
 
 def _is_retryable(exc: DBAPIError) -> bool:
@@ -202,28 +210,41 @@ class Register:
                 raise
 
     @contextmanager
-    def writing(self) -> Iterator[Session]:
+    def writing(self, steps: list[str] | None = None) -> Iterator[Session]:
         """One writing transaction: committed whole on success, rolled back whole on any
-        error. Use :meth:`write` to get the retries as well."""
+        error. Use :meth:`write` to get the retries as well. ``steps`` (if given) gets
+        ``"commit"`` once the work is done and the COMMIT is about to be sent."""
         with self.engine.connect() as connection:
             connection.execution_options(issuer_write=True)
             with Session(bind=connection, expire_on_commit=False) as session:
                 with session.begin():
                     yield session
+                    if steps is not None:
+                        steps.append("commit")
 
     def write(self, work: Callable[[Session], T]) -> T:
         """Run ``work`` in one writing transaction, retried (with jitter) while another
         desk holds the lock; ``work`` must be safe to run again from the start."""
         for attempt in range(1, WRITE_ATTEMPTS + 1):
+            steps: list[str] = []
             try:
-                with self.writing() as session:
+                with self.writing(steps) as session:
                     return work(session)
             except IntegrityError as exc:
                 raise DuplicateRow(_constraint_line(exc)) from exc
             except DBAPIError as exc:
                 if exc.connection_invalidated:
+                    if steps:  # lost while committing: the server may have committed or not
+                        raise ConnectionLost(
+                            "the connection to the register was lost while the act committed; "
+                            "its outcome is unknown"
+                        ) from None
+                    # lost before COMMIT was sent (a pooled connection the server had closed,
+                    # say): nothing was committed, so the act runs again on a fresh connection
+                    if attempt < WRITE_ATTEMPTS:
+                        continue
                     raise ConnectionLost(
-                        "the connection to the register was lost; the act's outcome is unknown"
+                        "the connection to the register kept dropping; nothing was written"
                     ) from None
                 if _is_permission_error(exc):
                     raise _refused(exc) from None
