@@ -9,6 +9,7 @@ from typing import Annotated, Any
 
 import typer
 
+from issuer.cli.answers import NEVER_ISSUED, answer_text
 from issuer.cli.common import (
     CHECK_CAUTION,
     DbOption,
@@ -30,7 +31,6 @@ STYLE = {
     "bad_check": "yellow",
     "malformed": "magenta",
 }
-NEVER_ISSUED = "Do not accept this number: the register never issued it."
 WORDS = {
     "issued": "in use",
     "expired": "EXPIRED",
@@ -176,13 +176,4 @@ def _show_desk_answer(out: Any, answer: Any, only: str | None, shape: Any) -> No
         return
     if shape is not None:  # suggestions from other series do not belong at this desk
         answer.suggestions = [s for s in answer.suggestions if shape.matches_shape(s.code)]
-    style = STYLE.get(answer.status, "")
-    headline = f"[{style}]{WORDS.get(answer.status, answer.status)}[/{style}]"
-    if answer.display:
-        headline += f"  {answer.display}"
-    if answer.series:
-        headline += f"  (series {answer.series})"
-    out.print(headline)
-    detail = _detail(answer)
-    if detail:
-        out.print(detail)
+    out.print(answer_text(answer))

@@ -106,7 +106,7 @@ def test_desk_line_mode(db_path: Path, codes: list[str]) -> None:
     assert result.stdout.count("help or ?") == 2  # help, then ?
     assert "not a code" not in result.stdout  # help, ? and empty lines are no codes
     assert result.stdout.count("in use") == 1  # q ended it before the last line
-    assert "typo (check fails)" in result.stdout and "did you mean" in result.stdout
+    assert "typo: the check character does not match" in result.stdout and "did you mean" in result.stdout
 
 
 def test_desk_ends_on_ctrl_d_with_a_newline(db_path: Path, codes: list[str]) -> None:
@@ -136,3 +136,33 @@ def test_desk_for_one_series(db_path: Path, codes: list[str], register: Register
     assert "not a code" in last and "cards" not in last
     unknown = _run(db_path, "desk", "--series", "tool")
     assert unknown.exit_code == 2 and "did you mean 'tools'?" in unknown.stderr
+
+
+def test_desk_draws_the_shared_answer(db_path: Path, codes: list[str]) -> None:
+    """The line desk prints answer_text: typed markup and controls come out as typed
+    (escaped), never as styling or terminal commands."""
+    result = _run(db_path, "desk", input="[red]QTL-99[/red]\nQTL\u202e12\n" + codes[0] + "\n", columns=120)
+    assert result.exit_code == 0, result.output
+    assert "[red]QTL-99[/red]" in result.stdout  # the markup printed literally
+    assert "\u202e" not in result.stdout  # a bidi override never reaches the terminal
+    assert "✓ in use" in result.stdout and "holder: Quillmere workshop" in result.stdout
+
+
+def test_answer_text_puts_the_advice_first() -> None:
+    from issuer.cli.answers import NEVER_ISSUED, answer_text
+    from issuer.register.desk import DeskAnswer, Suggestion
+
+    answer = DeskAnswer("QTL-0000-0135", "not_issued", "QTL00000135", "QTL-0000-0135", "tools",
+                        reason="a valid code that this register never issued")  # fmt: skip
+    answer.suggestions = [
+        Suggestion("QTL00000153", "QTL-0000-0153", "adjacent", "swap of 10th and 11th", 0.015),
+        Suggestion("QTL00000136", "QTL-0000-0136", "single", "11th: 6 typed as 5", 0.011),
+    ]
+    answer.advice = "two issued codes are one slip away: ask the person to read it again"
+    lines = answer_text(answer).plain.splitlines()
+    assert lines[0].startswith("✗ never issued   QTL-0000-0135")
+    assert lines[1] == answer.advice and lines[2] == NEVER_ISSUED
+    assert lines[-3:] == ["did you mean:", "  1. QTL-0000-0153  (swap of 10th and 11th)",
+                          "  2. QTL-0000-0136  (11th: 6 typed as 5)"]  # fmt: skip
+    answer.holder, answer.status = "Ana\x1b[31m", "issued"
+    assert "holder: Ana\\x1b[31m" in answer_text(answer).plain
