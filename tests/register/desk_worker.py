@@ -14,7 +14,9 @@ be there, even after the desk was killed. When every desk has ended the room rep
 ``{"desk": i, "op": "exit", "status": ..., "signal": ...}`` for each, and exits.
 
 Modes: ``define`` (define one series from ``spec``), ``issue`` (count codes one at a time), ``mixed`` (count acts: issue, or void or
-replace one of this desk's own codes), ``bulk`` (batches of low..high codes until
+replace one of this desk's own codes), ``failover`` (issue under request ids until
+the server goes away, then wait for the address of the new one, retry the act whose
+outcome is unknown under the same id and go on; see ``_issue_across_failover``), ``bulk`` (batches of low..high codes until
 killed), ``replace`` (replace recent issued codes until killed), ``import`` (import
 blocks of codes from the top of the range until killed).
 
@@ -105,6 +107,8 @@ def work(desk: int, job: dict[str, Any], register: Any) -> None:
             say(desk, {"op": "replace", "old": code, "code": new.code, "batch": new.batch})
     elif mode == "import":
         _import_until_killed(desk, job, register, rng)
+    elif mode == "failover":
+        register = _issue_across_failover(desk, job, register, rng)
     else:
         raise SystemExit(f"unknown mode {mode!r}")
     register.close()
@@ -171,6 +175,53 @@ def _import_until_killed(desk: int, job: dict[str, Any], register: Any, rng: ran
             "op": "import", "batch": result.batch, "count": result.imported,
             "first": result.first, "last": result.last,
         })
+
+
+def _issue_across_failover(desk: int, job: dict[str, Any], register: Any, rng: random.Random) -> Any:
+    """Issue 1..3 codes at a time, each act under its own request id, until ``after``
+    acts have been done on the new server. An act that fails because the server went
+    away has an unknown outcome: the desk says so, waits for the file ``switch`` to name
+    the new server, and sends the same act again under the same request id."""
+    import time
+    from pathlib import Path
+
+    from sqlalchemy.exc import DBAPIError
+
+    from issuer.errors import IssuerError
+    from issuer.register.issuing import issue_codes
+    from issuer.register.store import open_register
+
+    key, switch = job["series"], Path(job["switch"])
+    act, after, moved = 0, 0, False
+    while after < job["after"]:
+        request = f"{job.get('actor', desk)}-{act:05d}"
+        count = rng.randint(1, 3)
+        say(desk, {"op": "begin", "request": request, "count": count})
+        try:
+            result = issue_codes(register, key, count, request_id=request)
+        except (IssuerError, DBAPIError) as exc:
+            if moved:
+                raise
+            say(desk, {"op": "unknown", "request": request, "why": str(exc).splitlines()[0][:300]})
+            register.close()
+            deadline = time.monotonic() + job.get("wait", 60)
+            while not switch.exists():
+                if time.monotonic() > deadline:
+                    raise SystemExit(f"desk {desk}: no new server named in {switch}") from None
+                time.sleep(0.02)
+            register = open_register(switch.read_text().strip(), actor=job.get("actor", f"desk-{desk}"), create=False)
+            moved = True
+            result = issue_codes(register, key, count, request_id=request)
+            op = "retried"
+        else:
+            op = "issue"
+        say(desk, {
+            "op": op, "request": request, "count": count, "replayed": result.replayed,
+            "codes": [code.code for code in result.codes], "moved": moved,
+        })
+        act += 1
+        after += moved
+    return register
 
 
 def main() -> None:

@@ -9,6 +9,7 @@ import subprocess
 import sys
 import time
 from pathlib import Path
+from collections.abc import Callable
 from typing import Any
 
 WORKER = Path(__file__).with_name("desk_worker.py")
@@ -48,6 +49,18 @@ class DeskRoom:
         assert self.process.stdin is not None
         self.process.stdin.write("go\n")
         self.process.stdin.flush()
+
+    def until(self, enough: Callable[[list[dict[str, Any]]], bool]) -> list[dict[str, Any]]:
+        """Read the desks' lines as they come until ``enough(lines so far)``; those lines
+        (``finish`` returns them too)."""
+        assert self.process.stdout is not None
+        while not enough(self._lines):
+            line = self.process.stdout.readline()
+            if not line:
+                _, err = self.process.communicate(timeout=60)
+                raise AssertionError(f"the desks stopped early: {err[-3000:]}")
+            self._lines.append(json.loads(line))
+        return list(self._lines)
 
     def kill(self, desk: int) -> None:
         """kill -9 one desk, wherever it is in its work."""
