@@ -202,7 +202,7 @@ def _issue_across_failover(desk: int, job: dict[str, Any], register: Any, rng: r
         except (IssuerError, DBAPIError) as exc:
             if moved:
                 raise
-            say(desk, {"op": "unknown", "request": request, "why": str(exc).splitlines()[0][:300]})
+            say(desk, {"op": "unknown", "request": request, "count": count, "why": str(exc).splitlines()[0][:300]})
             register.close()
             deadline = time.monotonic() + job.get("wait", 60)
             while not switch.exists():

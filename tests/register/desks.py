@@ -62,6 +62,15 @@ class DeskRoom:
             self._lines.append(json.loads(line))
         return list(self._lines)
 
+    def pause(self) -> None:
+        """SIGSTOP every desk (a desk inside an act stays there)."""
+        for pid in self.pids.values():
+            os.kill(pid, signal.SIGSTOP)
+
+    def resume(self) -> None:
+        for pid in self.pids.values():
+            os.kill(pid, signal.SIGCONT)
+
     def kill(self, desk: int) -> None:
         """kill -9 one desk, wherever it is in its work."""
         try:

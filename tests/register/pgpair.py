@@ -19,6 +19,7 @@ import signal
 import socket
 import subprocess
 import tempfile
+import threading
 import time
 from collections.abc import Iterator
 from dataclasses import dataclass, field
@@ -74,6 +75,100 @@ def spare_port() -> int:
         return int(probe.getsockname()[1])
 
 
+class Relay:
+    """A TCP relay between the standby and the primary's port: the replication link.
+
+    ``hold()`` keeps back what the primary sends (its WAL) in the relay, as a network
+    that stalls would; the standby gets nothing more and so confirms nothing more, and
+    every commit on the primary waits for it. ``release()`` passes what was held on to
+    the standby while the standby's answers (its confirmations) go nowhere: the standby
+    has the commits, the primary never learns it. ``close()`` cuts the link, dropping
+    whatever is still held, and refuses new connections.
+    """
+
+    def __init__(self, target_port: int) -> None:
+        self.target_port = target_port
+        self.listener = socket.create_server(("127.0.0.1", 0))
+        self.port = int(self.listener.getsockname()[1])
+        self.lock = threading.Lock()
+        self.holding = False
+        self.deaf = False
+        self.held = bytearray()
+        self.links: list[tuple[socket.socket, socket.socket]] = []
+        self.closed = False
+        threading.Thread(target=self._accept, daemon=True).start()
+
+    def _accept(self) -> None:
+        while True:
+            try:
+                standby, _ = self.listener.accept()
+            except OSError:  # closed
+                return
+            try:
+                primary = socket.create_connection(("127.0.0.1", self.target_port), timeout=10)
+            except OSError:
+                standby.close()
+                continue
+            primary.settimeout(None)
+            with self.lock:
+                if self.closed:
+                    standby.close()
+                    primary.close()
+                    return
+                self.links.append((standby, primary))
+            threading.Thread(target=self._pump, args=(primary, standby, True), daemon=True).start()
+            threading.Thread(target=self._pump, args=(standby, primary, False), daemon=True).start()
+
+    def _pump(self, source: socket.socket, sink: socket.socket, downstream: bool) -> None:
+        try:
+            while True:
+                data = source.recv(65536)
+                if not data:
+                    break
+                with self.lock:  # decide under the lock, send outside it
+                    if downstream and self.holding:
+                        self.held += data
+                        continue
+                    if not downstream and self.deaf:
+                        continue
+                sink.sendall(data)
+        except OSError:
+            pass
+        for end in (source, sink):
+            try:
+                end.shutdown(socket.SHUT_RDWR)
+            except OSError:
+                pass
+
+    def hold(self) -> None:
+        with self.lock:
+            self.holding = True
+
+    def release(self) -> int:
+        """Hand the standby everything held so far, keeping its answers from the primary;
+        how many bytes went."""
+        with self.lock:
+            self.deaf = True
+            data, self.held = bytes(self.held), bytearray()
+            for standby, _primary in self.links[-1:]:
+                standby.sendall(data)
+            return len(data)
+
+    def close(self) -> None:
+        with self.lock:
+            self.closed = True
+            self.held.clear()
+            links, self.links = self.links, []
+        self.listener.close()
+        for pair in links:
+            for end in pair:
+                try:
+                    end.shutdown(socket.SHUT_RDWR)
+                except OSError:
+                    pass
+                end.close()
+
+
 @dataclass
 class Server:
     name: str
@@ -94,6 +189,7 @@ class ServerPair:
     prefix: list[str]
     primary: Server
     standby: Server
+    relay: Relay | None = None
     started: list[Server] = field(default_factory=list)
 
     def tool(self, name: str, *args: str, timeout: float = 60) -> str:
@@ -115,8 +211,6 @@ class ServerPair:
         self.started.append(server)
         log = self.root / f"{server.name}.log"
         self.tool("pg_ctl", "-D", str(server.data), "-l", str(log), "-w", "-t", "60", "-s", "start")
-        # pg_ctl starts the postmaster in a session of its own: its pid is the group
-        # of every server process, which is how kill_primary reaches them all at once
         server.pid = int((server.data / "postmaster.pid").read_text().splitlines()[0])
 
     def sql(self, server: Server, statement: str, database: str = "postgres") -> list[tuple[object, ...]]:
@@ -130,27 +224,59 @@ class ServerPair:
 
     def kill_primary(self) -> None:
         """SIGKILL the primary's postmaster and every backend: no shutdown, no goodbye."""
-        assert self.primary.pid is not None
-        os.killpg(self.primary.pid, signal.SIGKILL)
-        deadline = time.monotonic() + 10
-        while _alive(self.primary.pid) and time.monotonic() < deadline:
-            time.sleep(0.02)
+        _kill_server(self.primary)
 
     def promote(self) -> None:
         self.tool("pg_ctl", "-D", str(self.standby.data), "-w", "-t", "60", "-s", "promote")
 
     def close(self) -> None:
         for server in self.started:
-            if server.pid is not None and _alive(server.pid):
-                try:
-                    os.killpg(server.pid, signal.SIGKILL)
-                except ProcessLookupError:
-                    pass
-        for server in self.started:
-            deadline = time.monotonic() + 10
-            while server.pid is not None and _alive(server.pid) and time.monotonic() < deadline:
-                time.sleep(0.02)
+            _kill_server(server)
+        if self.relay is not None:
+            self.relay.close()
         shutil.rmtree(self.root, ignore_errors=True)
+
+
+def _children(pid: int) -> list[int]:
+    """The processes whose parent is ``pid`` (the server's backends, walsender, ...)."""
+    found = []
+    for stat in glob("/proc/[0-9]*/stat"):
+        try:
+            with open(stat) as handle:
+                fields = handle.read().rsplit(") ", 1)[1].split()
+        except (OSError, IndexError):
+            continue
+        if int(fields[1]) == pid:
+            found.append(int(stat.split("/")[2]))
+    return found
+
+
+def _signal(pid: int, number: int) -> None:
+    try:
+        os.kill(pid, number)
+    except ProcessLookupError:
+        pass
+
+
+def _kill_server(server: Server) -> None:
+    """Stop a server's every process at one instant, then SIGKILL them all.
+
+    Each backend of a PostgreSQL server is a process group of its own, so killing the
+    postmaster's group would leave the backends running until they notice it is gone.
+    The postmaster is frozen first (it can start no one new), then its children, and
+    only then is anything killed: none of them gets a moment to act on another's death.
+    """
+    if server.pid is None or not _alive(server.pid):
+        return
+    _signal(server.pid, signal.SIGSTOP)
+    children = _children(server.pid)
+    for child in children:
+        _signal(child, signal.SIGSTOP)
+    for pid in [server.pid, *children]:
+        _signal(pid, signal.SIGKILL)
+    deadline = time.monotonic() + 10
+    while any(_alive(pid) for pid in [server.pid, *children]) and time.monotonic() < deadline:
+        time.sleep(0.01)
 
 
 def _alive(pid: int) -> bool:
@@ -211,13 +337,15 @@ def build_pair(
         # from now on every commit on the primary waits for the standby named here
         pair.sql(pair.primary, f"ALTER SYSTEM SET synchronous_standby_names = '{STANDBY_NAME}'")
         pair.sql(pair.primary, "SELECT pg_reload_conf()")
+        # the standby reaches the primary through a relay the test can stall
+        pair.relay = Relay(pair.primary.port)
         pair.tool("pg_basebackup", "-D", str(pair.standby.data), "-h", "127.0.0.1", "-p", str(pair.primary.port),
                   "-U", "postgres", "--checkpoint=fast", "-X", "stream", "--no-sync", "-R")
         # the standby's own settings: its port, its name as the primary knows it, and no
         # synchronous standby of its own once promoted (there is none: commits would hang)
         _configure(pair, pair.standby, [
             f"port = {pair.standby.port}",
-            f"primary_conninfo = 'host=127.0.0.1 port={pair.primary.port} user=postgres "
+            f"primary_conninfo = 'host=127.0.0.1 port={pair.relay.port} user=postgres "
             f"application_name={STANDBY_NAME}'",
             "synchronous_standby_names = ''",
         ])

@@ -70,11 +70,46 @@ def _exported(url: str, key: str) -> list[str]:
     return [row["code"] for row in json.loads(result.stdout)]
 
 
+def _sync_waiters(pair: ServerPair) -> list[int]:
+    """The primary's backends whose commit waits for the standby's confirmation."""
+    rows = pair.sql(pair.primary, "SELECT pid FROM pg_stat_activity WHERE wait_event = 'SyncRep'")
+    return [int(pid) for (pid,) in rows]  # type: ignore[call-overload]
+
+
+def _wait(what: str, done: Any, timeout: float = 30) -> Any:
+    deadline = time.monotonic() + timeout
+    while not (result := done()):
+        assert time.monotonic() < deadline, f"gave up waiting: {what}"
+        time.sleep(0.02)
+    return result
+
+
+def _told(lines: list[dict[str, Any]], jobs: list[dict[str, Any]]) -> list[tuple[str, str]]:
+    return [(jobs[line["desk"]]["series"], code) for line in lines if line["op"] in ("issue", "retried")
+            for code in line["codes"]]
+
+
+def _all_blocked(count: int) -> Any:
+    """Every desk's latest line says it is inside an act."""
+    def check(lines: list[dict[str, Any]]) -> bool:
+        last = {line["desk"]: line["op"] for line in lines}
+        return len(last) == count and all(op == "begin" for op in last.values())
+    return check
+
+
 def test_no_told_code_is_lost_across_a_failover(pair: ServerPair, tmp_path: Path) -> None:
+    """The story: desks issue; the replication link stalls, so a commit X waits for the
+    standby; X's session is ended (as a primary restart would end it): X is committed
+    and visible on the primary, its desk was told nothing. The link passes X on to the
+    standby, but the standby's confirmation never gets back; the next commit Y waits
+    on the primary alone; the primary is killed. After promotion X must come back
+    under its request id with the same codes, Y (never replicated) is issued once."""
     started = time.monotonic()
+    assert pair.relay is not None
     switch = tmp_path / "new-server"
+    old_url, new_url = pair.primary.url(DATABASE), pair.standby.url(DATABASE)
     jobs = [
-        {"mode": "failover", "db": pair.primary.url(DATABASE), "series": key, "switch": str(switch),
+        {"mode": "failover", "db": old_url, "series": key, "switch": str(switch),
          "after": AFTER, "seed": desk, "actor": f"{key}-desk-{desk}"}
         for key in SERIES for desk in range(DESKS)
     ]
@@ -83,12 +118,36 @@ def test_no_told_code_is_lost_across_a_failover(pair: ServerPair, tmp_path: Path
         room.ready()
         room.go()
         room.until(lambda lines: sum(line["op"] == "issue" for line in lines) >= BEFORE_KILL)
+        traffic = time.monotonic()
+
+        pair.relay.hold()  # the link stalls: commits now wait on the primary...
+        x = _wait("a commit waiting for the standby", lambda: _sync_waiters(pair))[0]
+        # ... and soon every desk is inside an act, waiting for the standby or for a lock
+        lines = room.until(_all_blocked(len(jobs)))
+        # the desks stand still (no other act can reach its COMMIT) while X's session
+        # is ended, as a primary restart or an administrator would end it
+        room.pause()
+        pair.sql(pair.primary, f"SELECT pg_terminate_backend({x})")
+        # X is committed and visible on the primary, though its desk was told nothing
+        told_before = {code for _key, code in _told(lines, jobs)}
+        on_primary = {code for key in SERIES for code in _exported(old_url, key)}
+        x_codes = on_primary - told_before
+        assert told_before <= on_primary and x_codes
+
+        # X reaches the standby; the standby's confirmation never gets back
+        def standby_has_x() -> bool:
+            pair.relay.release()
+            return {code for key in SERIES for code in _exported(new_url, key)} == on_primary
+        _wait("X on the standby", standby_has_x)
+        room.resume()
+        # the next commit, Y, waits on the primary alone: held in the link, not on the standby
+        y = _wait("a second commit waiting", lambda: [pid for pid in _sync_waiters(pair) if pid != x])
+        assert {code for key in SERIES for code in _exported(new_url, key)} == on_primary
         pair.kill_primary()
         killed = time.monotonic()
-        # by now the standby has applied every commit a desk was told of (remote_apply)
+        pair.relay.close()  # Y, held in the link, is gone with the primary
         pair.promote()
         promoted = time.monotonic()
-        new_url = pair.standby.url(DATABASE)
         staged = switch.with_suffix(".part")
         staged.write_text(new_url)
         os.replace(staged, switch)  # the desks see the whole address or none
@@ -99,18 +158,21 @@ def test_no_told_code_is_lost_across_a_failover(pair: ServerPair, tmp_path: Path
     assert not failed, f"desks failed: {failed}; {room.stderr[-3000:]}"
 
     lines = [line for desk in sorted(reports) for line in reports[desk]]
-    told = [(jobs[line["desk"]]["series"], code) for line in lines if line["op"] in ("issue", "retried")
-            for code in line["codes"]]
+    told = _told(lines, jobs)
     unknown = {line["request"] for line in lines if line["op"] == "unknown"}
     retried = {line["request"]: line for line in lines if line["op"] == "retried"}
     # every desk lost the server under one act (it never stops issuing), and retried it
     assert len(unknown) == len(jobs) and set(retried) == unknown
     for line in retried.values():
         assert len(line["codes"]) == line["count"]
-    # the acts in flight at the kill: the server had committed and replicated some of
-    # them (the retry replays their codes), the others never happened (issued once now)
+    # X was on the standby: its retry replays the very codes the old primary had given
+    # it; every other act in flight (Y among them) had not reached the standby and is
+    # issued now, once
     replayed = sorted(line["request"] for line in retried.values() if line["replayed"])
     fresh = sorted(line["request"] for line in retried.values() if not line["replayed"])
+    lost_x = [line for line in retried.values() if set(line["codes"]) == x_codes]
+    assert len(lost_x) == 1 and lost_x[0]["replayed"], "X did not come back under its request id"
+    assert fresh, "no act in flight was issued anew (Y was on the standby?)"
 
     # no code twice, across desks and series
     codes = [code for _key, code in told]
@@ -150,5 +212,7 @@ def test_no_told_code_is_lost_across_a_failover(pair: ServerPair, tmp_path: Path
         f"\nfailover: {len(codes)} codes in {sum(line['op'] in ('issue', 'retried') for line in lines)} acts; "
         f"in flight at the kill: {len(unknown)} acts ({sum(retried[r]['count'] for r in unknown)} codes), "
         f"{len(replayed)} committed unacknowledged (replayed), {len(fresh)} never committed (issued on retry); "
-        f"promote {promoted - killed:.2f}s; traffic to checks {elapsed:.1f}s"
+        f"{len(y)} commit(s) waiting at the kill; "
+        f"traffic {killed - traffic:.1f}s before the kill; promote {promoted - killed:.2f}s; "
+        f"traffic to checks {elapsed:.1f}s"
     )
