@@ -300,8 +300,9 @@ def build_pair(
 ) -> Iterator[ServerPair]:
     """Build, start and yield a primary with its synchronous standby; tear both down.
 
-    ``before_standby(pair)`` runs on the primary alone (no standby to wait for yet), so
-    setting up a register there does not pay a round trip to the standby per statement.
+    ``before_standby(pair)`` runs on the primary before its commits wait for the standby
+    (while the standby is being copied and started), so setting up a register there
+    pays no round trip to the standby per statement.
     """
     folder, why = find_server_tools()
     if folder is None:
@@ -330,13 +331,33 @@ def build_pair(
             "hot_standby = on",
             "fsync = on",
         ]
-        _configure(pair, pair.primary, [*common, f"port = {pair.primary.port}", f"synchronous_commit = {synchronous_commit}"])
+        _configure(pair, pair.primary, [
+            *common, f"port = {pair.primary.port}", f"synchronous_commit = {synchronous_commit}",
+        ])
         pair.start(pair.primary)
-        if callable(before_standby):
-            before_standby(pair)
+        # the standby is copied and started while the register is set up on the primary
+        # (the two overlap; the standby replays the register's making as it streams)
+        standby_problem: list[BaseException] = []
+        making = threading.Thread(target=_make_standby, args=(pair, standby_problem))
+        making.start()
+        try:
+            if callable(before_standby):
+                before_standby(pair)
+        finally:
+            making.join()
+        if standby_problem:
+            raise standby_problem[0]
         # from now on every commit on the primary waits for the standby named here
         pair.sql(pair.primary, f"ALTER SYSTEM SET synchronous_standby_names = '{STANDBY_NAME}'")
         pair.sql(pair.primary, "SELECT pg_reload_conf()")
+        _wait_synchronous(pair)
+        yield pair
+    finally:
+        pair.close()
+
+
+def _make_standby(pair: ServerPair, problems: list[BaseException]) -> None:
+    try:
         # the standby reaches the primary through a relay the test can stall
         pair.relay = Relay(pair.primary.port)
         pair.tool("pg_basebackup", "-D", str(pair.standby.data), "-h", "127.0.0.1", "-p", str(pair.primary.port),
@@ -350,10 +371,8 @@ def build_pair(
             "synchronous_standby_names = ''",
         ])
         pair.start(pair.standby)
-        _wait_synchronous(pair)
-        yield pair
-    finally:
-        pair.close()
+    except BaseException as exc:  # noqa: BLE001 - handed to the test's thread
+        problems.append(exc)
 
 
 def _wait_synchronous(pair: ServerPair, timeout: float = 30) -> None:
