@@ -58,6 +58,9 @@ class ParsedCode:
     suffix: str
     #: the prefix or suffix was left off and supplied by the reading rules
     completed: bool = False
+    #: the check as typed, when it was a congruent alternative the method also accepts
+    #: (ISO/IEC 7064 two-character methods) and ``check`` is the computed one instead
+    typed_check: str | None = None
 
     @property
     def canonical(self) -> str:
@@ -140,10 +143,11 @@ class CodeFormat:
         middle, completed = split_typed(self, typed_form(text))
         scheme = self.scheme
         body = self._symbols(middle[: self.length], scheme.alphabet)
-        check = self._symbols(middle[self.length:], scheme.check_alphabet)
+        check = typed = self._symbols(middle[self.length:], scheme.check_alphabet)
         if scheme.has_alternative_checks:
             check = scheme.canonical_check(body, check)
-        return ParsedCode(self.prefix, body, check, self.suffix, completed)
+        alternative = typed if typed != check else None
+        return ParsedCode(self.prefix, body, check, self.suffix, completed, alternative)
 
     @staticmethod
     def _symbols(text: str, alphabet: Alphabet) -> str:

@@ -38,12 +38,16 @@ class ReadCodes:
     ``state[i]`` one of :data:`MALFORMED`, :data:`BAD_CHECK`, :data:`VALID`;
     ``reasons`` says what is wrong with each malformed text, by index. ``fixed`` holds
     the same canonical codes as one numpy array of fixed-width bytes (``b""`` when
-    malformed; text when a code is not ASCII), for set work without Python strings."""
+    malformed; text when a code is not ASCII), for set work without Python strings.
+    ``alternatives`` names, by index, each valid text whose check was a congruent
+    alternative pair (ISO/IEC 7064 two-character methods), with the pair as typed: it
+    reads as the code with the computed pair, and ``import`` refuses it."""
 
     canonical: list[str | None]
     state: npt.NDArray[np.int8]
     reasons: dict[int, str] = field(default_factory=dict)
     fixed: npt.NDArray[np.generic] | None = None
+    alternatives: dict[int, str] = field(default_factory=dict)
 
 
 def _cleaned(texts: Sequence[str]) -> list[str]:
@@ -70,9 +74,9 @@ def _rows_as_text(matrix: npt.NDArray[np.uint8]) -> list[str]:
 
 def _read_block(
     shape: CodeFormat, raw: npt.NDArray[np.uint8]
-) -> tuple[npt.NDArray[np.bool_], npt.NDArray[np.bool_], npt.NDArray[np.uint8]]:
+) -> tuple[npt.NDArray[np.bool_], npt.NDArray[np.bool_], npt.NDArray[np.uint8], npt.NDArray[np.bool_]]:
     """For equal-width ASCII texts: which fit the shape, which of those pass the check,
-    and the fitting ones' canonical bytes."""
+    the fitting ones' canonical bytes, and which of those had an alternative check."""
     import numpy as np
 
     scheme = shape.scheme
@@ -93,21 +97,24 @@ def _read_block(
         valid = scheme.verify_bulk(values)
     else:
         valid = np.ones(values.shape[0], dtype=bool)
+    alternative = np.zeros(values.shape[0], dtype=bool)
     if scheme.has_alternative_checks and valid.any():
         # a congruent alternative check reads as the computed one (one code per number)
-        values[valid, shape.length:] = scheme.compute_bulk(values[valid, : shape.length])
+        computed = scheme.compute_bulk(values[valid, : shape.length])
+        alternative[valid] = (values[valid, shape.length:] != computed).any(axis=1)
+        values[valid, shape.length:] = computed
     # the canonical text: prefix, folded symbols, suffix
     out = raw[fits].copy()
     body_symbols = np.frombuffer(scheme.alphabet.symbols.encode("ascii"), dtype=np.uint8)
     check_symbols = np.frombuffer(scheme.check_alphabet.symbols.encode("ascii"), dtype=np.uint8)
     out[:, start:body_end] = body_symbols[values[:, : shape.length]]
     out[:, body_end:check_end] = check_symbols[values[:, shape.length:]]
-    return fits, valid, out
+    return fits, valid, out, alternative
 
 
 def _read_part(
     shape: CodeFormat, texts: Sequence[str], state: npt.NDArray[np.int8], fixed: npt.NDArray[np.bytes_],
-    canonical: list[str | None], offset: int,
+    canonical: list[str | None], offset: int, alternatives: dict[int, str],
 ) -> None:
     """Read ``texts`` (rows ``offset``... of the whole) on the fast path: equal-width ASCII
     texts checked column-wise; the others stay malformed for the slow path."""
@@ -123,8 +130,13 @@ def _read_part(
         return
     chosen = [cleaned[i] for i in fast.tolist()] if fast.size < count else cleaned
     raw = np.frombuffer("".join(chosen).encode("ascii"), dtype=np.uint8).reshape(-1, width)
-    fits, valid, out = _read_block(shape, raw)
+    fits, valid, out, alternative = _read_block(shape, raw)
     where = fast[fits]
+    if alternative.any():
+        body_end = len(shape.prefix) + shape.length
+        check_end = body_end + shape.scheme.check_length
+        for index in where[alternative].tolist():
+            alternatives[offset + index] = cleaned[index][body_end:check_end]
     state[offset + where] = np.where(valid, VALID, BAD_CHECK).astype(np.int8)
     fixed[offset + where] = out.view(f"S{width}").ravel()
     for index, text in zip(where.tolist(), _rows_as_text(out)):
@@ -144,8 +156,9 @@ def read_codes(shape: CodeFormat, texts: Sequence[str]) -> ReadCodes:
     state = np.full(count, MALFORMED, dtype=np.int8)
     fixed = np.zeros(count, dtype=f"S{width}")
     canonical: list[str | None] = [None] * count
+    alternatives: dict[int, str] = {}
     for at in range(0, count, BLOCK_ROWS):
-        _read_part(shape, texts[at: at + BLOCK_ROWS], state, fixed, canonical, at)
+        _read_part(shape, texts[at: at + BLOCK_ROWS], state, fixed, canonical, at, alternatives)
     reasons: dict[int, str] = {}
     slow: dict[int, str] = {}
     for index in np.flatnonzero(state == MALFORMED).tolist():
@@ -157,13 +170,15 @@ def read_codes(shape: CodeFormat, texts: Sequence[str]) -> ReadCodes:
         canonical[index] = slow[index] = parsed.canonical
         ok = scheme.is_valid(parsed.body + parsed.check) if scheme.check_length else True
         state[index] = VALID if ok else BAD_CHECK
+        if parsed.typed_check is not None:
+            alternatives[index] = parsed.typed_check
     if slow:
         if all(code.isascii() and len(code) == width for code in slow.values()):
             for index, code in slow.items():
                 fixed[index] = code.encode("ascii")
         else:  # a code outside ASCII: the array holds text instead
             fixed = np.array([code or "" for code in canonical], dtype=str)
-    return ReadCodes(canonical, state, reasons, fixed)
+    return ReadCodes(canonical, state, reasons, fixed, alternatives)
 
 
 __all__ = ["BAD_CHECK", "MALFORMED", "VALID", "ReadCodes", "read_codes"]

@@ -158,16 +158,19 @@ def plan_import(register: Register, key: str, table: Table) -> ImportPlan:
                     raise ValueError(other.problem)
                 raise ValueError(f"{text!r} {read.reasons.get(index, 'is not a code of this series')}")
             assert code is not None
+            shown = shape.display(code)
             if state == BAD_CHECK:
-                raise ValueError(f"{code}: the check character does not match")
+                raise ValueError(f"{shown}: the check character does not match")
+            if index in read.alternatives:
+                raise ValueError(_alternative(shape, code, read.alternatives[index]))
             if code in in_file:
-                raise ValueError(f"{code} is a duplicate of line {in_file[code]}")
+                raise ValueError(f"{shown} is a duplicate of line {in_file[code]}")
             if code in held:
-                raise ValueError(f"{code} is in the register already ({held[code]})")
+                raise ValueError(f"{shown} is in the register already ({held[code]})")
             base = decode(code[start:body_end])
             if not series.range_start <= base <= series.range_end:
                 raise ValueError(
-                    f"{code} lies outside the series' range {series.range_start}..{series.range_end}"
+                    f"{shown} lies outside the series' range {series.range_start}..{series.range_end}"
                 )
             row = _row(line, code, base, index, cell, now)
         except ValueError as exc:
@@ -177,6 +180,19 @@ def plan_import(register: Register, key: str, table: Table) -> ImportPlan:
         plan.rows.append(row)
     _check_replacements(plan, shape, held)
     return plan
+
+
+def _alternative(shape: Any, code: str, typed_check: str) -> str:
+    """Why a code written with a congruent alternative check pair is refused: one number
+    is one code, written with the pair the standard computes."""
+    at = len(shape.prefix) + shape.length
+    computed = code[at: at + shape.scheme.check_length]
+    typed = code[:at] + typed_check + code[at + len(typed_check):]
+    return (
+        f"{shape.display(typed)}: check pair {typed_check} is an alternative the method also "
+        f"accepts, but the register writes each number with its computed pair {computed}; "
+        f"write it as {shape.display(code)}"
+    )
 
 
 def _row(line: int, code: str, base: int, index: int, cell: Callable[[str, int], str | None], now: datetime) -> ImportRow:
@@ -226,11 +242,14 @@ def _check_replacements(plan: ImportPlan, shape: Any, held: dict[str, str]) -> N
             try:
                 old = shape.parse(row.replaces).canonical
             except InvalidFormat as exc:
-                plan.rejected.append(Rejected(row.line, row.code, f"replaces {row.replaces!r}: {exc.message}"))
+                plan.rejected.append(
+                    Rejected(row.line, row.code, f"replaces {row.replaces!r}: {exc.message}")
+                )
                 continue
             if old not in codes and old not in held:
                 plan.rejected.append(
-                    Rejected(row.line, row.code, f"replaces {old}, which is neither in the file nor in the register")
+                    Rejected(row.line, row.code,
+                             f"replaces {shape.display(old)}, which is neither in the file nor in the register")
                 )
                 continue
             row = ImportRow(**{**row.__dict__, "replaces": old})

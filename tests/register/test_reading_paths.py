@@ -77,7 +77,8 @@ def test_iso7064_alternative_pair_is_the_same_code_everywhere(register: Register
     alternative = code[:-2] + twin[code[-2:]]
     (answer,) = check_codes_in(register, [alternative])
     assert (answer.status, answer.code) == ("issued", code)
-    # importing both forms of one number: the second is that same code, refused by line
+    # importing both forms of one number: the alternative is refused by line (one number,
+    # one code), never registered as a second number
     add_series(register, SeriesSpec(key="legacy", scheme="iso7064-97-10", length=7, prefix="L"))
     scheme = get_scheme("iso7064-97-10")
     body = next(f"{n:07d}" for n in range(100, 10_000) if scheme.compute(f"{n:07d}") == "02")
@@ -85,7 +86,8 @@ def test_iso7064_alternative_pair_is_the_same_code_everywhere(register: Register
     path.write_text(f"code\nL{body}02\nL{body}99\n")
     with pytest.raises(InvalidFormat) as caught:
         import_codes(register, "legacy", read_table(path, roles=IMPORT_ROLES))
-    assert f"line 3: L{body}02 is a duplicate of line 2" in caught.value.message
+    assert f"line 3: L-{body}99: check pair 99 is an alternative" in caught.value.message
+    assert f"write it as L-{body}02" in caught.value.message and "line 2" not in caught.value.message
     with register.reading() as session:
         assert session.scalar(select(func.count()).select_from(IssuedCode).where(IssuedCode.code.like(f"L{body}%"))) == 0
 
