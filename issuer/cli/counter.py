@@ -7,7 +7,7 @@ from typing import Annotated
 
 import typer
 
-from issuer.cli.common import ActorOption, DbOption, command_set, open_register_from_options
+from issuer.cli.common import ActorOption, DbOption, command_set, fail
 
 commands = command_set()
 
@@ -26,20 +26,20 @@ def counter(
     reprint and look up by single keys. A check character catches mistakes, not fraud."""
     from issuer.config import load_settings
     from issuer.counter.app import CounterApp
-    from issuer.counter.desk import CounterDesk
-    from issuer.register.admin import redacted_url
+    from issuer.counter.desk import open_desk
+    from issuer.errors import redact
 
+    # the screen first: the register (and the database library) open behind it
     settings = load_settings(database=db, actor=actor)
-    register = open_register_from_options(db, actor)
-    if series is not None:
-        from issuer.register.series import get_series
-
-        with register.reading() as session:
-            get_series(session, series)  # an unknown series is one line now, not a screen later
-    folder = labels or settings.section("counter").get("label_folder")
-    desk = CounterDesk(register, series=series, settings=settings)
-    if folder:
-        desk.label_folder = Path(str(folder)).expanduser()
-    screen = CounterApp(desk, where=redacted_url(register))
-    desk.on_reconnect = screen.reconnecting
-    screen.run()
+    screen = CounterApp(
+        opener=lambda: open_desk(settings, series=series, label_folder=labels),
+        where=redact(settings.database),
+        series=series,
+    )
+    try:
+        screen.run()
+    finally:
+        if screen.desk is not None:
+            screen.desk.register.close()
+    if screen.failure is not None:
+        fail(screen.failure)

@@ -3,6 +3,12 @@ answered code by single keys, and a strip of recent answers.
 
 Every act is one call on :class:`~issuer.counter.desk.CounterDesk` (the same library call
 the command line makes), run in a worker thread so the screen never freezes.
+
+The screen comes first, the register second: given an ``opener`` instead of a desk, the
+screen draws and focuses its scan line at once, then opens the register (and with it
+the database library) in a worker. Lines typed or scanned meanwhile wait in order and
+are answered as soon as the register is open; a register that cannot be opened ends
+the screen with one line (:attr:`CounterApp.failure`) for the command to print.
 """
 
 from __future__ import annotations
@@ -50,12 +56,25 @@ class CounterApp(App[None]):
         Binding("escape", "back", "Back to the scan line", show=False),
     ]
 
-    def __init__(self, desk: CounterDesk, *, where: str = "") -> None:
+    def __init__(
+        self,
+        desk: CounterDesk | None = None,
+        *,
+        where: str = "",
+        opener: Callable[[], CounterDesk] | None = None,
+        series: str | None = None,
+    ) -> None:
         super().__init__()
-        self.desk, self.where = desk, where
+        if (desk is None) == (opener is None):
+            raise ValueError("give the counter a desk or an opener, not both")
+        self.desk: CounterDesk | None = desk
+        self.where, self.opener = where, opener
+        self.series = desk.series if desk is not None else series  # named in the title before opening
         self.current: Any = None  # the answer on show
         self.recent: list[tuple[str, str]] = []  # (code or input, line)
         self.busy = 0
+        self.waiting: list[str] = []  # lines typed before the register was open, in order
+        self.failure: str | None = None  # why the register could not be opened
 
     # -- layout -----------------------------------------------------------------------
 
@@ -64,7 +83,8 @@ class CounterApp(App[None]):
         yield Static("", id="banner")
         yield Input(placeholder="Scan or type a code, then Enter", id="scan", max_length=200)
         with self._box():
-            yield Static(Text(f"Ready. {CAUTION}"), id="answer")
+            first = "Ready." if self.desk is not None else "Opening the register…"
+            yield Static(Text(f"{first} {CAUTION}"), id="answer")
         yield OptionList(id="suggestions")
         yield Static("", id="status")
         yield OptionList(id="recent")
@@ -76,13 +96,68 @@ class CounterApp(App[None]):
         return VerticalScroll(id="answer-box")
 
     def _title(self) -> str:
-        series = self.desk.series or "no series chosen (F10)"
+        series = (self.desk.series if self.desk is not None else self.series) or "no series chosen (F10)"
         return f"issuer counter · {self.where} · series {series}"
 
     def on_mount(self) -> None:
         self.query_one("#answer-box").border_title = "answer"
         self.query_one("#recent", OptionList).border_title = "recent"
         self.query_one("#scan", Input).focus()
+        if self.desk is None:
+            self.query_one("#status", Static).update("⋯ Opening the register… (scans are kept and answered)")
+            self.call_after_refresh(self._open)  # the first frame goes out before the work begins
+
+    # -- opening the register after the first frame ------------------------------------
+
+    @work(thread=True, group="open", exit_on_error=False)
+    def _open(self) -> None:
+        assert self.opener is not None
+        try:
+            desk = self.opener()
+        except IssuerError as exc:
+            self._call_if_running(self._not_opened, exc.message)
+            return
+        except Exception as exc:  # the command prints one line, never a traceback
+            self._call_if_running(self._not_opened, f"cannot open the register ({type(exc).__name__}: {exc})")
+            return
+        desk.on_reconnect = self.reconnecting
+        try:
+            self.call_from_thread(self._opened, desk)
+        except RuntimeError:  # the clerk left before the register was open
+            desk.register.close()
+
+    def _call_if_running(self, fn: Callable[..., None], *args: Any) -> None:
+        try:
+            self.call_from_thread(fn, *args)
+        except RuntimeError:  # the screen already closed
+            if fn == self._not_opened:
+                self.failure = args[0]
+
+    def _opened(self, desk: CounterDesk) -> None:
+        self.desk = desk
+        self.query_one("#title", Static).update(self._title())
+        self.query_one("#status", Static).update("")
+        waiting, self.waiting = self.waiting, []
+        if waiting:
+            self._check_in_order(waiting)
+        else:
+            self.say(f"Ready. {CAUTION}", "")
+
+    def _not_opened(self, message: str) -> None:
+        self.failure = message
+        self.exit(return_code=2)
+
+    @property
+    def open_desk(self) -> CounterDesk:
+        """The desk, for acts that only start once the register is open."""
+        assert self.desk is not None, "the register is not open yet"
+        return self.desk
+
+    def _desk_or_say(self) -> CounterDesk | None:
+        """The desk, or None (and a line saying so) while the register is still opening."""
+        if self.desk is None:
+            self.say("⋯ the register is still opening: try again in a moment", "bold yellow")
+        return self.desk
 
     # -- the scan line ----------------------------------------------------------------
 
@@ -96,7 +171,36 @@ class CounterApp(App[None]):
         self.check(text)
 
     def check(self, text: str) -> None:
-        self.run_act(lambda: self.desk.check(text), self.show_answer, "Checking")
+        if self.desk is None:
+            self.waiting.append(text)
+            self.query_one("#status", Static).update(
+                f"⋯ Opening the register… {len(self.waiting)} scan(s) waiting to be answered")
+            return
+        desk = self.desk
+        self.run_act(lambda: desk.check(text), self.show_answer, "Checking")
+
+    def _check_in_order(self, texts: list[str]) -> None:
+        """Answer lines that waited for the register, one worker, in the order typed."""
+        desk = self.desk
+        assert desk is not None
+
+        def answer_all() -> list[Any]:
+            answers: list[Any] = []
+            for text in texts:
+                try:
+                    answers.append(desk.check(text))
+                except IssuerError as exc:
+                    answers.append(exc)
+            return answers
+
+        def show_all(answers: list[Any]) -> None:
+            for answered in answers:
+                if isinstance(answered, IssuerError):
+                    self.say(f"✗ {answered.message}", "bold red")
+                else:
+                    self.show_answer(answered)
+
+        self.run_act(answer_all, show_all, "Checking")
 
     def show_answer(self, answered: Any) -> None:
         answer, record = answered.answer, answered.record
@@ -180,6 +284,8 @@ class CounterApp(App[None]):
 
     def _answered(self, *statuses: str) -> Any:
         answer = self.current
+        if self._desk_or_say() is None:
+            return None
         if answer is None or answer.code is None or answer.status not in statuses:
             wanted = " or ".join(s.replace("_", " ") for s in statuses)
             self.say(f"✗ scan a code that is {wanted} first", "bold yellow")
@@ -190,17 +296,20 @@ class CounterApp(App[None]):
         self.query_one("#scan", Input).focus()
 
     def action_issue(self) -> None:
-        if self.desk.series is None:
+        desk = self._desk_or_say()
+        if desk is None:
+            return
+        if desk.series is None:
             self.say("✗ choose a series first (F10)", "bold yellow")
             return
 
         def issue(values: dict[str, str] | None) -> None:
             if values is None:
                 return
-            self.run_act(lambda: self.desk.issue(values["holder"] or None, values["note"] or None),
+            self.run_act(lambda: desk.issue(values["holder"] or None, values["note"] or None),
                          self._issued, "Issuing")  # fmt: skip
 
-        self.push_screen(AskScreen(f"New code from series {self.desk.series}",
+        self.push_screen(AskScreen(f"New code from series {desk.series}",
                                    [("holder", "Holder (optional; personal data)", False),
                                     ("note", "Note (optional)", False)]), issue)  # fmt: skip
 
@@ -233,7 +342,7 @@ class CounterApp(App[None]):
         if answer is None:
             return
         self._reasoned(f"Void {answer.display}", f"Void {answer.display} for good? It is never issued again.",
-                       lambda r: self.desk.void(answer.code, r), self._after("voided"), "Voiding", True)  # fmt: skip
+                       lambda r: self.open_desk.void(answer.code, r), self._after("voided"), "Voiding", True)  # fmt: skip
 
     def action_replace(self) -> None:
         answer = self._answered("issued", "expired", "suspended")
@@ -250,13 +359,13 @@ class CounterApp(App[None]):
 
         self._reasoned(f"Replace {answer.display}",
                        f"Void {answer.display} for good and issue its replacement?",
-                       lambda r: self.desk.replace(answer.code, r), replaced, "Replacing", True)  # fmt: skip
+                       lambda r: self.open_desk.replace(answer.code, r), replaced, "Replacing", True)  # fmt: skip
 
     def action_restore(self) -> None:
         answer = self._answered("voided")
         if answer is None:
             return
-        self._reasoned(f"Restore {answer.display}", "", lambda r: self.desk.restore(answer.code, r),
+        self._reasoned(f"Restore {answer.display}", "", lambda r: self.open_desk.restore(answer.code, r),
                        self._after("restored"), "Restoring", False)  # fmt: skip
 
     def action_reprint(self) -> None:
@@ -269,7 +378,7 @@ class CounterApp(App[None]):
             self.say(f"⎙ reprinted {answer.display}: {outcome.path}", "bold green")
 
         self._reasoned(f"Reprint the label of {answer.display}", "",
-                       lambda r: self.desk.reprint(answer.code, r), printed, "Drawing the label", False)  # fmt: skip
+                       lambda r: self.open_desk.reprint(answer.code, r), printed, "Drawing the label", False)  # fmt: skip
 
     def action_holder(self) -> None:
         answer = self._answered("issued", "expired", "suspended")
@@ -278,7 +387,7 @@ class CounterApp(App[None]):
 
         def asked(values: dict[str, str] | None) -> None:
             if values is not None:
-                self.run_act(lambda: self.desk.set_holder(answer.code, values["holder"]),
+                self.run_act(lambda: self.open_desk.set_holder(answer.code, values["holder"]),
                              self._after("holder changed"), "Saving")  # fmt: skip
 
         self.push_screen(AskScreen(f"Holder of {answer.display}", [("holder", "Holder (empty: none)", False)],
@@ -306,12 +415,15 @@ class CounterApp(App[None]):
                 body.append(f"{event.at:%Y-%m-%d %H:%M}  {event.actor:<16} {event.action}\n")
             self.push_screen(HistoryScreen(body))
 
-        self.run_act(lambda: self.desk.history(answer.code), shown, "Reading the history")
+        self.run_act(lambda: self.open_desk.history(answer.code), shown, "Reading the history")
 
     def action_find(self) -> None:
+        if self._desk_or_say() is None:
+            return
+
         def asked(values: dict[str, str] | None) -> None:
             if values is not None:
-                self.run_act(lambda: self.desk.find(values["text"]), found, "Searching")
+                self.run_act(lambda: self.open_desk.find(values["text"]), found, "Searching")
 
         def found(rows: list[Any]) -> None:
             if not rows:
@@ -324,12 +436,15 @@ class CounterApp(App[None]):
         self.push_screen(AskScreen("Find by holder or note", [("text", "Starts with", True)]), asked)
 
     def action_series(self) -> None:
+        if self._desk_or_say() is None:
+            return
+
         def listed(keys: list[str]) -> None:
             self.push_screen(PickScreen("Series for new codes", [(key, key) for key in keys]), chosen)
 
         def chosen(key: str | None) -> None:
             if key:
-                self.desk.series = key
+                self.open_desk.series = key
                 self.query_one("#title", Static).update(self._title())
 
-        self.run_act(self.desk.series_keys, listed, "Reading the series")
+        self.run_act(self.open_desk.series_keys, listed, "Reading the series")

@@ -157,6 +157,29 @@ class CounterDesk:
             raise
 
 
+def open_desk(settings: Any, *, series: str | None = None, label_folder: Path | None = None) -> CounterDesk:
+    """Open the register ``settings`` name (never making one: a mistyped path stays a
+    mistake) and check that ``series``, when given, is one of its series. The counter
+    calls this after its first frame, so the database library loads behind the screen."""
+    from issuer.register.series import get_series
+    from issuer.register.store import open_register
+
+    timeout = int(settings.section("register").get("busy_timeout_ms", 15000))
+    register = open_register(settings.database, actor=settings.actor, busy_timeout_ms=timeout, create=False)
+    try:
+        if series is not None:
+            with register.reading() as session:
+                get_series(session, series)  # an unknown series ends the screen with one line
+    except BaseException:
+        register.close()
+        raise
+    folder = label_folder or settings.section("counter").get("label_folder")
+    desk = CounterDesk(register, series=series, settings=settings)
+    if folder:
+        desk.label_folder = Path(str(folder)).expanduser()
+    return desk
+
+
 def _lost(exc: Exception) -> bool:
     """A dropped database connection: the library's word for it on writes, the driver's
     flag on reads (the faces never import the database library to ask by type)."""
