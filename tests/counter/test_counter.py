@@ -155,3 +155,81 @@ def test_two_counters_at_once_lose_nothing(desk: Any) -> None:
         rows = export_session_rows(session, get_series(session, "tools"))
     codes = [row[0] for row in rows]
     assert len(codes) == 30 + 2 * per_desk and len(set(codes)) == len(codes)
+
+
+def test_scans_before_the_register_opens_are_answered_once_it_opens(desk: Any) -> None:
+    """The screen draws before the register is open; a wedge scanner firing at once is
+    not lost: its lines wait, in order, and are answered when the register opens."""
+    import threading
+
+    from issuer.counter.app import CounterApp
+
+    release = threading.Event()
+
+    def opener() -> Any:
+        assert release.wait(30), "the test never let the register open"
+        return desk
+
+    first, first_shown = _code(desk, 3)
+    second, second_shown = _code(desk, 9)
+
+    async def run() -> None:
+        app = CounterApp(opener=opener, where="Quillmere test register", series="tools")
+        async with app.run_test(size=(80, 24)) as pilot:
+            await pilot.pause()
+            assert app.desk is None and app.focused is app.query_one("#scan")
+            assert "Opening the register" in str(app.query_one("#answer").render())
+            await pilot.press(*first_shown, "enter")
+            await pilot.press(*"drill bit 3", "enter")
+            await pilot.press(*second, "enter")
+            await pilot.pause()
+            assert app.waiting == [first_shown, "drill bit 3", second]
+            assert "3 scan(s) waiting" in str(app.query_one("#status").render())
+            assert app.recent == []  # nothing answered yet
+            # an act needs the register: it says so and does nothing
+            await pilot.press("f2")
+            await pilot.pause()
+            assert "still opening" in str(app.query_one("#answer").render())
+            release.set()
+            await _settle(app, pilot)
+            await _settle(app, pilot)
+            assert app.desk is desk and app.waiting == []
+            # answered once each, in the order scanned (the strip shows the newest first)
+            assert [key for key, _ in app.recent] == [second, "drill bit 3", first]
+            assert app.recent[0][1] == f"✓ {second_shown}  in use"
+            assert "not a code" in app.recent[1][1]
+            assert "✓ in use" in str(app.query_one("#answer").render())
+            assert app.focused is app.query_one("#scan")
+
+    asyncio.run(run())
+
+
+def test_a_register_that_cannot_open_ends_the_screen_with_one_line(tmp_path: Any) -> None:
+    from issuer.config import load_settings
+    from issuer.counter.app import CounterApp
+    from issuer.counter.desk import open_desk
+
+    settings = load_settings(database=str(tmp_path / "no-such-register.sqlite"), actor="test-clerk")
+
+    async def run() -> Any:
+        app = CounterApp(opener=lambda: open_desk(settings, series="tools"), where="nowhere")
+        async with app.run_test(size=(80, 24)) as pilot:
+            for _ in range(50):
+                await pilot.pause(0.05)
+                if app.failure is not None:
+                    break
+        return app
+
+    app = asyncio.run(run())
+    assert app.failure is not None and "no register" in app.failure
+    assert app.return_code == 2
+    assert not (tmp_path / "no-such-register.sqlite").exists()  # a mistyped path makes nothing
+
+
+def test_an_unknown_series_is_one_line_from_the_command(cli: Any, register: Any) -> None:
+    from issuer.register.series import SeriesSpec, add_series
+
+    add_series(register, SeriesSpec(key="tools", scheme="luhn", length=6, prefix="QT"))
+    result = cli("counter", "--series", "hammers")
+    assert result.exit_code == 2
+    assert "hammers" in result.output and "Traceback" not in result.output
