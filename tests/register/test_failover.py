@@ -200,7 +200,11 @@ def test_no_told_code_is_lost_across_a_failover(pair: ServerPair, tmp_path: Path
                  and set(line["codes"]) <= told_before}
     again_acts = [*retried.values(), *last_told.values()]
     retrying = time.monotonic()
-    register = open_register(new_url, actor="auditor", create=False)
+    # through a URL naming both servers, the dead one first (as the README advises):
+    # libpq passes over it and keeps the one that accepts writes
+    both = (f"postgresql+psycopg://postgres@/{DATABASE}?host=127.0.0.1:{pair.primary.port}"
+            f"&host=127.0.0.1:{pair.standby.port}&target_session_attrs=read-write")
+    register = open_register(both, actor="auditor", create=False)
     try:
         for line in again_acts:
             again = issue_codes(register, jobs[line["desk"]]["series"], line["count"], request_id=line["request"])
