@@ -101,7 +101,15 @@ def _render_acts(events: list[Any]) -> None:
     from issuer.register.acts import group_acts
 
     rows = Rows(("#", "when (UTC)", "who", "act", "series", "what", "details"), title="Log", heading=(0, 1, 3))
+    at = 0
     for act in group_acts(events):
+        # an act is ``entries`` consecutive events: their codes and details as people read them
+        group = events[at: at + act.entries]
+        at += act.entries
+        displays = {e.code: e.display or e.code for e in group if e.code}
+        detail = next(
+            (e.shown_detail for e in group if e.action == act.action and e.detail == act.detail), act.detail
+        )
         number = str(act.first_id) if act.entries == 1 else f"{act.first_id}-{act.last_id}"
         rows.add_row(
             number,
@@ -109,21 +117,24 @@ def _render_acts(events: list[Any]) -> None:
             shown(act.actor),
             act.action,
             act.series or "",
-            shown(_what(act)),
-            shown(_detail_summary(act.detail, brief=True)),
+            shown(_what(act, displays)),
+            shown(_detail_summary(detail, brief=True)),
         )
     rows.print(console())
 
 
-def _what(act: Any) -> str:
-    """The codes an act touched, summed up: one code, or how many from first to last."""
+def _what(act: Any, displays: dict[str, str] | None = None) -> str:
+    """The codes an act touched, summed up in display form: one code, or how many from
+    first to last."""
+    seen = displays or {}
+    codes = [seen.get(code, code) for code in act.codes]
     parts = []
     if act.batch:
         parts.append(f"batch {act.batch}")
-    if 0 < len(act.codes) <= 3:
-        parts.append(", ".join(act.codes))
-    elif act.codes:
-        parts.append(f"{len(act.codes):,} codes, {act.codes[0]} .. {act.codes[-1]}")
+    if 0 < len(codes) <= 3:
+        parts.append(", ".join(codes))
+    elif codes:
+        parts.append(f"{len(codes):,} codes, {codes[0]} .. {codes[-1]}")
     return ", ".join(parts)
 
 

@@ -123,6 +123,8 @@ class OtherSeries:
     title: str
     code: str
     status: str
+    #: the code as people read it, in its own series' display form
+    display: str | None = None
 
 
 def codes_of_other_series(
@@ -140,7 +142,8 @@ def codes_of_other_series(
         left = [(index, text) for index, text in texts.items() if index not in found]
         if not left:
             break
-        read = read_codes(code_format(other), [text for _, text in left])
+        shape = code_format(other)
+        read = read_codes(shape, [text for _, text in left])
         readable = {
             code: index
             for (index, _), code, state in zip(left, read.canonical, read.state.tolist())
@@ -152,7 +155,7 @@ def codes_of_other_series(
                 IssuedCode.series_id == other.id, IssuedCode.code.in_(wanted[start: start + IN_CHUNK])
             )
             for code, status in session.execute(statement):
-                found[readable[code]] = OtherSeries(other.key, other.title, code, status)
+                found[readable[code]] = OtherSeries(other.key, other.title, code, status, shape.display(code))
         # several texts may read as one code: every one of them is that code
         for (index, _), text, state in zip(left, read.canonical, read.state.tolist()):
             if index not in found and state == VALID and text is not None and text in readable:

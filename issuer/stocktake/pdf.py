@@ -83,7 +83,7 @@ def _lists(result: dict[str, Any]) -> list[tuple[str, list[str], list[list[str]]
                 e.get("last_seen_where") or "", e.get("perhaps") or ""] for e in result.get("missing", [])]  # fmt: skip
     elsewhere = [[e["display"] or e["code"], e.get("expected_place") or "", ", ".join(e.get("seen_at_places", [])),
                   _where(e)] for e in result.get("elsewhere", [])]  # fmt: skip
-    voided = [[e["display"] or e["code"], e.get("reason") or "", e.get("replacement") or "", _where(e)]
+    voided = [[e["display"] or e["code"], e.get("reason") or "", e.get("replacement_display") or e.get("replacement") or "", _where(e)]
               for e in result.get("voided", [])]  # fmt: skip
     typos = []
     for kind in ("bad_check", "not_issued", "malformed"):
@@ -91,7 +91,7 @@ def _lists(result: dict[str, Any]) -> list[tuple[str, list[str], list[list[str]]
             options = e.get("likely") or []
             meant = f"{options[0]['display']} ({options[0]['description']})" if options else ""
             typos.append([e.get("scanned") or e.get("code") or "", kind.replace("_", " "), meant, _where(e)])
-    others = [[e.get("scanned") or "", f"{e['series']}: {e['code']} ({e['status']})", _where(e)]
+    others = [[e.get("scanned") or "", f"{e['series']}: {e.get('display') or e['code']} ({e['status']})", _where(e)]
               for e in result.get("other_series", [])]  # fmt: skip
     return [
         ("Missing: expected, not scanned", ["code", "expected place", "last seen", "where", "perhaps typed on"],

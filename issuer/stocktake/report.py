@@ -10,10 +10,13 @@ from typing import IO, Any
 from issuer.outputs import SafeCsvWriter
 from issuer.stocktake.results import LINE_CLASSES, Reconciliation, ScanLine, close_advice
 
-#: the report's own columns; the scan file's other columns follow them
+#: the report's own columns; the scan file's other columns follow them. ``code`` and
+#: ``likely_code`` are canonical (to join with an export); ``display`` and
+#: ``likely_display`` are the same codes as people read them, and every code named in
+#: ``detail`` is in its display form
 REPORT_COLUMNS = (
-    "line", "scanned", "code", "status", "times_scanned", "detail",
-    "likely_code", "likely_error", "last_seen_at", "last_seen_where", "expected_place",
+    "line", "scanned", "code", "display", "status", "times_scanned", "detail",
+    "likely_code", "likely_display", "likely_error", "last_seen_at", "last_seen_where", "expected_place",
 )  # fmt: skip
 
 
@@ -33,9 +36,23 @@ def extra_headers(recon: Reconciliation) -> list[str]:
     return [f"scan_{name}" if name in REPORT_COLUMNS else name for name in recon.table.columns]
 
 
+def _displays(recon: Reconciliation) -> dict[str, str]:
+    """Every scanned code's display form, made in bulk (a million scans are one pass)."""
+    from issuer.register.bulk import display_texts
+
+    shape = recon.shape
+    width = shape.total_width
+    wanted = list(dict.fromkeys(c for c in recon.canonical if c is not None))
+    bulk = [c for c in wanted if len(c) == width and c.isascii()]
+    shown = dict(zip(bulk, display_texts(shape, bulk)))
+    shown.update((c, shape.display(c)) for c in wanted if c not in shown)
+    return shown
+
+
 def report_rows(recon: Reconciliation) -> Iterator[list[Any]]:
     """The report's rows, header first."""
     yield [*REPORT_COLUMNS, *extra_headers(recon)]
+    shown = _displays(recon)
     # straight from the columns: a million lines make no ScanLine objects
     extras = list(recon.table.columns.values())
     times = recon.times
@@ -47,7 +64,7 @@ def report_rows(recon: Reconciliation) -> Iterator[list[Any]]:
         cells = [values[index] for values in extras]
         place = places.get(code, "") if code is not None else ""
         if status == "issued":
-            yield [number, text, code, status, times[code], "", "", "", "", "", place, *cells]  # type: ignore[index]
+            yield [number, text, code, shown[code], status, times[code], "", "", "", "", "", "", place, *cells]  # type: ignore[index]
             continue
         likely = recon.likely.get(code, ()) if code is not None else recon.likely_by_line.get(index, ())
         first = likely[0] if likely else None
@@ -56,9 +73,9 @@ def report_rows(recon: Reconciliation) -> Iterator[list[Any]]:
         if words:
             detail = f"{detail}; {words}" if detail else words
         yield [
-            number, text, code or "", status, times[code] if code is not None else 1,
-            detail, first.code if first else "",
-            first.description if first else "", "", "", place, *cells,
+            number, text, code or "", shown[code] if code is not None else "", status,
+            times[code] if code is not None else 1, detail, first.code if first else "",
+            first.display if first else "", first.description if first else "", "", "", place, *cells,
         ]  # fmt: skip
     blanks = [""] * len(extras)
     for missing in recon.missing_codes():
@@ -66,7 +83,7 @@ def report_rows(recon: Reconciliation) -> Iterator[list[Any]]:
         if missing.perhaps:
             detail += f"; perhaps scanned with a typo on {missing.perhaps}"
         yield [
-            "", "", missing.code, "missing", 0, detail, "", "",
+            "", "", missing.code, missing.display, "missing", 0, detail, "", "", "",
             iso(missing.last_seen_at) or "", missing.last_seen_where or "", places.get(missing.code, ""), *blanks,
         ]  # fmt: skip
 
@@ -101,6 +118,9 @@ def _entry(recon: Reconciliation, index: int, line: ScanLine) -> dict[str, Any]:
         void = recon.voids.get(line.code)  # type: ignore[arg-type]
         entry["reason"] = void.reason if void else None
         entry["replacement"] = void.replacement if void else None
+        entry["replacement_display"] = (
+            recon.shape.display(void.replacement) if void and void.replacement else None
+        )
     elif line.status == "elsewhere":
         entry["expected_place"] = recon.places.get(line.code)  # type: ignore[arg-type]
         entry["seen_at_places"] = sorted(
@@ -108,7 +128,7 @@ def _entry(recon: Reconciliation, index: int, line: ScanLine) -> dict[str, Any]:
         ) if recon.seen_where is not None else []  # fmt: skip
     elif line.status == "other_series":
         other = recon.others[index]
-        entry.update(code=other.code, display=None, scanned=line.scanned, series=other.series,
+        entry.update(code=other.code, display=other.display, scanned=line.scanned, series=other.series,
                      series_title=other.title, status=other.status)
     elif line.status in ("bad_check", "not_issued"):
         entry["scanned"] = line.scanned

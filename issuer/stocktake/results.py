@@ -183,7 +183,7 @@ class Reconciliation:
             if void is None:
                 return "voided"
             text = f"voided: {void.reason}" if void.reason else "voided"
-            return f"{text}; replaced by {void.replacement}" if void.replacement else text
+            return f"{text}; replaced by {self.shape.display(void.replacement)}" if void.replacement else text
         if status in ("expired", "suspended") and code is not None:
             held = self.standings.get(code)
             if held is None:

@@ -10,18 +10,20 @@ from typing import IO, Any
 from issuer.outputs import SafeCsvWriter
 from issuer.register.counting import CountInfo, FileInfo
 
-#: the CSV's columns
+#: the CSV's columns: ``code`` and ``likely_code`` canonical, ``display`` and
+#: ``likely_display`` as people read them; codes in ``detail`` in display form
 SUMMARY_COLUMNS = (
-    "class", "code", "scanned", "file", "line", "times_scanned", "expected_place", "seen_at_places",
-    "likely_code", "likely_error", "detail",
+    "class", "code", "display", "scanned", "file", "line", "times_scanned", "expected_place", "seen_at_places",
+    "likely_code", "likely_display", "likely_error", "detail",
 )  # fmt: skip
 #: the listed classes, in report order
 LISTED = ("missing", "elsewhere", "voided", "bad_check", "not_issued", "malformed", "other_series", "out_of_scope")
 
 
-def _likely(entry: dict[str, Any]) -> tuple[str, str]:
+def _likely(entry: dict[str, Any]) -> tuple[str, str, str]:
     options = entry.get("likely") or []
-    return (options[0]["code"], options[0]["description"]) if options else ("", "")
+    first = options[0] if options else {}
+    return (first.get("code", ""), first.get("display", ""), first.get("description", ""))
 
 
 def _detail(kind: str, entry: dict[str, Any]) -> str:
@@ -31,7 +33,9 @@ def _detail(kind: str, entry: dict[str, Any]) -> str:
         return f"expected, not scanned{where}{perhaps}"
     if kind == "voided":
         reason = entry.get("reason") or ""
-        return f"voided: {reason}" + (f"; replaced by {entry['replacement']}" if entry.get("replacement") else "")
+        return f"voided: {reason}" + (
+            f"; replaced by {entry.get('replacement_display') or entry['replacement']}" if entry.get("replacement") else ""
+        )
     if kind == "other_series":
         return f"belongs to series {entry['series']} ({entry['status']})"
     if kind == "malformed":
@@ -44,11 +48,12 @@ def summary_rows(result: dict[str, Any]) -> Iterator[list[Any]]:
     yield list(SUMMARY_COLUMNS)
     for kind in LISTED:
         for entry in result.get(kind, []):
-            likely_code, likely_error = _likely(entry)
+            likely_code, likely_display, likely_error = _likely(entry)
             yield [
-                kind, entry.get("code") or "", entry.get("scanned", ""), entry.get("file", ""), entry.get("line", ""),
-                entry.get("times", 0), entry.get("expected_place") or "", "; ".join(entry.get("seen_at_places", [])),
-                likely_code, likely_error, _detail(kind, entry),
+                kind, entry.get("code") or "", entry.get("display") or "", entry.get("scanned", ""),
+                entry.get("file", ""), entry.get("line", ""), entry.get("times", 0),
+                entry.get("expected_place") or "", "; ".join(entry.get("seen_at_places", [])),
+                likely_code, likely_display, likely_error, _detail(kind, entry),
             ]  # fmt: skip
 
 

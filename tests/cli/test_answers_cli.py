@@ -77,6 +77,10 @@ def test_log_is_one_line_per_act(db_path: Path, codes: list[str], register: Regi
     # series.add x2, issue, void, replace (its void and replace entries), print (4 labels)
     assert len(body) == 6, acts.stdout
     assert any("print" in line and "4 codes" in line for line in body)
+    # codes in the act lines and their details are in display form, never compact
+    shown = [f"QTL-{code[3:7]}-{code[7:]}" for code in codes]
+    assert any("void" in line and shown[2] in line for line in body), acts.stdout
+    assert not any(code in acts.stdout for code in codes)
     entries = _run(db_path, "log", "--entries", columns=200)
     assert len([line for line in entries.stdout.splitlines() if re.match(r"│ \d", line)]) == len(every)
     assert json.loads(_run(db_path, "log", "--json", "--entries").stdout) == every  # --json unchanged

@@ -83,6 +83,9 @@ def test_a_count_from_open_to_signed_report(cli: Any, tags: list[str], tmp_path:
     assert kinds.count("missing") == 3 and kinds.count("bad_check") == 1
     bad = next(row for row in rows if row["class"] == "bad_check")
     assert (bad["likely_code"], bad["file"], bad["line"]) == (tags[4], "north:north.txt", "6")
+    assert bad["likely_display"] == display[tags[4]]
+    missing = [row for row in rows if row["class"] == "missing"]
+    assert all(row["display"] == display[row["code"]] for row in missing)
     data = json.loads(cli("stocktake", "report", "bay-3", "--format", "json").stdout)
     assert data["result"]["counts"]["missing"] == 3 and data["count"]["state"] == "closed"
 

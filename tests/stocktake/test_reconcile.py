@@ -96,7 +96,9 @@ def plant(register: Register) -> Planted:
         scan(issued[20], "issued", issued[20], where=where)
     # 3. voided tags still on the shelf; the replacement too
     scan(issued[30], "voided", issued[30], detail="voided: lost at the spring fair")
-    scan(issued[31], "voided", issued[31], detail=f"voided: label scratched; replaced by {replacement}")
+    # a code named in a detail is in its display form
+    scan(issued[31], "voided", issued[31],
+         detail=f"voided: label scratched; replaced by {replacement[:3]}-{replacement[3:7]}-{replacement[7:]}")
     scan(replacement, "issued", replacement)
     # 4. a typo of each class on tags not otherwise scanned
     typo_of: dict[str, str] = {}
@@ -192,13 +194,19 @@ def test_every_count_and_every_line_of_the_report(register: Register, planted: P
         assert got["line"] == str(want["line"])
         assert got["scanned"] == want["scanned"]
         assert got["code"] == want["code"]
+        # the series' display form, grouped 4,4 after the prefix (QTL-0000-0125)
+        shown = f"{want['code'][:3]}-{want['code'][3:7]}-{want['code'][7:]}" if want["code"] else ""
+        assert got["display"] == shown
         assert got["status"] == want["status"], got
         assert got["times_scanned"] == str(want["times_scanned"])
         assert got["detail"] == want["detail"]
         assert got["likely_code"] == want["likely_code"], got
+        likely = want["likely_code"]
+        assert got["likely_display"] == (f"{likely[:3]}-{likely[3:7]}-{likely[7:]}" if likely else "")
         assert got["likely_error"] == want["likely_error"]
         assert (got["timestamp"], got["location"]) == (want["timestamp"], want["location"])
     assert [row["code"] for row in missing_lines] == planted.missing
+    assert [row["display"] for row in missing_lines] == [f"{c[:3]}-{c[3:7]}-{c[7:]}" for c in planted.missing]
     assert all(row["status"] == "missing" and row["times_scanned"] == "0" for row in missing_lines)
     # a missing tag that a typo probably stands for points at that line
     typo_lines = {row["likely_code"]: row["line"] for row in planted.expected if row["likely_code"]}
@@ -233,6 +241,11 @@ def test_json_carries_counts_and_the_lists(register: Register, planted: Planted,
             assert entry["likely"] == []
     replaced = next(entry for entry in data["voided"] if entry["replacement"])
     assert replaced["reason"] == "label scratched"
+    new = replaced["replacement"]
+    assert replaced["replacement_display"] == f"{new[:3]}-{new[3:7]}-{new[7:]}"
+    (other,) = data["other_series"]
+    assert other["display"] and other["display"] != other["code"]
+    assert other["display"].replace("-", "") == other["code"]
 
 
 def test_plain_list_and_a_clean_stocktake(register: Register, tmp_path: Path) -> None:
