@@ -196,6 +196,19 @@ class Register:
     def backend(self) -> str:
         return self.engine.dialect.name
 
+    @property
+    def connections(self) -> int:
+        """How many connections the engine's pool holds at most at once (at least 1); a
+        server sizes its threads for register calls by it."""
+        pool = self.engine.pool
+        size = getattr(pool, "size", None)
+        if not callable(size):
+            return 1
+        overflow = getattr(pool, "_max_overflow", 0)
+        if overflow < 0:  # no limit on overflow
+            overflow = size()
+        return max(1, size() + overflow)
+
     @contextmanager
     def reading(self) -> Iterator[Session]:
         """A session for reads; nothing it does is committed. A read the database refuses

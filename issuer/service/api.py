@@ -2,7 +2,8 @@
 
 Each handler checks the caller's right to the act, calls one library function and
 shapes its answer; the transaction commits inside the library call, before the response
-is sent. Writers go through the service's gate (see :meth:`ServiceState.writer`).
+is sent. Blocking register calls run on the service's threads (:meth:`ServiceState.read`);
+writers through :meth:`ServiceState.write` (on SQLite one writer thread, in arrival order).
 """
 
 from __future__ import annotations
@@ -59,25 +60,33 @@ def _jsonable(data: Any) -> Any:
 
 
 @router.get("/series", summary="Every series with its shape and fill")
-def list_series(state: StateDep, caller: CallerDep) -> list[dict[str, Any]]:
+async def list_series(state: StateDep, caller: CallerDep) -> list[dict[str, Any]]:
     from issuer.register.series import all_series, series_state
 
     require(caller, "read")
-    with state.register.reading() as session:
-        return _jsonable([series_state(session, s).as_dict() for s in all_series(session)])
+
+    def work() -> list[dict[str, Any]]:
+        with state.register.reading() as session:
+            return _jsonable([series_state(session, s).as_dict() for s in all_series(session)])
+
+    return await state.read(work)
 
 
 @router.get("/series/{key}", summary="One series")
-def show_series(key: str, state: StateDep, caller: CallerDep) -> dict[str, Any]:
+async def show_series(key: str, state: StateDep, caller: CallerDep) -> dict[str, Any]:
     from issuer.register.series import get_series, series_state
 
     require(caller, "read")
-    with state.register.reading() as session:
-        return _jsonable(series_state(session, get_series(session, key)).as_dict())
+
+    def work() -> dict[str, Any]:
+        with state.register.reading() as session:
+            return _jsonable(series_state(session, get_series(session, key)).as_dict())
+
+    return await state.read(work)
 
 
 @router.post("/series/{key}/issue", status_code=201, summary="Issue the next code(s): whole batch or nothing")
-def issue(
+async def issue(
     key: str,
     body: IssueBody,
     state: StateDep,
@@ -93,7 +102,7 @@ def issue(
     register = state.acting(caller)
     # the key is the caller's own: two callers choosing the same key never meet
     request_id = f"{caller.name}:{idempotency_key}" if idempotency_key else None
-    result = state.write(lambda: issue_codes(
+    result = await state.write(lambda: issue_codes(
         register, key, body.count, holder=body.holder, note=body.note, request_id=request_id,
     ))  # fmt: skip
     return {
@@ -105,7 +114,7 @@ def issue(
 
 
 @router.get("/series/{key}/export", summary="Every code of a series, streamed")
-def export(
+async def export(
     key: str,
     state: StateDep,
     caller: CallerDep,
@@ -115,10 +124,19 @@ def export(
     from issuer.register.transfer import count_codes, export_codes
 
     require(caller, "read")
-    count_codes(state.register, key, status)  # an unknown series is a 404 before streaming
-    spool = tempfile.TemporaryFile(mode="w+", encoding="utf-8", newline="")
-    export_codes(state.register, key, spool, fmt=format, status=status)
-    spool.seek(0)
+
+    def work() -> Any:
+        count_codes(state.register, key, status)  # an unknown series is a 404 before streaming
+        spool = tempfile.TemporaryFile(mode="w+", encoding="utf-8", newline="")
+        try:
+            export_codes(state.register, key, spool, fmt=format, status=status)
+        except BaseException:
+            spool.close()
+            raise
+        spool.seek(0)
+        return spool
+
+    spool = await state.read(work)
 
     def chunks() -> Iterator[str]:
         with spool:
@@ -132,8 +150,6 @@ def export(
 
 @router.post("/series/{key}/reconcile", summary="A scan file (request body) against the series")
 async def reconcile(key: str, request: Request, state: StateDep, caller: CallerDep) -> dict[str, Any]:
-    from starlette.concurrency import run_in_threadpool
-
     require(caller, "reconcile")
     raw = await request.body()
     kind = request.headers.get("content-type", "text/plain").split(";")[0].strip()
@@ -141,7 +157,7 @@ async def reconcile(key: str, request: Request, state: StateDep, caller: CallerD
               "application/json": ".jsonl", "text/plain": ".txt"}.get(kind)  # fmt: skip
     if suffix is None:
         raise HTTPException(415, f"send the scan file as text/plain, text/csv or application/jsonl, not {kind}")
-    return await run_in_threadpool(_reconcile, state, key, raw, suffix)
+    return await state.read(lambda: _reconcile(state, key, raw, suffix))
 
 
 def _reconcile(state: ServiceState, key: str, raw: bytes, suffix: str) -> dict[str, Any]:
@@ -160,61 +176,74 @@ def _reconcile(state: ServiceState, key: str, raw: bytes, suffix: str) -> dict[s
 
 
 @router.post("/check", summary="Check typed or scanned codes: status and likely intended codes")
-def check_many(body: CheckBody, state: StateDep, caller: CallerDep) -> list[dict[str, Any]]:
+async def check_many(body: CheckBody, state: StateDep, caller: CallerDep) -> list[dict[str, Any]]:
     from issuer.register.desk import check_codes
 
     require(caller, "read")
-    with state.register.reading() as session:
-        return _jsonable([answer.as_dict() for answer in check_codes(session, body.codes, state.register.clock())])
+
+    def work() -> list[dict[str, Any]]:
+        with state.register.reading() as session:
+            answers = check_codes(session, body.codes, state.register.clock())
+            return _jsonable([answer.as_dict() for answer in answers])
+
+    return await state.read(work)
 
 
 @router.get("/check/{code}", summary="Check one code")
-def check_one(code: str, state: StateDep, caller: CallerDep) -> dict[str, Any]:
+async def check_one(code: str, state: StateDep, caller: CallerDep) -> dict[str, Any]:
     from issuer.register.desk import check_codes
 
     require(caller, "read")
     if len(code) > 200:
         raise HTTPException(422, "a code is at most 200 characters")
-    with state.register.reading() as session:
-        return _jsonable(check_codes(session, [code], state.register.clock())[0].as_dict())
+
+    def work() -> dict[str, Any]:
+        with state.register.reading() as session:
+            return _jsonable(check_codes(session, [code], state.register.clock())[0].as_dict())
+
+    return await state.read(work)
 
 
 @router.get("/codes/{code}/history", summary="A code's record and every logged event about it")
-def history(code: str, state: StateDep, caller: CallerDep) -> dict[str, Any]:
+async def history(code: str, state: StateDep, caller: CallerDep) -> dict[str, Any]:
     from issuer.register.lifecycle import code_history
 
     require(caller, "read")
-    with state.register.reading() as session:
-        record, events = code_history(session, code)
-    return _jsonable({"code": record.as_dict(), "events": [event.as_dict() for event in events]})
+
+    def work() -> dict[str, Any]:
+        with state.register.reading() as session:
+            record, events = code_history(session, code)
+        return _jsonable({"code": record.as_dict(), "events": [event.as_dict() for event in events]})
+
+    return await state.read(work)
 
 
 @router.post("/codes/{code}/void", summary="Void a code for good (never issued again)")
-def void(code: str, body: ReasonBody, state: StateDep, caller: CallerDep) -> dict[str, Any]:
+async def void(code: str, body: ReasonBody, state: StateDep, caller: CallerDep) -> dict[str, Any]:
     from issuer.register.lifecycle import void_code
 
     require(caller, "void")
     register = state.acting(caller)
-    return _jsonable(state.write(lambda: void_code(register, code, reason=body.reason)).as_dict())
+    return _jsonable((await state.write(lambda: void_code(register, code, reason=body.reason))).as_dict())
 
 
 @router.post("/codes/{code}/replace", status_code=201, summary="Void a code and issue its replacement")
-def replace(code: str, body: ReasonBody, state: StateDep, caller: CallerDep) -> dict[str, Any]:
+async def replace(code: str, body: ReasonBody, state: StateDep, caller: CallerDep) -> dict[str, Any]:
     from issuer.register.lifecycle import replace_code
 
     require(caller, "replace")
     register = state.acting(caller)
-    made = state.write(lambda: replace_code(register, code, reason=body.reason))
+    made = await state.write(lambda: replace_code(register, code, reason=body.reason))
     return _jsonable(dict(made.__dict__))
 
 
 @router.post("/codes/{code}/restore", summary="Restore a voided code")
-def restore(code: str, body: ReasonBody, state: StateDep, caller: CallerDep) -> dict[str, Any]:
+async def restore(code: str, body: ReasonBody, state: StateDep, caller: CallerDep) -> dict[str, Any]:
     from issuer.register.lifecycle import restore_code
 
     require(caller, "restore")
     register = state.acting(caller)
-    return _jsonable(state.write(lambda: restore_code(register, code, reason=body.reason)).as_dict())
+    return _jsonable((await state.write(lambda: restore_code(register, code, reason=body.reason))).as_dict())
 
 
 # -- labels ---------------------------------------------------------------------------
@@ -223,7 +252,7 @@ LABEL_TYPES = {"pdf": "application/pdf", "png": "image/png", "svg": "image/svg+x
 
 
 @router.get("/labels", summary="Labels as a PDF sheet, or one label as PNG or SVG (logged as printed)")
-def labels(
+async def labels(
     state: StateDep,
     caller: CallerDep,
     code: Annotated[list[str] | None, Query(max_length=500)] = None,
@@ -234,7 +263,7 @@ def labels(
     reason: Annotated[str | None, Query(max_length=2000, description="Makes this a logged reprint.")] = None,
 ) -> Response:
     require(caller, "reprint" if reason else "labels")
-    content = state.write(lambda: draw_labels(
+    content = await state.write(lambda: draw_labels(
         state, caller, codes=code or (), batch=batch, series=series, kind=format,
         layout=layout, reason=reason,
     ))  # fmt: skip

@@ -3,7 +3,7 @@ cookie (the web page), and whether their role allows the act."""
 
 from __future__ import annotations
 
-import time
+import asyncio
 
 from fastapi import HTTPException, Request
 
@@ -14,7 +14,7 @@ FAILURE_DELAY_S = 0.2
 FAILURE_DELAY_CAP_S = 2.0
 
 
-def caller_from_header(request: Request) -> Caller:
+async def caller_from_header(request: Request) -> Caller:
     state: ServiceState = request.app.state.issuer
     address = client_address(request.client)
     if state.blocked(address):
@@ -24,18 +24,23 @@ def caller_from_header(request: Request) -> Caller:
     if scheme.lower() != "bearer" or not presented.strip():
         raise HTTPException(401, "send a token: 'Authorization: Bearer <token>' (issuer tokens add)",
                             headers={"WWW-Authenticate": 'Bearer realm="issuer"'})  # fmt: skip
-    caller = state.caller_for(presented.strip())
+    caller = await state.read(lambda: state.caller_for(presented.strip()))
     if caller is None:
-        slow_down(state, address)
+        await slow_down(state, address)
         raise HTTPException(401, "the token is not valid (unknown, mistyped or revoked)",
                             headers={"WWW-Authenticate": 'Bearer realm="issuer", error="invalid_token"'})  # fmt: skip
     return caller
 
 
-def slow_down(state: ServiceState, address: str) -> None:
-    """Count a failure from ``address`` and make its sender wait: guessing gets slower."""
+async def slow_down(state: ServiceState, address: str) -> None:
+    """Count a failure from ``address`` and make its sender wait: guessing gets slower
+    (the wait holds no thread: other desks are served meanwhile)."""
     failures = state.failed(address)
-    time.sleep(min(FAILURE_DELAY_S * failures, FAILURE_DELAY_CAP_S))
+    await pause(min(FAILURE_DELAY_S * failures, FAILURE_DELAY_CAP_S))
+
+
+async def pause(seconds: float) -> None:
+    await asyncio.sleep(seconds)
 
 
 def require(caller: Caller, act: str) -> None:

@@ -1,15 +1,17 @@
-"""What the service keeps between requests: the register, who is calling, the gate that
-serialises writers on SQLite, failed-token counts, and the web page's sessions."""
+"""What the service keeps between requests: the register, who is calling, the threads that
+run the register's blocking calls (one writer on SQLite, fed in arrival order), failed-token
+counts, and the web page's sessions."""
 
 from __future__ import annotations
 
+import asyncio
 import hashlib
 import secrets
 import threading
 import time
 from collections import deque
-from collections.abc import Callable, Iterator
-from contextlib import contextmanager
+from collections.abc import Callable
+from concurrent.futures import Future, ThreadPoolExecutor
 from dataclasses import dataclass, field, replace
 from typing import Any, TypeVar
 
@@ -25,6 +27,9 @@ FAILURE_WINDOW_S = 60.0
 FAILURE_LIMIT = 10
 #: a web session ends after this long without a request
 SESSION_IDLE_S = 8 * 3600.0
+#: the most threads that run register calls at once: a thread per pooled connection, up to
+#: this (the work holds the interpreter lock most of the time; more threads only queue there)
+MAX_THREADS = 8
 
 
 @dataclass(frozen=True)
@@ -52,7 +57,8 @@ class ServiceState:
     #: the settings in force (label layouts, fonts, ...), as the CLI reads them
     settings: Settings
     clock: Callable[[], float] = time.monotonic
-    _gate: threading.Lock = field(default_factory=threading.Lock)
+    _threads: ThreadPoolExecutor | None = None
+    _writer: ThreadPoolExecutor | None = None
     _lock: threading.Lock = field(default_factory=threading.Lock)
     _verified: dict[str, Caller] = field(default_factory=dict)
     _failures: dict[str, deque[float]] = field(default_factory=dict)
@@ -64,19 +70,37 @@ class ServiceState:
         """The register with the caller's token name as the log's actor (same engine)."""
         return replace(self.register, actor=caller.name)
 
-    @contextmanager
-    def writer(self) -> Iterator[None]:
-        """SQLite has one writer at a time: desks queue here, in the server, instead of
-        spinning on the file lock. PostgreSQL serves concurrent writers itself."""
-        if self.register.backend != "sqlite":
-            yield
-            return
-        with self._gate:
-            yield
+    def __post_init__(self) -> None:
+        threads = max(1, min(MAX_THREADS, self.register.connections))
+        self._threads = ThreadPoolExecutor(threads, thread_name_prefix="issuer-register")
+        if self.register.backend == "sqlite":
+            # SQLite has one writer at a time: every write goes to one thread, in the order the
+            # requests came (the executor's queue is first in, first out). A waiting desk holds
+            # no thread and no connection, and nobody spins on the file's lock.
+            self._writer = ThreadPoolExecutor(1, thread_name_prefix="issuer-writer")
 
-    def write(self, work: Callable[[], T]) -> T:
-        with self.writer():
-            return work()
+    def _submit(self, work: Callable[[], T], *, writing: bool) -> Future[T]:
+        executor = self._writer if writing and self._writer is not None else self._threads
+        assert executor is not None
+        return executor.submit(work)
+
+    async def read(self, work: Callable[[], T]) -> T:
+        """Run a blocking register call off the event loop, on the register's threads."""
+        return await asyncio.wrap_future(self._submit(work, writing=False))
+
+    async def write(self, work: Callable[[], T]) -> T:
+        """Run a writing act: on SQLite in the one writer thread, in arrival order; on
+        PostgreSQL on the register's threads (the database serves concurrent writers)."""
+        return await asyncio.wrap_future(self._submit(work, writing=True))
+
+    def write_blocking(self, work: Callable[[], T]) -> T:
+        """:meth:`write` for code already running in a worker thread."""
+        return self._submit(work, writing=True).result()
+
+    def close(self) -> None:
+        for executor in (self._threads, self._writer):
+            if executor is not None:
+                executor.shutdown(wait=True)
 
     # -- tokens -----------------------------------------------------------------------
 

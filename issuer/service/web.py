@@ -111,8 +111,6 @@ def desk(request: Request, code: str | None = None) -> Response:
 
 @router.post("/login")
 async def login(request: Request) -> Response:
-    from starlette.concurrency import run_in_threadpool
-
     state = _state(request)
     form = await request.form()
     expected = request.cookies.get(LOGIN_COOKIE, "")
@@ -123,9 +121,9 @@ async def login(request: Request) -> Response:
     if state.blocked(address):
         return _login_page(request, "Too many failed sign-ins from this address; wait a minute.", 429)
     presented = str(form.get("token", ""))[:200]
-    caller: Caller | None = await run_in_threadpool(state.caller_for, presented)
+    caller: Caller | None = await state.read(lambda: state.caller_for(presented))
     if caller is None:
-        await run_in_threadpool(slow_down, state, address)
+        await slow_down(state, address)
         return _login_page(request, "That token is not valid.", 401)
     response = RedirectResponse("/", status_code=303)
     response.set_cookie(SESSION_COOKIE, state.open_session(caller), httponly=True,
@@ -187,19 +185,19 @@ def _do(request: Request, web: WebSession, act: str, form: dict[str, str]) -> Re
         note = form.get("note", "").strip()[:2000] or None
         # a double-clicked or resent form issues once: its key is the request id
         request_id = f"{web.caller.name}:web:{form.get('request', '')[:40]}" if form.get("request") else None
-        result = state.write(lambda: issue_codes(register, form.get("series", ""), 1, holder=holder,
+        result = state.write_blocking(lambda: issue_codes(register, form.get("series", ""), 1, holder=holder,
                                                  note=note, request_id=request_id))  # fmt: skip
         made = result.codes[0]
         verb = "Already issued for this form" if result.replayed else "Issued"
         return _desk(request, web, code=made.code, message=f"{verb} {made.display} (batch {result.batch}).")
     if act == "void":
-        record = state.write(lambda: void_code(register, code, reason=reason))
+        record = state.write_blocking(lambda: void_code(register, code, reason=reason))
         return _desk(request, web, code=record.code, message=f"Voided {record.display}.")
     if act == "replace":
-        made = state.write(lambda: replace_code(register, code, reason=reason))
+        made = state.write_blocking(lambda: replace_code(register, code, reason=reason))
         return _desk(request, web, code=made.code,
                      message=f"Voided the old code; its replacement is {made.display}.")  # fmt: skip
-    content = state.write(lambda: draw_labels(state, web.caller, codes=[code], reason=reason))
+    content = state.write_blocking(lambda: draw_labels(state, web.caller, codes=[code], reason=reason))
     return Response(content, media_type="application/pdf", headers={
         "Content-Disposition": 'attachment; filename="reprint.pdf"', **SECURITY_HEADERS})  # fmt: skip
 

@@ -96,7 +96,10 @@ def test_rights_matrix(served: tuple[Api, dict[str, str], Any], role: str, monke
     from issuer.register.issuing import issue_codes
     from issuer.register.lifecycle import void_code
 
-    monkeypatch.setattr(auth.time, "sleep", lambda _s: None)  # the guessing penalty is tested below
+    async def no_pause(_seconds: float) -> None:
+        return None
+
+    monkeypatch.setattr(auth, "pause", no_pause)  # the guessing penalty is tested below
     api, tokens, register = served
     token = {"none": None, "wrong": "isr_0123456789abcdef_" + "x" * 43}.get(role, tokens.get(role))
     caller = api.as_(token) if role != "wrong" else Api(api.app, token, client=("127.0.0.9", 1))
@@ -190,7 +193,11 @@ def test_failed_tokens_are_slowed_then_refused(served: tuple[Api, dict[str, str]
     import issuer.service.auth as auth
 
     waited: list[float] = []
-    monkeypatch.setattr(auth.time, "sleep", waited.append)
+
+    async def pause(seconds: float) -> None:
+        waited.append(seconds)
+
+    monkeypatch.setattr(auth, "pause", pause)
     api, tokens, _ = served
     guesser = api.as_("isr_0123456789abcdef_" + "A" * 43)
     statuses = [guesser.get("/api/v1/series").status_code for _ in range(12)]
