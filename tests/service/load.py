@@ -17,6 +17,8 @@ import httpx
 class LoadResult:
     issued: dict[str, list[str]] = field(default_factory=dict)  # idempotency key -> codes
     retried: dict[str, list[str]] = field(default_factory=dict)
+    retry_statuses: list[int] = field(default_factory=list)
+    replayed: list[bool] = field(default_factory=list)
     statuses: list[int] = field(default_factory=list)
     latency: dict[str, list[float]] = field(default_factory=lambda: {"issue": [], "check": [], "void": [], "bare": []})
 
@@ -64,8 +66,10 @@ async def _client(base: str, clerk: str, admin: str, index: int, issues: int, re
             response = await client.post(f"/api/v1/series/{series}/issue", json={"count": 1},
                                          headers={"Authorization": f"Bearer {clerk}", "Idempotency-Key": key})  # fmt: skip
             result.statuses.append(response.status_code)
+            result.retry_statuses.append(response.status_code)
             if response.status_code == 201:
                 result.retried[key] = [c["code"] for c in response.json()["codes"]]
+                result.replayed.append(response.json()["replayed"])
 
 
 def run_load(base: str, clerk: str, admin: str, *, clients: int, issues: int, series: str = "tools",
