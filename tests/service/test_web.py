@@ -82,6 +82,80 @@ def test_clerk_sees_no_void_button_and_cannot_post_one(served: tuple[Api, dict[s
     assert reprint.status_code == 200 and reprint.content.startswith(b"%PDF")
 
 
+def _log_size(register: Any) -> int:
+    from issuer.register.log import head
+
+    with register.reading() as session:
+        return int(head(session)[0])
+
+
+@pytest.mark.parametrize("form", ["issue", "void", "replace", "reprint", "logout"])
+def test_every_changing_form_needs_the_sessions_csrf(served: tuple[Api, dict[str, str], Any], form: str) -> None:
+    from issuer.register.issuing import issue_codes
+
+    api, tokens, register = served
+    csrf = _sign_in(api, tokens["admin"])
+    code = issue_codes(register, "tools", 1).codes[0].code
+    fields = {"series": "tools", "code": code, "reason": "tag snapped", "request": "form-9"}
+    path = "/logout" if form == "logout" else f"/desk/{form}"
+    before = _log_size(register)
+    for forged in ({}, {"csrf": ""}, {"csrf": "guess"}, {"csrf": csrf + "x"}):
+        refused = api.post(path, data={**fields, **forged}, follow_redirects=False)
+        assert refused.status_code == 403, (form, forged, refused.text)
+        assert _log_size(register) == before  # nothing happened
+    # another session's form token is no good either
+    other = Api(api.app)
+    _sign_in(other, tokens["admin"])
+    assert other.post(path, data={**fields, "csrf": csrf}, follow_redirects=False).status_code == 403
+    assert "Scan or type a code" in api.get("/").text  # still signed in
+    done = api.post(path, data={**fields, "csrf": csrf}, follow_redirects=False)
+    assert done.status_code in (200, 303), done.text
+
+
+def test_cookies_are_http_only_strict_and_secure_behind_tls(served: tuple[Api, dict[str, str], Any]) -> None:
+    api, tokens, _ = served
+    behind_proxy = {"X-Forwarded-Proto": "https"}
+    page = api.get("/", headers=behind_proxy)
+    login_cookie = page.headers["set-cookie"].lower()
+    assert "httponly" in login_cookie and "samesite=strict" in login_cookie and "secure" in login_cookie
+    # a Secure cookie goes back only over https: send it by hand (this client speaks plain http)
+    form_cookie = page.headers["set-cookie"].split(";")[0]
+    signed = Api(api.app).post("/login", data={"csrf": _csrf(page.text), "token": tokens["clerk"]},
+                               headers={**behind_proxy, "Cookie": form_cookie}, follow_redirects=False)  # fmt: skip
+    assert signed.status_code == 303, signed.text
+    session_cookies = [value.lower() for name, value in signed.headers.multi_items() if name == "set-cookie"]
+    issued = next(value for value in session_cookies if value.startswith("issuer_desk="))
+    assert "httponly" in issued and "samesite=strict" in issued and "secure" in issued and "path=/" in issued
+    # plain HTTP on localhost (no proxy): the cookie cannot be Secure or the browser drops it
+    plain = Api(api.app).get("/").headers["set-cookie"].lower()
+    assert "httponly" in plain and "samesite=strict" in plain and "secure" not in plain
+
+
+def test_failed_sign_ins_are_slowed_then_refused(served: tuple[Api, dict[str, str], Any],
+                                                 monkeypatch: pytest.MonkeyPatch) -> None:  # fmt: skip
+    import issuer.service.auth as auth
+
+    waited: list[float] = []
+
+    async def pause(seconds: float) -> None:
+        waited.append(seconds)
+
+    monkeypatch.setattr(auth, "pause", pause)
+    api, tokens, _ = served
+    statuses = []
+    for _ in range(12):
+        page = api.get("/")
+        statuses.append(api.post("/login", data={"csrf": _csrf(page.text), "token": "isr_guess"},
+                                 follow_redirects=False).status_code)  # fmt: skip
+    assert statuses == [401] * 10 + [429, 429]
+    assert waited == sorted(waited) and waited[-1] > waited[0]  # each failure waits longer
+    # the right token from that address waits out the window too; the API shares the count
+    page = api.get("/")
+    late = api.post("/login", data={"csrf": _csrf(page.text), "token": tokens["clerk"]}, follow_redirects=False)
+    assert late.status_code == 429 and "Too many failed sign-ins" in late.text
+    assert api.as_(tokens["clerk"]).get("/api/v1/series").status_code == 429
+
+
 def _chromium() -> str | None:
     for name in ("chromium", "chromium-browser"):
         found = shutil.which(name)
