@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from collections.abc import AsyncIterator
+from contextlib import asynccontextmanager
 from importlib import resources
 from typing import Any
 
@@ -76,7 +78,13 @@ def create_app(register: Register, *, settings: Settings | None = None,
     """The service over ``register`` (its engine is shared by every request)."""
     from issuer import __version__
 
+    @asynccontextmanager
+    async def lifespan(served: FastAPI) -> AsyncIterator[None]:
+        yield
+        served.state.issuer.close()  # acts already queued finish; their threads end
+
     app = FastAPI(
+        lifespan=lifespan,
         title="issuer",
         version=__version__,
         summary="Registers of identifier series over HTTP: issue, check, void, replace, labels, stocktake.",

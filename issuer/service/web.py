@@ -134,13 +134,15 @@ async def login(request: Request) -> Response:
 
 async def _form_for_act(request: Request) -> tuple[WebSession | None, dict[str, str], Response | None]:
     """The session and form of a changing request, or the response that refuses it."""
-    web = _session(request)
+    state = _state(request)
+    web = await state.read(lambda: _session(request))
     if web is None:
         return None, {}, RedirectResponse("/", status_code=303)
     form = {key: str(value) for key, value in (await request.form()).items()}
+    signed: WebSession = web
     if not hmac.compare_digest(web.csrf, form.get("csrf", "")):
-        return web, form, _desk(request, web, message="The form expired; try again.",
-                                message_kind="refused", status=403)  # fmt: skip
+        return web, form, await state.read(lambda: _desk(request, signed, message="The form expired; try again.",
+                                                         message_kind="refused", status=403))  # fmt: skip
     return web, form, None
 
 
@@ -162,14 +164,19 @@ async def _act(request: Request, act: str) -> Response:
     if refused is not None:
         return refused
     assert web is not None
+    signed: WebSession = web
+    state = _state(request)
     if not web.caller.may(act):
-        return _desk(request, web, message=f"The {web.caller.role} role may not {act}.",
-                     message_kind="refused", status=403)  # fmt: skip
+        return await state.read(lambda: _desk(request, signed, message=f"The {signed.caller.role} role may not {act}.",
+                                              message_kind="refused", status=403))  # fmt: skip
     try:
+        # not on the register's threads: _do waits there for its write (on PostgreSQL on
+        # those same threads), so it runs on the server's general pool
         return await run_in_threadpool(_do, request, web, act, form)
     except IssuerError as exc:
-        return _desk(request, web, code=form.get("code"), message=exc.message, message_kind="refused",
-                     status=422)  # fmt: skip
+        message = exc.message
+        return await state.read(lambda: _desk(request, signed, code=form.get("code"), message=message,
+                                              message_kind="refused", status=422))  # fmt: skip
 
 
 def _do(request: Request, web: WebSession, act: str, form: dict[str, str]) -> Response:
