@@ -2,7 +2,8 @@
 
 Floors, lowest first:
   errors, config                      settings and the exception tree
-  checking, scattering, readers       pure: values in, values out; no database, clock or terminal
+  checking, scattering, readers,
+  proofs                              pure: values in, values out; no database, clock or terminal
   register                            the only package that imports SQLAlchemy (and Alembic)
   stocktake, labels                   work built on the register's API
   cli, counter, service               faces: they only call the floors below
@@ -25,7 +26,7 @@ DATABASE_LIBRARIES = {"sqlalchemy", "alembic", "psycopg", "psycopg2"}
 TERMINAL_LIBRARIES = {"typer", "click", "rich", "textual"}
 WEB_LIBRARIES = {"starlette", "fastapi", "uvicorn", "litestar"}
 
-PURE = {"checking", "scattering", "readers"}
+PURE = {"checking", "scattering", "readers", "proofs"}
 FACES = {"cli", "counter", "service"}
 MIDDLE = {"stocktake", "labels"}
 
