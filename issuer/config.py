@@ -72,6 +72,15 @@ class Settings:
         """The user's config file's folder: relative paths in it (logos, fonts) start there."""
         return None if self.source is None else self.source.parent
 
+    def signing_key(self) -> Path | None:
+        """The log's Ed25519 signing key (``[register] signing_key``; relative to the config
+        file's folder), or None when the config names none."""
+        value = self.section("register").get("signing_key")
+        if not value:
+            return None
+        path = Path(value).expanduser()
+        return path if path.is_absolute() or self.folder is None else self.folder / path
+
     def section(self, name: str) -> dict[str, Any]:
         value = self.raw.get(name, {})
         return value if isinstance(value, dict) else {}
@@ -110,7 +119,7 @@ def _read_text(path: Path) -> str:
 
 #: what each known setting must be: a table, or in ``[register]`` a text or a whole number
 _TABLES = ("register", "layouts", "labels")
-_REGISTER_TYPES: dict[str, type] = {"database": str, "actor": str, "busy_timeout_ms": int}
+_REGISTER_TYPES: dict[str, type] = {"database": str, "actor": str, "busy_timeout_ms": int, "signing_key": str}
 #: the longest wait for a busy register a config may ask for, in milliseconds
 MAX_BUSY_TIMEOUT_MS = 600_000
 
@@ -137,6 +146,8 @@ def _check_types(raw: dict[str, Any], where: str) -> None:
         limits.text("actor", register["actor"], label=f"config file {where}: register.actor")
     if register.get("database") is not None:
         limits.file_name(f"config file {where}: register.database", register["database"])
+    if register.get("signing_key") is not None:
+        limits.file_name(f"config file {where}: register.signing_key", register["signing_key"])
 
 
 def _os_user() -> str:

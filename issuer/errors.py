@@ -143,3 +143,9 @@ class LayoutError(LabelError):
     """A label layout that is badly described or does not fit its page."""
 
     default_message = "the label layout is not valid"
+
+
+class ProofFailed(IssuerError):
+    """A signature, a checkpoint or a Merkle proof does not hold."""
+
+    default_message = "the proof does not hold"

@@ -7,6 +7,7 @@ from typing import Annotated, Any
 
 import typer
 
+from issuer.cli.signing import KeyOption
 from issuer.cli.common import (
     PERSONAL_DATA_CAUTION,
     ActorOption,
@@ -51,6 +52,16 @@ def issue(
         str | None,
         typer.Option("--valid-until", help="The codes are valid through this date (YYYY-MM-DD, UTC); default: the series' period."),
     ] = None,
+    receipt: Annotated[
+        Path | None,
+        typer.Option(
+            "--receipt",
+            help="Also write a signed inclusion receipt for this batch's log entry to this file, "
+            "checkable offline with the log's public key ('issuer log check-receipt').",
+            dir_okay=False,
+        ),
+    ] = None,
+    sign_key: KeyOption = None,
     db: DbOption = None,
     actor: ActorOption = None,
     as_json: JsonOption = False,
@@ -61,6 +72,13 @@ def issue(
     from issuer.register.standing import parse_instant
 
     until = parse_instant(valid_until, end_of_day=True) if valid_until is not None else None
+    signing = None
+    if receipt is not None:  # the key and the receipt's file are checked before anything is issued
+        from issuer.cli.signing import read_key_file, signing_key_path
+        from issuer.outputs import check_target
+
+        signing = read_key_file(signing_key_path(sign_key), "signing key")
+        check_target(receipt, force=force, what="receipt file")
 
     from issuer.cli.interrupts import batch_told, now, truthful_interrupt
 
@@ -83,6 +101,7 @@ def issue(
             )  # fmt: skip
         with register.reading() as session:
             fill, warning = after_batch(session, result.series, 0 if result.replayed else result.count)
+        proof = _write_receipt(register, result.batch, signing, receipt, force) if receipt is not None else None
         if as_json:
             print_json({
                 "batch": result.batch,
@@ -91,13 +110,28 @@ def issue(
                 "codes": [info.as_dict() for info in result.codes],
                 "fill": fill,
                 "fill_warning": warning.as_dict() if warning else None,
+                "receipt": proof,
             })
             return
         _render_issue(result, out, holder is not None and _holds_people(register, key))
+        if proof is not None:
+            console().print(f"Receipt written to {receipt}: leaf {proof['index']} of the tree of {proof['size']:,}")
         if warning is not None:
             from issuer.cli.common import err_console
 
             err_console().print(f"[bold yellow]Warning:[/bold yellow] {warning.message()}")
+
+
+def _write_receipt(register: Any, batch: int, signing: Any, path: Path, force: bool) -> dict[str, Any]:
+    """Seal, sign and prove the batch's log entry; the receipt file appears whole."""
+    from issuer.outputs import output_text
+    from issuer.register.checkpoints import receipt_for_batch
+
+    made = receipt_for_batch(register, batch, signing)
+    with output_text(path, force=force, what="receipt file") as stream:
+        stream.write(made.text())
+    return {"file": str(path), "index": made.index, "size": made.checkpoint.size,
+            "root": made.checkpoint.root.hex(), "entry_hash": made.entry_hash}  # fmt: skip
 
 
 def _holds_people(register: Any, key: str) -> bool:

@@ -3,10 +3,12 @@
 from __future__ import annotations
 
 from datetime import datetime
+from pathlib import Path
 from typing import Annotated, Any
 
 import typer
 
+from issuer.cli.signing import KeyOption, read_key_file, read_statement, signing_key_path
 from issuer.cli.common import (
     DbOption,
     JsonOption,
@@ -169,12 +171,29 @@ TAMPER_NOTE = (
 @log_app.command("verify")
 def log_verify(
     *,
+    checkpoint: Annotated[
+        Path | None,
+        typer.Option(
+            "--checkpoint",
+            help="A signed checkpoint ('issuer log checkpoint'): prove the log extends it with a "
+            "Merkle consistency proof.",
+            dir_okay=False,
+        ),
+    ] = None,
+    public_key: Annotated[
+        Path | None,
+        typer.Option(
+            "--public-key",
+            help="The public key that signed --checkpoint (default: the configured signing key's).",
+            dir_okay=False,
+        ),
+    ] = None,
     anchor: Annotated[
         list[str] | None,
         typer.Option(
             "--anchor",
-            help="An anchor written down earlier (ID:HASH from 'issuer log anchor'): check the "
-            "entry is still in the chain, unchanged. Repeat for several.",
+            help="An anchor written down earlier (tree:SIZE:ROOT from 'issuer log anchor'; or ID:HASH "
+            "from an older issuer, checking that entry's chain up to it). Repeat for several.",
         ),
     ] = None,
     db: DbOption = None,
@@ -189,12 +208,14 @@ def log_verify(
     from issuer.register.admin import parse_anchor, verify_log
 
     anchors = [parse_anchor(value) for value in anchor or []]
+    signed, public = _checkpoint_and_key(checkpoint, public_key)
     register = open_existing_from_options(db)
     if as_json:
         report, checks = verify_log(register, anchors)
     else:
         with err_console().status("Recomputing the log's hash chain"):
             report, checks = verify_log(register, anchors)
+    extension = _extends(register, signed, public) if signed is not None else None
     register.close()
     broken = report.problem is not None or any(not check.holds for check in checks)
     if as_json:
@@ -209,13 +230,16 @@ def log_verify(
                 {"anchor": str(check.anchor), "holds": check.holds, "problem": check.problem}
                 for check in checks
             ],
+            "tree": {"size": report.tree_size, "root": report.tree_root},
+            "chains": report.chains,
+            "checkpoint": extension,
         })
     else:
         out = console()
         if report.problem is None:
             out.print(
-                f"[green]Log intact[/]: {report.entries:,} entries, head "
-                f"{report.head_id}:{report.head_hash}"
+                f"[green]Log intact[/]: {report.entries:,} entries in {report.chains} chain(s); "
+                f"sealed tree tree:{report.tree_size}:{report.tree_root}"
             )
         else:
             out.print(
@@ -226,16 +250,53 @@ def log_verify(
                 out.print(f"[green]Anchor holds[/]: {check.anchor.entry_id} is unchanged")
             else:
                 out.print(f"[bold red]Anchor fails[/]: {check.problem}")
+        if extension is not None:
+            out.print(
+                f"[green]Checkpoint holds[/]: the log's {extension['size']:,} sealed leaves extend the "
+                f"{extension['from']:,} signed at {extension['signed_at']} (consistency proof of "
+                f"{len(extension['proof'])} hashes)"
+            )
         out.print(TAMPER_NOTE, style="dim")
     if broken:
         raise typer.Exit(1)
 
 
+def _checkpoint_and_key(path: Any, public_key: Any) -> tuple[Any, bytes | None]:
+    """The parsed checkpoint and the public key to check it with (read before the register opens)."""
+    if path is None:
+        return None, None
+    from issuer.proofs.statements import parse_checkpoint, public_key_pem
+
+    signed = parse_checkpoint(read_statement(path, "checkpoint"), str(path))
+    if public_key is not None:
+        return signed, read_key_file(public_key, "public key")
+    return signed, public_key_pem(read_key_file(signing_key_path(None), "signing key"))
+
+
+def _extends(register: Any, signed: Any, public: Any) -> dict[str, Any]:
+    """The consistency proof from the checkpoint to the log now, checked as a verifier
+    would (checkpoint, proof and public key): raises ProofFailed when it does not hold."""
+    from issuer.errors import ProofFailed
+    from issuer.proofs.merkle import verify_consistency
+    from issuer.proofs.statements import check_checkpoint
+    from issuer.register.checkpoints import extension_proof
+
+    check_checkpoint(signed, public)
+    size, root, proof = extension_proof(register, signed)
+    if not verify_consistency(signed.size, size, proof, signed.root, root):
+        raise ProofFailed(
+            f"the log does not extend the checkpoint: its first {signed.size:,} leaves are no longer the ones signed"
+        )
+    return {"from": signed.size, "signed_at": signed.at, "size": size, "root": root.hex(),
+            "proof": [node.hex() for node in proof]}  # fmt: skip
+
+
 @log_app.command("anchor")
 def log_anchor(db: DbOption = None, as_json: JsonOption = False) -> None:
-    """Print the log's newest entry as ID:HASH, to write down or publish elsewhere.
+    """Seal the log and print its Merkle tree as tree:SIZE:ROOT, to write down or publish elsewhere.
 
-    Later, 'issuer log verify --anchor ID:HASH' shows whether the log up to it changed.
+    Later, 'issuer log verify --anchor tree:SIZE:ROOT' shows whether any entry sealed then
+    changed or went missing, on any series' chain.
     """
     from issuer.register.admin import current_anchor
 
@@ -243,7 +304,7 @@ def log_anchor(db: DbOption = None, as_json: JsonOption = False) -> None:
     anchor, at = current_anchor(register)
     register.close()
     if as_json:
-        print_json({"id": anchor.entry_id, "hash": anchor.hash, "at": at, "anchor": str(anchor)})
+        print_json({"size": anchor.entry_id, "root": anchor.hash, "at": at, "anchor": str(anchor)})
         return
     if anchor.entry_id == 0:
         console().print("The log is empty; there is nothing to anchor yet.")
@@ -252,6 +313,114 @@ def log_anchor(db: DbOption = None, as_json: JsonOption = False) -> None:
     when = f" (entry of {at:%Y-%m-%d %H:%M:%S} UTC)" if at is not None else ""
     err_console().print(
         f"Write this down or publish it somewhere the register cannot reach{when}; "
-        "check it later with: issuer log verify --anchor ID:HASH",
+        "check it later with: issuer log verify --anchor tree:SIZE:ROOT",
         style="dim",
+    )
+
+
+# --- signed checkpoints and receipts --------------------------------------------------
+
+@log_app.command("new-key")
+def log_new_key(
+    *,
+    key: KeyOption = None,
+    force: Annotated[bool, typer.Option("--force", help="Replace an existing key file.")] = False,
+) -> None:
+    """Make an Ed25519 key to sign the log's checkpoints and receipts.
+
+    Writes the private key (owner-only) and, beside it, KEY.pub, the public key to publish.
+    Keep the private key outside the register and away from anyone who can edit the register.
+    """
+    from pathlib import Path
+
+    from issuer.outputs import check_target, output_text
+    from issuer.proofs.statements import fingerprint, new_private_key_pem, public_key_pem
+
+    path = Path(signing_key_path(key)).expanduser()
+    public = path.with_name(path.name + ".pub")
+    check_target(path, force=force, what="key file")
+    check_target(public, force=force, what="public key file")
+    private = new_private_key_pem()
+    with output_text(path, force=force, what="key file") as stream:
+        stream.write(private.decode())
+    with output_text(public, force=force, what="public key file") as stream:
+        stream.write(public_key_pem(private).decode())
+    console().print(f"Signing key written to {path}; publish {public} (key {fingerprint(public_key_pem(private))})")
+
+
+@log_app.command("public-key")
+def log_public_key(*, key: KeyOption = None) -> None:
+    """Print the signing key's public half (PEM), to publish where checkers find it."""
+    from issuer.proofs.statements import public_key_pem
+
+    typer.echo(public_key_pem(read_key_file(signing_key_path(key), "signing key")).decode(), nl=False)
+
+
+@log_app.command("checkpoint")
+def log_checkpoint(
+    *,
+    key: KeyOption = None,
+    out: Annotated[
+        Path | None, typer.Option("--out", help="Write the checkpoint to this file (default: print it).", dir_okay=False)
+    ] = None,
+    force: Annotated[bool, typer.Option("--force", help="Replace an existing --out file.")] = False,
+    db: DbOption = None,
+    as_json: JsonOption = False,
+) -> None:
+    """Seal the log and write a signed checkpoint: the Merkle tree's size and root.
+
+    Keep or publish it; later 'issuer log verify --checkpoint FILE' proves the log still
+    extends it (nothing in it was changed or removed).
+    """
+    from issuer.outputs import check_target, output_text
+    from issuer.register.checkpoints import make_checkpoint
+
+    private = read_key_file(signing_key_path(key), "signing key")
+    if out is not None:
+        check_target(out, force=force, what="checkpoint file")
+    register = open_existing_from_options(db)
+    checkpoint = make_checkpoint(register, private)
+    register.close()
+    if out is not None:
+        with output_text(out, force=force, what="checkpoint file") as stream:
+            stream.write(checkpoint.text())
+    if as_json:
+        print_json({"size": checkpoint.size, "root": checkpoint.root.hex(), "at": checkpoint.at,
+                    "key": checkpoint.key, "text": checkpoint.text()})  # fmt: skip
+    elif out is None:
+        typer.echo(checkpoint.text(), nl=False)
+    else:
+        console().print(f"Checkpoint of {checkpoint.size:,} leaves written to {out}")
+
+
+@log_app.command("check-receipt")
+def log_check_receipt(
+    receipt: Annotated[Path, typer.Argument(help="The receipt file ('issuer issue --receipt').", dir_okay=False)],
+    *,
+    public_key: Annotated[
+        Path, typer.Option("--public-key", help="The log's published public key (PEM).", dir_okay=False)
+    ],
+    as_json: JsonOption = False,
+) -> None:
+    """Check an inclusion receipt offline: signed by the key, and its entry is in the signed tree.
+
+    Needs only the receipt and the public key, never the register. Exit 0 when it holds;
+    a wrong key or an altered receipt is one line and exit 2.
+    """
+    import json
+
+    from issuer.proofs.statements import check_receipt, parse_receipt
+
+    found = parse_receipt(read_statement(receipt, "receipt"), str(receipt))
+    check_receipt(found, read_key_file(public_key, "public key"))
+    entry = json.loads(found.entry)
+    if as_json:
+        print_json({"holds": True, "entry": entry, "entry_hash": found.entry_hash, "index": found.index,
+                    "size": found.checkpoint.size, "root": found.checkpoint.root.hex(),
+                    "at": found.checkpoint.at})  # fmt: skip
+        return
+    what = ", ".join(f"{k} {entry[k]}" for k in ("action", "code", "batch") if entry.get(k) is not None)
+    console().print(
+        f"[green]Receipt holds[/]: entry {entry['id']} ({what}) is leaf {found.index} of the tree of "
+        f"{found.checkpoint.size:,} signed at {found.checkpoint.at}"
     )

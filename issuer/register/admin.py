@@ -338,7 +338,8 @@ def _copy(source: Path, partial: Path, progress: Progress | None) -> tuple[int, 
         check = writer.execute("PRAGMA integrity_check").fetchall()
         if check != [("ok",)]:
             raise RegisterError(f"the copy failed its integrity check: {check[0][0]}")
-        row = writer.execute("SELECT last_id, last_hash FROM log_head WHERE id = 1").fetchone()
+        writer.execute("SELECT count(*) FROM log_chain").fetchone()  # a register has its chains' heads
+        row = writer.execute("SELECT id, hash FROM log_entry ORDER BY id DESC LIMIT 1").fetchone() or (0, "0" * 64)
     except sqlite3.Error as exc:
         raise RegisterError(f"the backup failed: {exc}") from None
     finally:
@@ -387,17 +388,22 @@ def shell_line(command: list[str]) -> str:
 
 @dataclass(frozen=True)
 class Anchor:
-    """A log entry's id and hash, written down somewhere the register cannot reach."""
+    """Written down somewhere the register cannot reach: the sealed tree's size and root
+    (``tree:SIZE:ROOT``, what ``log anchor`` prints), or one entry's id and hash
+    (``ID:HASH``, what it printed before the log was chained per series)."""
 
-    entry_id: int
+    entry_id: int  # a tree anchor: the tree's size
     hash: str
+    tree: bool = False
 
     def __str__(self) -> str:
-        return f"{self.entry_id}:{self.hash}"
+        return f"tree:{self.entry_id}:{self.hash}" if self.tree else f"{self.entry_id}:{self.hash}"
 
 
 def parse_anchor(value: str) -> Anchor:
-    entry, sep, digest = value.strip().partition(":")
+    text_ = value.strip()
+    tree = text_.lower().startswith("tree:")
+    entry, sep, digest = text_[5:].partition(":") if tree else text_.partition(":")
     digest = digest.strip().lower()
     if (
         not sep
@@ -405,8 +411,8 @@ def parse_anchor(value: str) -> Anchor:
         or len(digest) != 64
         or any(ch not in "0123456789abcdef" for ch in digest)
     ):
-        raise InvalidFormat(f"an anchor looks like 1234:<64 hex digits>, not {value!r}")
-    return Anchor(int(entry), digest)
+        raise InvalidFormat(f"an anchor looks like tree:SIZE:<64 hex digits> or ID:<64 hex digits>, not {value!r}")
+    return Anchor(int(entry), digest, tree)
 
 
 @dataclass(frozen=True)
@@ -420,11 +426,16 @@ class AnchorCheck:
 
 
 def check_anchor(session: Session, report: ChainReport, anchor: Anchor) -> AnchorCheck:
-    """Whether the anchored entry is still in the chain, with the same hash.
+    """Whether the log still holds what the anchor vouches for.
 
-    With the chain intact up to it, a matching hash means every entry up to the
-    anchor is as it was when the anchor was written down.
+    A tree anchor: the first SIZE sealed leaves still give ROOT, so every entry sealed then
+    is as it was, in the same places, whichever chain it is on. An entry anchor: the entry
+    is still in its chain with the same hash; with the chain intact up to it, every entry
+    of that chain up to it is as it was (before the log was chained per series, that was
+    the whole log).
     """
+    if anchor.tree:
+        return _check_tree_anchor(session, report, anchor)
     stored = session.scalar(select(LogEntry.hash).where(LogEntry.id == anchor.entry_id))
     if stored is None:
         return AnchorCheck(anchor, f"entry {anchor.entry_id} is no longer in the log")
@@ -439,10 +450,29 @@ def check_anchor(session: Session, report: ChainReport, anchor: Anchor) -> Ancho
     return AnchorCheck(anchor, None)
 
 
+def _check_tree_anchor(session: Session, report: ChainReport, anchor: Anchor) -> AnchorCheck:
+    from issuer.proofs.merkle import root
+    from issuer.register.log import leaf_hashes
+    from issuer.register.models import LogLeaf
+
+    size = anchor.entry_id
+    leaves = leaf_hashes(session, size)
+    if len(leaves) < size:
+        return AnchorCheck(anchor, f"the log's sealed tree has {len(leaves)} leaves, fewer than the anchor's {size}: "
+                                   "entries were removed")  # fmt: skip
+    if root(leaves).hex() != anchor.hash:
+        return AnchorCheck(anchor, f"the first {size} leaves no longer give the anchor's root: the log was rewritten")
+    if report.problem is not None:
+        position = session.scalar(select(LogLeaf.position).where(LogLeaf.entry_id == report.problem.entry_id))
+        if position is not None and position < size:
+            return AnchorCheck(anchor, f"the chain breaks at entry {report.problem.entry_id}, inside the anchored tree")
+    return AnchorCheck(anchor, None)
+
+
 def verify_log(
     register: Register, anchors: Sequence[Anchor] = ()
 ) -> tuple[ChainReport, list[AnchorCheck]]:
-    """Recompute the whole chain in one consistent snapshot; check anchors."""
+    """Recompute every chain and the sealed tree in one consistent snapshot; check anchors."""
     with snapshot(register) as session:
         report = verify_chain(session)
         checks = [check_anchor(session, report, anchor) for anchor in anchors]
@@ -450,10 +480,16 @@ def verify_log(
 
 
 def current_anchor(register: Register) -> tuple[Anchor, Any]:
-    """The newest entry as an anchor, with its time."""
-    from issuer.register.log import head
+    """Seal what has committed and give the tree's size and root, with the newest sealed
+    entry's time."""
+    from issuer.proofs.merkle import root
+    from issuer.register.log import leaf_hashes, seal
+    from issuer.register.models import LogLeaf
 
+    size = register.write(seal)
     with snapshot(register) as session:
-        head_id, head_hash = head(session)
-        at = session.scalar(select(LogEntry.at).where(LogEntry.id == head_id)) if head_id else None
-    return Anchor(head_id, head_hash), at
+        top = root(leaf_hashes(session, size))
+        at = session.scalar(
+            select(LogEntry.at).join(LogLeaf, LogLeaf.entry_id == LogEntry.id).where(LogLeaf.position == size - 1)
+        ) if size else None
+    return Anchor(size, top.hex(), tree=True), at

@@ -1,11 +1,23 @@
-"""The hash-chained log.
+"""The hash-chained log: one chain per series, one for the register, sealed into a Merkle tree.
 
 Every entry's hash is SHA-256 over a canonical JSON of its content and the previous
-entry's hash; entry ids are consecutive. Recomputing the chain shows the first entry
-that was altered (its hash no longer matches), deleted (a gap in ids or a broken
-link) or inserted (a link that does not follow) behind the tool's back. It does not
-prove more than that: someone who can rewrite the whole chain *and* the head can hide
-it, which is why :func:`head` exists — write the head hash down somewhere else.
+hash *in its chain*. A series' acts chain on that series (``chain`` = the series' id),
+everything else — acts on no series, a series being added — on the register's chain
+(``chain`` = 0; every entry written before the log was chained per series is there too,
+unchanged). Each chain has a head row in ``log_chain`` that its writer locks, so acts on
+different series never wait for each other. Recomputing every chain shows the first
+entry that was altered, deleted (a broken link, or a head that names an entry no longer
+there) or inserted (a link that does not follow).
+
+The chains are tied together by *sealing* (:func:`seal`): under a lock only sealing takes
+(``log_tree``), every committed entry not yet sealed gets the next leaf position
+(``log_leaf``), oldest id first. Within a chain entries commit in id order (the next
+writer waits for the chain's lock), so what sealing sees of each chain is a prefix and a
+position, once given, never changes. The leaves in position order form the Merkle tree of
+RFC 6962 (leaf data: the entry's 32-byte hash), whose size and root are the register-wide
+digest: :func:`anchor` and signed checkpoints are that pair. Someone who can rewrite a
+chain *and* its head can hide an edit from the chain alone, and someone who can also
+rewrite the leaves from the tree alone; a root written down elsewhere cannot be rewritten.
 """
 
 from __future__ import annotations
@@ -17,11 +29,11 @@ from dataclasses import dataclass
 from datetime import datetime
 from typing import Any, cast
 
-from sqlalchemy import Table, bindparam, insert, select, text, update
+from sqlalchemy import Table, bindparam, func, insert, select, text, update
 from sqlalchemy.orm import Session
 
 from issuer.register.driver import Prepared
-from issuer.register.models import LogEntry, LogHead
+from issuer.register.models import LogChain, LogEntry, LogLeaf, LogTree
 
 GENESIS = "0" * 64
 
@@ -31,7 +43,7 @@ def timestamp_text(at: datetime) -> str:
     return at.strftime("%Y-%m-%dT%H:%M:%S.%fZ")
 
 
-def entry_hash(
+def entry_text(
     *,
     entry_id: int,
     at: datetime,
@@ -43,7 +55,9 @@ def entry_hash(
     detail: str,
     prev_hash: str,
     login: str | None = None,
+    chain: int = 0,
 ) -> str:
+    """The canonical JSON an entry's hash is taken over (keys sorted, no spaces; one line)."""
     content: dict[str, Any] = {
         "id": entry_id,
         "at": timestamp_text(at),
@@ -57,8 +71,23 @@ def entry_hash(
     }
     if login is not None:  # PostgreSQL's append function records the login (SQLite has none)
         content["login"] = login
-    data = json.dumps(content, sort_keys=True, separators=(",", ":"), ensure_ascii=False)
-    return hashlib.sha256(data.encode("utf-8")).hexdigest()
+    if chain:  # a series' chain; the register's chain (0) hashes as the single chain always did
+        content["chain"] = chain
+    return json.dumps(content, sort_keys=True, separators=(",", ":"), ensure_ascii=False)
+
+
+def entry_hash(**fields: Any) -> str:
+    """SHA-256 (hex) of :func:`entry_text`."""
+    return hashlib.sha256(entry_text(**fields).encode("utf-8")).hexdigest()
+
+
+def row_text(entry: LogEntry) -> str:
+    """:func:`entry_text` of a stored entry."""
+    return entry_text(
+        entry_id=entry.id, at=entry.at, actor=entry.actor, action=entry.action, series_id=entry.series_id,
+        code=entry.code, batch_id=entry.batch_id, detail=entry.detail, prev_hash=entry.prev_hash,
+        login=entry.login, chain=int(entry.chain),
+    )  # fmt: skip
 
 
 @dataclass(frozen=True)
@@ -90,26 +119,45 @@ def detail_text(detail: Mapping[str, Any] | None) -> str:
     return json.dumps(dict(detail or {}), sort_keys=True, ensure_ascii=False, default=str)
 
 
-_HEAD = cast(Table, LogHead.__table__)
+#: acts logged on the register's chain although they name a series (the series' own
+#: chain starts after it exists); the PostgreSQL append function decides the same way
+REGISTER_ACTS = frozenset({"series.add"})
+
+
+def chain_of(action: str, series_id: int | None) -> int:
+    """The chain an entry is appended to: its series' chain, else the register's (0)."""
+    return 0 if series_id is None or action in REGISTER_ACTS else series_id
+
+
+_CHAIN = cast(Table, LogChain.__table__)
 _ENTRY = cast(Table, LogEntry.__table__)
-_ENTRY_COLUMNS = ("id", "at", "actor", "action", "series_id", "code", "batch_id", "detail", "prev_hash", "hash")
+_ENTRY_COLUMNS = (
+    "id", "at", "actor", "action", "series_id", "code", "batch_id", "detail", "prev_hash", "hash", "chain",
+)  # fmt: skip
 # built and compiled once: appending runs on every act, so it stays lean
-_LOCK_HEAD = Prepared(select(_HEAD.c.last_id, _HEAD.c.last_hash).where(_HEAD.c.id == 1).with_for_update())
+_LOCK_CHAIN = Prepared(
+    select(_CHAIN.c.last_id, _CHAIN.c.last_hash).where(_CHAIN.c.chain == bindparam("chain")).with_for_update()
+)
+_NEW_CHAIN = Prepared(insert(_CHAIN).values(chain=bindparam("chain"), last_id=0, last_hash=GENESIS))
+_LAST_ID = Prepared(select(func.coalesce(func.max(_ENTRY.c.id), 0)))
 _INSERT_ENTRY = Prepared(insert(_ENTRY).values({name: bindparam(name) for name in _ENTRY_COLUMNS}))
-_MOVE_HEAD = Prepared(
-    update(_HEAD)
-    .where(_HEAD.c.id == 1)
+_MOVE_CHAIN = Prepared(
+    update(_CHAIN)
+    .where(_CHAIN.c.chain == bindparam("at_chain"))
     .values(last_id=bindparam("new_id"), last_hash=bindparam("new_hash"))
 )
 
 
 def chain_rows(
-    entries: Iterable[NewEntry], *, actor: str, at: datetime, last_id: int, last_hash: str
+    entries: Iterable[NewEntry], *, actor: str, at: datetime, last_id: int, heads: dict[int, str]
 ) -> list[dict[str, Any]]:
-    """The log rows for ``entries``, chained after the entry ``last_id``/``last_hash``."""
+    """The log rows for ``entries``, numbered after ``last_id``, each chained after its
+    chain's newest hash in ``heads`` (which moves along)."""
     rows: list[dict[str, Any]] = []
     for entry in entries:
         last_id += 1
+        chain = chain_of(entry.action, entry.series_id)
+        previous = heads[chain]
         detail = detail_text(entry.detail)
         digest = entry_hash(
             entry_id=last_id,
@@ -120,7 +168,8 @@ def chain_rows(
             code=entry.code,
             batch_id=entry.batch_id,
             detail=detail,
-            prev_hash=last_hash,
+            prev_hash=previous,
+            chain=chain,
         )
         rows.append(
             {
@@ -132,32 +181,36 @@ def chain_rows(
                 "code": entry.code,
                 "batch_id": entry.batch_id,
                 "detail": detail,
-                "prev_hash": last_hash,
+                "prev_hash": previous,
                 "hash": digest,
+                "chain": chain,
             }
         )
-        last_hash = digest
+        heads[chain] = digest
     return rows
 
 
-#: PostgreSQL: the one append path (SECURITY DEFINER, migration log_rights): it locks the head,
-#: computes the hashes and records the login itself
+#: PostgreSQL: the one append path (SECURITY DEFINER, migrations log_rights and log_chains):
+#: it locks the entries' chains, computes the hashes and records the login itself
 _APPEND_FUNCTION = text("SELECT issuer_log_append(:at, :actor, :entries)")
 
 
 def append_entries(
     session: Session, entries: Iterable[NewEntry], *, actor: str, at: datetime
 ) -> int:
-    """Append entries to the chain inside the caller's transaction; returns how many.
+    """Append entries to their chains inside the caller's transaction; returns how many.
 
     The one place where the log grows: every act appends through here. On PostgreSQL the
-    database's own SECURITY DEFINER function appends (it locks the head, computes the hashes
-    and records the login), so no role needs the right to write the log's tables. Otherwise
-    the head row is locked first, so concurrent writers append one after another; then the entries go
-    in (one statement) and the head moves (one more). Writes go straight to the
-    session's connection (flush ORM objects they refer to first): an ORM object that
-    the caller loaded from these tables would not see them.
+    database's own SECURITY DEFINER function appends (it locks each chain's head, computes
+    the hashes and records the login), so no role needs the right to write the log's
+    tables. Otherwise (SQLite: one writer at a time) each chain's head row is read, the
+    entries go in (one statement) and each chain's head moves. Writes go straight to the
+    session's connection (flush ORM objects they refer to first): an ORM object that the
+    caller loaded from these tables would not see them.
     """
+    entries = list(entries)
+    if not entries:
+        return 0
     connection = session.connection()
     if connection.dialect.name == "postgresql":
         payload = [
@@ -165,21 +218,26 @@ def append_entries(
              "detail": detail_text(e.detail)}
             for e in entries
         ]  # fmt: skip
-        if not payload:
-            return 0
         added = connection.execute(
             _APPEND_FUNCTION, {"at": at, "actor": actor, "entries": json.dumps(payload)}
         ).scalar_one()
         return int(added)
-    found = _LOCK_HEAD.one(connection)
-    assert found is not None, "the register has no log head (not created by its migrations?)"
-    rows = chain_rows(entries, actor=actor, at=at, last_id=int(found[0]), last_hash=str(found[1]))
+    heads: dict[int, str] = {}
+    for chain in sorted({chain_of(e.action, e.series_id) for e in entries}):  # one order: no deadlock
+        found = _LOCK_CHAIN.one(connection, {"chain": chain})
+        if found is None:
+            _NEW_CHAIN.rows(connection, {"chain": chain})
+            found = (0, GENESIS)
+        heads[chain] = str(found[1])
+    last = _LAST_ID.one(connection)
+    rows = chain_rows(entries, actor=actor, at=at, last_id=int(last[0]) if last else 0, heads=heads)
     if len(rows) == 1:
         _INSERT_ENTRY.rows(connection, rows[0])
-    elif rows:
+    else:
         _INSERT_ENTRY.many(connection, rows)
-    if rows:
-        _MOVE_HEAD.rows(connection, {"new_id": rows[-1]["id"], "new_hash": rows[-1]["hash"]})
+    newest = {row["chain"]: row for row in rows}
+    for chain, row in newest.items():
+        _MOVE_CHAIN.rows(connection, {"at_chain": chain, "new_id": row["id"], "new_hash": row["hash"]})
     return len(rows)
 
 
@@ -188,9 +246,55 @@ def append_entry(session: Session, entry: NewEntry, *, actor: str, at: datetime)
 
 
 def head(session: Session) -> tuple[int, str]:
-    """The newest entry's id and hash: the anchor to write down elsewhere."""
-    row = session.execute(select(LogHead.last_id, LogHead.last_hash).where(LogHead.id == 1)).one()
-    return int(row[0]), str(row[1])
+    """The newest entry's id and hash (whatever its chain)."""
+    row = session.execute(select(LogEntry.id, LogEntry.hash).order_by(LogEntry.id.desc()).limit(1)).first()
+    return (0, GENESIS) if row is None else (int(row[0]), str(row[1]))
+
+
+# --- sealing: leaf positions for the Merkle tree ------------------------------------
+
+#: SQLite's copy of what PostgreSQL's ``issuer_log_seal`` runs (migration log_chains): the
+#: committed entries not yet sealed, per chain after its newest sealed one, numbered on
+_SEAL_SQLITE = text(
+    "INSERT INTO log_leaf (position, entry_id, chain) "
+    "SELECT :size + row_number() OVER (ORDER BY e.id) - 1, e.id, e.chain "
+    "FROM log_chain c JOIN log_entry e ON e.chain = c.chain "
+    "AND e.id > coalesce((SELECT max(l.entry_id) FROM log_leaf l WHERE l.chain = c.chain), 0)"
+)
+
+
+def seal(session: Session) -> int:
+    """Give every committed, unsealed entry its leaf position; returns the tree's size.
+
+    Takes the one lock only sealing takes (the ``log_tree`` row), never a chain's: desks
+    keep appending meanwhile, and what they commit later is sealed next time.
+    """
+    connection = session.connection()
+    if connection.dialect.name == "postgresql":
+        return int(connection.execute(text("SELECT issuer_log_seal()")).scalar_one())
+    size = int(connection.execute(text("SELECT size FROM log_tree WHERE id = 1")).scalar_one())
+    added = connection.execute(_SEAL_SQLITE, {"size": size}).rowcount
+    if added:
+        connection.execute(text("UPDATE log_tree SET size = :s WHERE id = 1"), {"s": size + added})
+    return size + added
+
+
+def leaf_hashes(session: Session, size: int | None = None) -> list[bytes]:
+    """The Merkle leaf hashes in position order (the first ``size`` of them)."""
+    from issuer.proofs.merkle import leaf_hash
+
+    statement = (
+        select(LogEntry.hash)
+        .join(LogLeaf, LogLeaf.entry_id == LogEntry.id)
+        .order_by(LogLeaf.position)
+    )
+    if size is not None:
+        statement = statement.where(LogLeaf.position < size)
+    return [leaf_hash(bytes.fromhex(h)) for h in session.scalars(statement)]
+
+
+def tree_size(session: Session) -> int:
+    return int(session.scalar(select(LogTree.size).where(LogTree.id == 1)) or 0)
 
 
 @dataclass(frozen=True)
@@ -202,9 +306,14 @@ class ChainProblem:
 @dataclass(frozen=True)
 class ChainReport:
     entries: int
+    #: the newest entry (any chain)
     head_id: int
     head_hash: str
     problem: ChainProblem | None
+    chains: int = 1
+    #: the sealed Merkle tree: leaves and root (hex)
+    tree_size: int = 0
+    tree_root: str = ""
 
     @property
     def intact(self) -> bool:
@@ -220,46 +329,100 @@ def _stream(session: Session) -> Generator[LogEntry, None, None]:
         result.close()  # PostgreSQL streams through a server-side cursor: close it early
 
 
+def _chain_name(chain: int) -> str:
+    return "the register's chain" if chain == 0 else f"the chain of series #{chain}"
+
+
 def verify_chain(session: Session) -> ChainReport:
-    """Recompute the chain from the start; report the first entry that does not fit."""
-    expected_id, previous = 0, GENESIS
+    """Recompute every chain from its start and the sealed tree; report the first thing
+    that does not fit."""
+    from issuer.proofs.merkle import Frontier, leaf_hash
+
+    tails: dict[int, tuple[int, str]] = {}  # chain -> (newest id, its hash) seen so far
+    hashes: dict[str, int] = {}
+    members: dict[int, list[int]] = {}  # chain -> its entries' ids, in order
     count = 0
     problem: ChainProblem | None = None
+    newest = (0, GENESIS)
     entries = _stream(session)
     for entry in entries:
         count += 1
-        expected_id += 1
-        if entry.id != expected_id:
-            problem = ChainProblem(expected_id, f"entry {expected_id} is missing (next found: {entry.id})")
-            break
+        chain = int(entry.chain)
+        last_id, previous = tails.get(chain, (0, GENESIS))
         if entry.prev_hash != previous:
-            problem = ChainProblem(entry.id, "does not link to the entry before it (inserted or reordered)")
+            if entry.prev_hash != GENESIS and entry.prev_hash not in hashes:
+                what = (f"links to an entry no longer in the log: an entry of {_chain_name(chain)} "
+                        f"after #{last_id} is missing (deleted)") if last_id else (
+                        f"links to an entry no longer in the log: the start of {_chain_name(chain)} is missing")
+            else:
+                what = f"does not link to the entry before it in {_chain_name(chain)} (inserted or reordered)"
+            problem = ChainProblem(entry.id, what)
             break
-        recomputed = entry_hash(
-            entry_id=entry.id,
-            at=entry.at,
-            actor=entry.actor,
-            action=entry.action,
-            series_id=entry.series_id,
-            code=entry.code,
-            batch_id=entry.batch_id,
-            detail=entry.detail,
-            prev_hash=entry.prev_hash,
-            login=entry.login,
-        )
+        recomputed = hashlib.sha256(row_text(entry).encode("utf-8")).hexdigest()
         if recomputed != entry.hash:
             problem = ChainProblem(entry.id, "its content no longer matches its hash (altered)")
             break
-        previous = entry.hash
+        tails[chain] = (entry.id, entry.hash)
+        hashes[entry.hash] = entry.id
+        members.setdefault(chain, []).append(entry.id)
+        newest = (entry.id, entry.hash)
     entries.close()
-    head_id, head_hash = head(session)
-    if problem is None and expected_id > head_id:
-        problem = ChainProblem(
-            head_id + 1, f"lies beyond the chain's head (#{head_id}): added behind the tool's back"
-        )
-    elif problem is None and expected_id < head_id:
-        missing = f"{expected_id + 1}" if expected_id + 1 == head_id else f"{expected_id + 1}-{head_id}"
-        problem = ChainProblem(expected_id + 1, f"entries {missing} are missing (removed at the end)")
-    elif problem is None and head_hash != previous:
-        problem = ChainProblem(head_id, "the chain's head does not match its last entry")
-    return ChainReport(entries=count, head_id=head_id, head_hash=head_hash, problem=problem)
+    heads = {int(c): (int(i), str(h)) for c, i, h in session.execute(
+        select(LogChain.chain, LogChain.last_id, LogChain.last_hash).order_by(LogChain.chain))}  # fmt: skip
+    if problem is None:
+        problem = _heads_problem(tails, heads)
+    size = tree_size(session)
+    frontier = Frontier()
+    if problem is None:
+        problem = _tree_problem(session, size, hashes, members, frontier, leaf_hash)
+    return ChainReport(
+        entries=count, head_id=newest[0], head_hash=newest[1], problem=problem, chains=len(heads),
+        tree_size=size, tree_root=frontier.root().hex(),
+    )
+
+
+def _heads_problem(tails: dict[int, tuple[int, str]], heads: dict[int, tuple[int, str]]) -> ChainProblem | None:
+    for chain in sorted(set(tails) | set(heads)):
+        seen_id, seen_hash = tails.get(chain, (0, GENESIS))
+        if chain not in heads:
+            return ChainProblem(seen_id, f"{_chain_name(chain)} has no head row (removed behind the tool's back)")
+        head_id, head_hash = heads[chain]
+        if seen_id > head_id:
+            return ChainProblem(
+                seen_id, f"lies beyond the chain's head (#{head_id}, {_chain_name(chain)}): added behind the tool's back"
+            )
+        if seen_id < head_id:
+            return ChainProblem(head_id, f"entry {head_id} is missing (removed at the end of {_chain_name(chain)})")
+        if head_hash != seen_hash:
+            return ChainProblem(head_id, f"the head of {_chain_name(chain)} does not match its last entry")
+    return None
+
+
+def _tree_problem(
+    session: Session, size: int, hashes: dict[str, int], members: dict[int, list[int]], frontier: Any, leaf_hash: Any
+) -> ChainProblem | None:
+    """The sealed leaves: positions 0..size-1, each an entry of the log once, in its chain
+    in id order (what sealing gives); the frontier gets every leaf."""
+    ids = {entry_id: h for h, entry_id in hashes.items()}
+    sealed: dict[int, int] = {}  # chain -> how many of its entries are sealed
+    expected = 0
+    rows = session.execute(
+        select(LogLeaf.position, LogLeaf.entry_id, LogLeaf.chain, LogEntry.chain)
+        .outerjoin(LogEntry, LogEntry.id == LogLeaf.entry_id)
+        .order_by(LogLeaf.position)
+    )
+    for position, entry_id, leaf_chain, entry_chain in rows:
+        if position != expected:
+            return ChainProblem(int(entry_id), f"leaf {expected} of the sealed tree is missing (next found: {position})")
+        if entry_chain is None or int(entry_id) not in ids:
+            return ChainProblem(int(entry_id), f"leaf {position} names an entry no longer in the log")
+        chain, done = int(leaf_chain), sealed.get(int(leaf_chain), 0)
+        order = members.get(chain, [])
+        if chain != int(entry_chain) or done >= len(order) or order[done] != int(entry_id):
+            return ChainProblem(int(entry_id), f"leaf {position} is out of its chain's order (leaves moved)")
+        sealed[chain] = done + 1
+        frontier.append(leaf_hash(bytes.fromhex(ids[int(entry_id)])))
+        expected += 1
+    if expected != size:
+        return ChainProblem(0, f"the sealed tree holds {expected} leaves but its size says {size}")
+    return None

@@ -179,10 +179,16 @@ class IssuedCode(Base):
 
 class LogEntry(Base):
     """One logged act. Each entry's hash covers its content and the previous entry's
-    hash, so an entry altered, removed or inserted behind the tool's back shows."""
+    hash in its chain, so an entry altered, removed or inserted behind the tool's back shows.
+
+    ``chain`` is 0 for the register's own chain (entries of no series, series added,
+    and every entry written before the log was chained per series) and a series' id for
+    that series' chain; each chain is appended under its own lock (:class:`LogChain`)."""
 
     __tablename__ = "log_entry"
-    __table_args__ = (Index(None, "series_id", "id"), Index(None, "code"), Index(None, "batch_id"))
+    __table_args__ = (
+        Index(None, "series_id", "id"), Index(None, "code"), Index(None, "batch_id"), Index(None, "chain", "id"),
+    )
 
     id: Mapped[int] = mapped_column(Integer, primary_key=True)
     at: Mapped[datetime] = mapped_column(UTCDateTime())
@@ -197,16 +203,39 @@ class LogEntry(Base):
     hash: Mapped[str] = mapped_column(String(64), unique=True)
     #: the database login that appended it (PostgreSQL's session_user); None on SQLite
     login: Mapped[str | None] = mapped_column(String(120), default=None)
+    #: the chain it belongs to: 0 the register's, otherwise the series' id
+    chain: Mapped[int] = mapped_column(Integer, default=0, server_default="0")
 
 
-class LogHead(Base):
-    """A single row holding the chain's newest entry; writers lock it to append."""
+class LogChain(Base):
+    """One row per chain holding its newest entry; a writer locks its chain's row to append."""
 
-    __tablename__ = "log_head"
+    __tablename__ = "log_chain"
 
-    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    chain: Mapped[int] = mapped_column(Integer, primary_key=True, autoincrement=False)
     last_id: Mapped[int] = mapped_column(BigInteger, default=0)
     last_hash: Mapped[str] = mapped_column(String(64))
+
+
+class LogLeaf(Base):
+    """An entry's place among the leaves of the log's Merkle tree, given once when the
+    entry is sealed and never changed: leaves 0..n-1 are the tree of size n."""
+
+    __tablename__ = "log_leaf"
+    __table_args__ = (Index(None, "chain", "entry_id"),)
+
+    position: Mapped[int] = mapped_column(BigInteger, primary_key=True, autoincrement=False)
+    entry_id: Mapped[int] = mapped_column(ForeignKey("log_entry.id"), unique=True)
+    chain: Mapped[int] = mapped_column(Integer)
+
+
+class LogTree(Base):
+    """A single row: how many leaves are sealed; the sealing step locks it."""
+
+    __tablename__ = "log_tree"
+
+    id: Mapped[int] = mapped_column(Integer, primary_key=True)
+    size: Mapped[int] = mapped_column(BigInteger, default=0)
 
 
 #: stock count states

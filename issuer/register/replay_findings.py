@@ -91,9 +91,9 @@ def replay_problems(session: Session) -> tuple[list[str], list[str], int]:
     problems += _batch_problems(session, replay)
     problems += _series_problems(session, replay)
     problems += _text_problems(session)
-    heads = session.execute(text("SELECT count(*) FROM log_head")).scalar_one()
-    if heads != 1:
-        problems.append(f"log_head holds {heads} rows; the chain has one head")
+    trees = session.execute(text("SELECT count(*) FROM log_tree")).scalar_one()
+    if trees != 1:
+        problems.append(f"log_tree holds {trees} rows; the sealed tree has one")
     warnings = [f"{count} log entr{'y' if count == 1 else 'ies'} of act {act!r}: this issuer knows no "
                 "effect to replay for it" for act, count in sorted(replay.unknown.items())]  # fmt: skip
     return problems, warnings, len(replay.codes) + len(replay.batches)

@@ -17,7 +17,7 @@ Neither may read ``access_token`` (the service's tokens: salts and scrypt digest
 guesser could work on offline); only the register's owner, the account the service runs
 as, touches it.
 
-Neither may write ``log_entry`` or ``log_head`` directly: entries are appended only by
+Neither may write ``log_entry``, ``log_chain``, ``log_leaf`` or ``log_tree`` directly: entries are appended only by
 the SECURITY DEFINER function ``issuer_log_append``, which computes the chain and
 records the database login itself. The rules grants cannot express (a code inserted
 only as issued, every change logged by the same act, counters never backwards) are
@@ -50,6 +50,7 @@ GUARD_TRIGGER = "issuer_log_append_only"
 GUARD_TRUNCATE_TRIGGER = "issuer_log_no_truncate"
 #: the one way to append to the log (migration log_rights creates it)
 APPEND_FUNCTION = "issuer_log_append(timestamptz, text, text)"
+SEAL_FUNCTION = "issuer_log_seal()"
 
 _NAME = re.compile(r"^[a-z_][a-z0-9_]{0,62}$")
 
@@ -86,7 +87,9 @@ CLERK_POLICY: dict[str, TableGrants] = {
     ),
     # the log is written only through issuer_log_append (SECURITY DEFINER)
     "log_entry": TableGrants(),
-    "log_head": TableGrants(),
+    "log_chain": TableGrants(),
+    "log_leaf": TableGrants(),
+    "log_tree": TableGrants(),
     "alembic_version": TableGrants(),
     "access_token": NO_ACCESS,
     **COUNT_GRANTS,
@@ -114,7 +117,9 @@ ADMIN_POLICY: dict[str, TableGrants] = {
         ),
     ),
     "log_entry": TableGrants(),
-    "log_head": TableGrants(),
+    "log_chain": TableGrants(),
+    "log_leaf": TableGrants(),
+    "log_tree": TableGrants(),
     "alembic_version": TableGrants(),
     "access_token": NO_ACCESS,
     **COUNT_GRANTS,
@@ -239,9 +244,13 @@ def roles_statements(
         "-- the log is append-only for everyone, the table's owner included, and appended",
         "-- only through the function that computes the chain and records the login",
         f"REVOKE INSERT, UPDATE, DELETE, TRUNCATE ON {on_schema}.log_entry FROM PUBLIC, {roles};",
-        f"REVOKE INSERT, UPDATE, DELETE, TRUNCATE ON {on_schema}.log_head FROM PUBLIC, {roles};",
+        *(f"REVOKE INSERT, UPDATE, DELETE, TRUNCATE ON {on_schema}.{table} FROM PUBLIC, {roles};"
+          for table in ("log_chain", "log_leaf", "log_tree")),
         f"REVOKE ALL ON FUNCTION {on_schema}.{APPEND_FUNCTION} FROM PUBLIC;",
         f"GRANT EXECUTE ON FUNCTION {on_schema}.{APPEND_FUNCTION} TO {roles};",
+        "-- sealing (log anchor, log checkpoint, a receipt) gives leaf positions, nothing else",
+        f"REVOKE ALL ON FUNCTION {on_schema}.{SEAL_FUNCTION} FROM PUBLIC;",
+        f"GRANT EXECUTE ON FUNCTION {on_schema}.{SEAL_FUNCTION} TO {roles};",
         *guard_statements(schema),
         "-- what grants cannot say: values, and every change logged by the same act",
         *rights_statements(schema, clerk=clerk, admin=admin),

@@ -9,7 +9,7 @@ from typing import Any
 from sqlalchemy import create_engine, text
 from stdnum import luhn
 
-TABLES = ("series", "batch", "issued_code", "log_entry", "log_head")
+TABLES = ("series", "batch", "issued_code", "log_entry", "log_chain", "log_leaf", "log_tree")
 
 
 def tool(base: int) -> str:

@@ -66,7 +66,7 @@ def forge(url: str, entry_id: int, prev_hash: str, **content: Any) -> str:
 
     at = datetime(2026, 3, 1, 9, 30, tzinfo=UTC)
     fields = {"actor": "someone", "action": "void", "series_id": 1, "code": None,
-              "batch_id": None, "detail": "{}"} | content  # fmt: skip
+              "batch_id": None, "detail": "{}", "chain": 1} | content  # fmt: skip
     digest = entry_hash(entry_id=entry_id, at=at, prev_hash=prev_hash, **fields)
     engine = create_engine(database_url(url))
     with engine.begin() as connection:
@@ -75,8 +75,8 @@ def forge(url: str, entry_id: int, prev_hash: str, **content: Any) -> str:
         connection.execute(
             text(
                 "INSERT INTO log_entry (id, at, actor, action, series_id, code, batch_id, detail, "
-                "prev_hash, hash) VALUES (:id, :at, :actor, :action, :series_id, :code, :batch_id, "
-                ":detail, :prev, :hash)"
+                "prev_hash, hash, chain) VALUES (:id, :at, :actor, :action, :series_id, :code, :batch_id, "
+                ":detail, :prev, :hash, :chain)"
             ),
             {"id": entry_id, "at": stamp, "prev": prev_hash, "hash": digest, **fields},
         )
@@ -110,12 +110,14 @@ def test_an_altered_actor_or_code_is_named(logged: str) -> None:
 
 
 def test_a_deleted_entry_is_named(logged: str) -> None:
+    # ids interleave across chains, so a gap in ids proves nothing: the entry after the
+    # deleted one names it by the last good entry of its chain
     sql(logged, "DELETE FROM log_entry WHERE id = 4")
     report, _ = verify(logged)
-    assert report.problem is not None and report.problem.entry_id == 4
-    assert "missing" in report.problem.problem
+    assert report.problem is not None and report.problem.entry_id == 5
+    assert "missing" in report.problem.problem and "after #3" in report.problem.problem
     data = json.loads(cli("log", "verify", "--db", logged, "--json").stdout)
-    assert data["intact"] is False and data["problem"]["entry"] == 4
+    assert data["intact"] is False and data["problem"]["entry"] == 5
 
 
 def test_the_last_entry_deleted_is_named(logged: str) -> None:
@@ -138,7 +140,7 @@ def test_a_forged_entry_after_the_head_is_named(logged: str) -> None:
 
 def test_a_naive_forgery_in_place_is_named(logged: str) -> None:
     # a made-up hash at the next id, head moved along with it
-    sql(logged, "UPDATE log_head SET last_id = 11, last_hash = :h", h="f" * 64)
+    sql(logged, "UPDATE log_chain SET last_id = 11, last_hash = :h WHERE chain = 1", h="f" * 64)
     previous = entry(logged, 10)["hash"]
     forge(logged, 11, previous)
     sql(logged, "UPDATE log_entry SET hash = :h WHERE id = 11", h="f" * 64)
@@ -176,7 +178,7 @@ def rewrite_tail(url: str, from_id: int) -> None:
             digest = entry_hash(
                 entry_id=row.id, at=row.at, actor=row.actor, action=row.action,
                 series_id=row.series_id, code=row.code, batch_id=row.batch_id,
-                detail=detail, prev_hash=previous, login=row.login,
+                detail=detail, prev_hash=previous, login=row.login, chain=row.chain,
             )  # fmt: skip
             sidestep(
                 session.connection(),
@@ -184,7 +186,7 @@ def rewrite_tail(url: str, from_id: int) -> None:
                 {"d": detail, "p": previous, "h": digest, "i": row.id},
             )
             previous = digest
-        session.execute(text("UPDATE log_head SET last_hash = :h"), {"h": previous})
+        session.execute(text("UPDATE log_chain SET last_hash = :h WHERE chain = 1"), {"h": previous})
     engine.dispose()
 
 
@@ -192,13 +194,13 @@ def test_a_rewritten_tail_passes_verify_but_not_the_anchor(logged: str) -> None:
     register = open_existing(logged)
     anchor, _at = current_anchor(register)
     register.close()
-    assert anchor.entry_id == 10
+    assert anchor.tree and anchor.entry_id == 10  # all ten entries sealed
 
     rewrite_tail(logged, 8)  # entry 8 is the void; its reason is rewritten
     report, checks = verify(logged, [anchor])
     assert report.intact  # the chain alone cannot show a consistent rewrite ...
     assert not checks[0].holds  # ... the anchor written down elsewhere does
-    assert "different hash" in (checks[0].problem or "")
+    assert "no longer give the anchor's root" in (checks[0].problem or "")
     result = cli("log", "verify", "--db", logged, "--anchor", str(anchor))
     assert result.exit_code == 1
     assert "Anchor fails" in result.stdout
@@ -216,13 +218,17 @@ def test_an_anchor_before_the_rewrite_still_holds(logged: str) -> None:
     assert json.loads(result.stdout)["anchors"][0]["holds"] is True
 
 
-def test_log_anchor_prints_the_head(logged: str) -> None:
+def test_log_anchor_prints_the_sealed_tree(logged: str) -> None:
+    from issuer.proofs import merkle
+
     result = cli("log", "anchor", "--db", logged)
     assert result.exit_code == 0
-    entry_id, _, digest = result.stdout.strip().partition(":")
-    assert int(entry_id) == 10 and digest == entry(logged, 10)["hash"]
+    kind, size, digest = result.stdout.strip().split(":")
+    # one writer: the ten entries were sealed in id order; the root is RFC 6962's over their hashes
+    leaves = [merkle.leaf_hash(bytes.fromhex(entry(logged, i)["hash"])) for i in range(1, 11)]
+    assert kind == "tree" and int(size) == 10 and digest == merkle.root(leaves).hex()
     data = json.loads(cli("log", "anchor", "--db", logged, "--json").stdout)
-    assert data["anchor"] == result.stdout.strip() and data["id"] == 10
+    assert data["anchor"] == result.stdout.strip() and data["size"] == 10
 
 
 def test_an_anchor_past_the_end_or_malformed(logged: str) -> None:
@@ -232,3 +238,51 @@ def test_an_anchor_past_the_end_or_malformed(logged: str) -> None:
     bad = cli("log", "verify", "--db", logged, "--anchor", "ten:abc")
     assert bad.exit_code == 2
     assert bad.stderr.strip().count("\n") == 0 and "an anchor looks like" in bad.stderr
+
+
+def test_acts_on_two_series_chain_apart_and_the_register_chain_holds_the_rest(register_url: str) -> None:  # noqa: F811
+    register = open_register(register_url, actor="quartermaster")
+    add_series(register, SeriesSpec(key="tools", scheme="luhn", length=6, prefix="T"))
+    add_series(register, SeriesSpec(key="members", scheme="luhn", length=6, prefix="M"))
+    for _ in range(3):
+        issue_codes(register, "tools", 1)
+        issue_codes(register, "members", 1)
+    register.close()
+    engine = create_engine(database_url(register_url))
+    with engine.connect() as connection:
+        rows = connection.execute(text("SELECT id, action, series_id, chain, prev_hash FROM log_entry ORDER BY id")).all()
+        heads = dict(connection.execute(text("SELECT chain, last_id FROM log_chain")).all())
+    engine.dispose()
+    assert [r.chain for r in rows if r.action == "series.add"] == [0, 0]
+    assert {r.chain for r in rows if r.action != "series.add"} == {r.series_id for r in rows if r.action != "series.add"}
+    by_id = {r.id: r for r in rows}
+    assert set(heads) == {0, *(r.series_id for r in rows)}
+    for chain in heads:  # each chain's first entry starts from the genesis hash
+        first = min(r.id for r in rows if r.chain == chain)
+        assert by_id[first].prev_hash == "0" * 64
+    report, _ = verify(register_url)
+    assert report.intact and report.chains == 3 and report.entries == 8
+
+
+def test_a_whole_chain_removed_is_caught_by_a_tree_anchor(logged: str) -> None:
+    register = open_existing(logged)
+    anchor, _at = current_anchor(register)
+    register.close()
+    # every entry of series #1's chain, its leaves and its head row gone, the tree's size moved:
+    # what is left (the register's chain, one sealed leaf) is consistent in itself
+    sql(logged, "DELETE FROM log_leaf WHERE chain = 1")
+    sql(logged, "UPDATE log_tree SET size = 1")
+    sql(logged, "DELETE FROM log_entry WHERE chain = 1")
+    sql(logged, "DELETE FROM log_chain WHERE chain = 1")
+    report, checks = verify(logged, [anchor])
+    assert report.intact and report.entries == 1
+    assert not checks[0].holds and "fewer than the anchor's 10" in (checks[0].problem or "")
+
+
+def test_a_sealed_leaf_removed_or_moved_is_named(logged: str) -> None:
+    register = open_existing(logged)
+    current_anchor(register)
+    register.close()
+    sql(logged, "DELETE FROM log_leaf WHERE position = 4")
+    report, _ = verify(logged)
+    assert report.problem is not None and "leaf 4 of the sealed tree is missing" in report.problem.problem

@@ -46,7 +46,7 @@ def test_an_older_database_is_upgraded_when_opened(tmp_path: Path) -> None:
     register.close()
     reopened = open_register(str(path), actor="test")
     assert reopened.schema_revision() == SCHEMA_HEAD
-    assert {"series", "issued_code", "log_entry", "batch", "log_head"} <= set(
+    assert {"series", "issued_code", "log_entry", "batch", "log_chain", "log_leaf", "log_tree"} <= set(
         inspect(reopened.engine).get_table_names()
     )
     reopened.close()

@@ -119,7 +119,9 @@ def test_no_direct_log_entry(person: Any) -> None:
 
 
 def test_no_log_head_move(person: Any) -> None:
-    refused(lambda: raw(person, "UPDATE log_head SET last_id = 1, last_hash = :h", h="0" * 64))
+    refused(lambda: raw(person, "UPDATE log_chain SET last_id = 1, last_hash = :h", h="0" * 64))
+    refused(lambda: raw(person, "UPDATE log_tree SET size = 0"))
+    refused(lambda: raw(person, "DELETE FROM log_leaf"))
 
 
 def test_no_un_void_without_a_logged_restore(person: Any, guarded: Guarded) -> None:  # noqa: F811

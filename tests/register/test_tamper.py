@@ -24,6 +24,7 @@ from sqlalchemy import Connection, create_engine, text
 from sqlalchemy.exc import DBAPIError
 
 from issuer.readers.scanfile import read_table
+from issuer.register.admin import current_anchor
 from issuer.register.desk import check_codes
 from issuer.register.doctor import run_doctor
 from issuer.register.importing import IMPORT_ROLES, import_codes
@@ -78,6 +79,7 @@ def build(url: str, folder: Path) -> Scene:
     tools = [i.code for i in issue_codes(register, "tools", 6, holder="workshop shelf B").codes]
     members = [i.code for i in issue_codes(register, "members", 3, holder="Ada Quill").codes]
     void_code(register, tools[0], reason="lost in the car park")
+    current_anchor(register)  # the entries so far sealed into the tree; the rest stay unsealed
     new = replace_code(register, tools[1], reason="label peeled off").code
     void_code(register, tools[2], reason="mistake")
     restore_code(register, tools[2], reason="found again")
@@ -160,13 +162,17 @@ def _rows(connection: Connection, scene: Scene) -> dict[str, list[tuple[str, dic
     batches = [int(b) for (b,) in connection.execute(text("SELECT id FROM batch ORDER BY id"))]
     entries = [int(e) for (e,) in connection.execute(text("SELECT id FROM log_entry ORDER BY id"))]
     chosen_entries = entries if LONG else [entries[len(entries) // 2]]
+    leaves = [int(p) for (p,) in connection.execute(text("SELECT position FROM log_leaf ORDER BY position"))]
     return {
         "series": [(key, {"id": sid}) for key, sid in connection.execute(text("SELECT key, id FROM series"))
                    if LONG or key == "members"],
         "batch": [(f"batch {b}", {"id": b}) for b in (batches if LONG else [batches[0]])],
         "issued_code": [(label, {"id": i}) for label, i in ids.items()],
         "log_entry": [(f"entry {e}", {"id": e}) for e in chosen_entries],
-        "log_head": [("head", {"id": 1})],
+        "log_chain": [(f"chain {c}", {"chain": c}) for (c,) in connection.execute(text("SELECT chain FROM log_chain"))
+                      if LONG or c != 0],
+        "log_leaf": [(f"leaf {p}", {"position": p}) for p in leaves if LONG or p in (leaves[len(leaves) // 2], leaves[-1])],
+        "log_tree": [("tree", {"id": 1})],
         "alembic_version": [("version", {"version_num": connection.execute(
             text("SELECT version_num FROM alembic_version")).scalar_one()})],
     }
