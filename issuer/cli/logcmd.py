@@ -184,10 +184,12 @@ def log_verify(
         Path | None,
         typer.Option(
             "--public-key",
-            help="The public key that signed --checkpoint (default: the configured signing key's).",
+            help="The public key that signed --checkpoint (default: the public half of --key or of "
+            "the configured signing key).",
             dir_okay=False,
         ),
     ] = None,
+    key: KeyOption = None,
     anchor: Annotated[
         list[str] | None,
         typer.Option(
@@ -208,7 +210,7 @@ def log_verify(
     from issuer.register.admin import parse_anchor, verify_log
 
     anchors = [parse_anchor(value) for value in anchor or []]
-    signed, public = _checkpoint_and_key(checkpoint, public_key)
+    signed, public = _checkpoint_and_key(checkpoint, public_key, key)
     register = open_existing_from_options(db)
     if as_json:
         report, checks = verify_log(register, anchors)
@@ -261,7 +263,7 @@ def log_verify(
         raise typer.Exit(1)
 
 
-def _checkpoint_and_key(path: Any, public_key: Any) -> tuple[Any, bytes | None]:
+def _checkpoint_and_key(path: Any, public_key: Any, key: Any) -> tuple[Any, bytes | None]:
     """The parsed checkpoint and the public key to check it with (read before the register opens)."""
     if path is None:
         return None, None
@@ -270,7 +272,7 @@ def _checkpoint_and_key(path: Any, public_key: Any) -> tuple[Any, bytes | None]:
     signed = parse_checkpoint(read_statement(path, "checkpoint"), str(path))
     if public_key is not None:
         return signed, read_key_file(public_key, "public key")
-    return signed, public_key_pem(read_key_file(signing_key_path(None), "signing key"))
+    return signed, public_key_pem(read_key_file(signing_key_path(key), "signing key"))
 
 
 def _extends(register: Any, signed: Any, public: Any) -> dict[str, Any]:
