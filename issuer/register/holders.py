@@ -18,7 +18,7 @@ from sqlalchemy import Integer, Table, bindparam, or_, select
 from sqlalchemy.orm import Session
 
 from issuer.errors import Conflict, InvalidFormat
-from issuer.register.lifecycle import find_code, require_reason
+from issuer.register.lifecycle import find_code, require_reason, shown_code
 from issuer.register.log import NewEntry, append_entries, append_entry
 from issuer.register.models import VOIDED, IssuedCode, Series, StockCount
 from issuer.register.series import code_format, get_series
@@ -82,7 +82,7 @@ def _write_holder(register: Register, text: str, holder: str | None, note: Any, 
     def work(session: Session) -> HolderChange:
         row = find_code(session, text, lock=True)
         if row.status == VOIDED:
-            raise Conflict(f"{row.code} is voided: its holder can no longer change (erase it if it must go)")
+            raise Conflict(f"{shown_code(session, row)} is voided: its holder can no longer change (erase it if it must go)")
         # the log says what changed, never to what: the texts stay out of the chain
         detail: dict[str, Any] = {"holder": "set" if holder is not None else "cleared"}
         if holder is not None and row.holder is not None:
@@ -260,7 +260,7 @@ def erase_holder(register: Register, text: str, *, reason: str) -> Erasure:
         if any(t in why.casefold() for t in texts):
             raise InvalidFormat("the reason repeats the text being erased: say why without it")
         if not texts:
-            raise Conflict(f"{row.code} holds no holder or note to erase")
+            raise Conflict(f"{shown_code(session, row)} holds no holder or note to erase")
         at = register.clock()
         _erase_rows(session, rows, at)
         append_entries(

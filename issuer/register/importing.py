@@ -280,7 +280,10 @@ def apply_import(
         held = series_codes(session, series)
         clash = next((row for row in plan.rows if row.code in held), None)
         if clash is not None:
-            raise Conflict(f"line {clash.line}: {clash.code} entered the register meanwhile; nothing imported")
+            raise Conflict(
+                f"line {clash.line}: {code_format(series).display(clash.code)} entered the register meanwhile; "
+                "nothing imported"
+            )
         now = register.clock()
         batch = Batch(series_id=series.id, kind="import", count=len(plan.rows), created_at=now, actor=register.actor)
         session.add(batch)

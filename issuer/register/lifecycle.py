@@ -146,10 +146,13 @@ def code_record(session: Session, row: IssuedCode, now: datetime | None = None) 
     )
 
 
-def _display(session: Session, row: IssuedCode) -> str:
-    """A stored code in the form people read."""
+def shown_code(session: Session, row: IssuedCode) -> str:
+    """A stored code in the form people read (every message names a code this way)."""
     series = session.get(Series, row.series_id)
     return code_format(series).display(row.code) if series is not None else row.code
+
+
+_display = shown_code
 
 
 def _void(session: Session, register: Register, row: IssuedCode, reason: str, at: datetime) -> None:

@@ -22,7 +22,7 @@ from sqlalchemy import select, update
 from sqlalchemy.orm import Session
 
 from issuer.errors import Conflict, InvalidFormat, NotFound
-from issuer.register.lifecycle import find_code, require_reason
+from issuer.register.lifecycle import find_code, require_reason, shown_code
 from issuer.register.log import NewEntry, append_entries
 from issuer.register.models import SCATTERED, SUSPENDED, VOIDED, Batch, IssuedCode, Series
 from issuer.register.series import code_format, get_series
@@ -134,7 +134,7 @@ def _by_codes(session: Session, texts: Sequence[str]) -> tuple[list[PrintRow], s
         code = find_code(session, text)
         if code.code in seen:
             raise InvalidFormat(
-                f"{text.strip()!r} names {code.code} a second time (as {seen[code.code]!r}); "
+                f"{text.strip()!r} names {shown_code(session, code)} a second time (as {seen[code.code]!r}); "
                 "name each code once"
             )
         seen[code.code] = text.strip()

@@ -7,7 +7,7 @@ from __future__ import annotations
 from sqlalchemy.orm import Session
 
 from issuer.errors import Conflict
-from issuer.register.lifecycle import CodeRecord, code_record, find_code, require_reason
+from issuer.register.lifecycle import CodeRecord, code_record, find_code, require_reason, shown_code
 from issuer.register.log import NewEntry, append_entry, timestamp_text
 from issuer.register.models import ISSUED, SUSPENDED, VOIDED
 from issuer.register.standing import clean_text
@@ -22,9 +22,9 @@ def suspend_code(register: Register, text: str, *, reason: str) -> CodeRecord:
     def work(session: Session) -> CodeRecord:
         row = find_code(session, text, lock=True)
         if row.status == VOIDED:
-            raise Conflict(f"{row.code} is voided; a voided code stays voided")
+            raise Conflict(f"{shown_code(session, row)} is voided; a voided code stays voided")
         if row.status == SUSPENDED:
-            raise Conflict(f"{row.code} is suspended already ({row.suspend_reason})")
+            raise Conflict(f"{shown_code(session, row)} is suspended already ({row.suspend_reason})")
         at = register.clock()
         row.status, row.suspended_at, row.suspended_by, row.suspend_reason = SUSPENDED, at, register.actor, why
         append_entry(session, NewEntry("suspend", row.series_id, row.code, None, {"reason": why}),
@@ -42,7 +42,7 @@ def reinstate_code(register: Register, text: str, *, reason: str | None = None) 
     def work(session: Session) -> CodeRecord:
         row = find_code(session, text, lock=True)
         if row.status != SUSPENDED:
-            raise Conflict(f"{row.code} is not suspended (it is {row.status})")
+            raise Conflict(f"{shown_code(session, row)} is not suspended (it is {row.status})")
         at = register.clock()
         detail = {"suspended_at": timestamp_text(row.suspended_at) if row.suspended_at else None,
                   "suspend_reason": row.suspend_reason}  # fmt: skip

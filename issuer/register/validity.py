@@ -13,7 +13,7 @@ from typing import Any
 from sqlalchemy.orm import Session
 
 from issuer.errors import Conflict, InvalidFormat
-from issuer.register.lifecycle import find_code
+from issuer.register.lifecycle import find_code, shown_code
 from issuer.register.log import NewEntry, append_entry, timestamp_text
 from issuer.register.models import VOIDED, Series
 from issuer.register.series import code_format
@@ -43,7 +43,7 @@ def renew_code(
     def work(session: Session) -> Renewal:
         row = find_code(session, text, lock=True)
         if row.status == VOIDED:
-            raise Conflict(f"{row.code} is voided: a voided code is not renewed")
+            raise Conflict(f"{shown_code(session, row)} is voided: a voided code is not renewed")
         now = register.clock()
         previous = row.valid_until
         if until is not None:

@@ -258,7 +258,7 @@ def test_a_code_issued_meanwhile_stops_the_import(register: Register, tmp_path: 
     from issuer.register.importing import apply_import
 
     before = state(register)
-    with pytest.raises(Conflict, match="line 1: QTL0000001.* entered the register meanwhile"):
+    with pytest.raises(Conflict, match="line 1: QTL-0000-001.* entered the register meanwhile"):
         apply_import(register, plan)
     assert state(register) == before
 
