@@ -43,15 +43,11 @@ class CounterDesk:
     def check(self, text: str) -> Answered:
         """The desk's answer, and for a code the register holds its full record (issued
         when and by whom, prints, last seen)."""
-        from issuer.register.desk import check_codes
-        from issuer.register.lifecycle import code_record, find_code
+        from issuer.register.desk import check_with_records
 
         def read() -> Answered:
             with self.register.reading() as session:
-                answer = check_codes(session, [text], self.register.clock())[0]
-                record = None
-                if answer.code is not None and answer.status not in ("not_issued", "bad_check", "malformed"):
-                    record = code_record(session, find_code(session, answer.code))
+                ((answer, record),) = check_with_records(session, [text], self.register.clock())
                 return Answered(answer, record)
 
         return self._again(read)

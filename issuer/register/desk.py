@@ -125,6 +125,34 @@ def check_codes(
     """Answer each input, in input order; with ``series``, read them as that series'
     codes only. A code past its validity at ``now`` (the register's clock, passed in)
     answers expired."""
+    return _check(session, inputs, now, series)[0]
+
+
+#: answers that name a code the register holds, whose record can be shown
+HELD = ("issued", "expired", "suspended", "voided")
+
+
+def check_with_records(
+    session: Session, inputs: Sequence[str], now: datetime | None = None, *, series: str | None = None
+) -> list[tuple[DeskAnswer, Any]]:
+    """As :func:`check_codes`, each answer paired with the full record
+    (:class:`issuer.register.lifecycle.CodeRecord`: issued when and by whom, prints, last
+    seen) of the code it names when the register holds it, else None. The record is
+    built from the rows the answer read: the input is read once, the code fetched once."""
+    from issuer.register.lifecycle import code_record
+
+    answers, stored = _check(session, inputs, now, series)
+    return [
+        (answer, code_record(session, stored[answer.code], now)
+         if answer.status in HELD and answer.code in stored else None)
+        for answer in answers
+    ]  # fmt: skip
+
+
+def _check(
+    session: Session, inputs: Sequence[str], now: datetime | None, series: str | None
+) -> tuple[list[DeskAnswer], dict[str, IssuedCode]]:
+    """The answers, and the stored rows they were read from (by canonical code)."""
     shapes = [(one, code_format(one)) for one in all_series(session) if series is None or one.key == series]
     per_input = [_readings(shapes, text) for text in inputs]
     stored = _stored(
@@ -147,7 +175,7 @@ def check_codes(
         answer = _answer(session, shapes, text, readings, problems, stored, replacements, now)
         answer.input = echo(text)  # what was typed, safe to show and to write as JSON
         answers.append(answer)
-    return answers
+    return answers, stored
 
 
 def _answer(
@@ -212,4 +240,4 @@ def _answer(
     return answer
 
 
-__all__ = ["STATUSES", "DeskAnswer", "Suggestion", "check_codes"]
+__all__ = ["HELD", "STATUSES", "DeskAnswer", "Suggestion", "check_codes", "check_with_records"]

@@ -116,6 +116,8 @@ def code_record(session: Session, row: IssuedCode, now: datetime | None = None) 
     def in_display(code: str | None) -> str | None:
         return shape.display(code) if code is not None else None
 
+    replaces, replaced_by = code_of(row.replaces_id), code_of(row.replaced_by_id)
+
     return CodeRecord(
         code=row.code,
         display=shape.display(row.code),
@@ -129,8 +131,8 @@ def code_record(session: Session, row: IssuedCode, now: datetime | None = None) 
         batch=row.batch_id,
         void_reason=row.void_reason,
         voided_at=row.voided_at,
-        replaces=code_of(row.replaces_id),
-        replaced_by=code_of(row.replaced_by_id),
+        replaces=replaces,
+        replaced_by=replaced_by,
         print_count=row.print_count,
         last_seen_at=row.last_seen_at,
         last_seen_where=row.last_seen_where,
@@ -141,8 +143,8 @@ def code_record(session: Session, row: IssuedCode, now: datetime | None = None) 
         erased_at=row.erased_at,
         standing=standing(row.status, row.valid_until, now),
         expected_where=row.expected_where,
-        replaces_display=in_display(code_of(row.replaces_id)),
-        replaced_by_display=in_display(code_of(row.replaced_by_id)),
+        replaces_display=in_display(replaces),
+        replaced_by_display=in_display(replaced_by),
     )
 
 

@@ -108,3 +108,23 @@ def test_an_empty_register_answers_malformed(register: Any) -> None:
     with register.reading() as session:
         (answer,) = check_codes(session, ["QTL-0000-0000"])
     assert answer.status == "malformed" and "no series" in (answer.reason or "")
+
+
+def test_answers_with_records_read_each_held_code_once(register: Any, tools: str) -> None:
+    """The counter's call: the same answers as check_codes, and for every code the
+    register holds its record (the replacement linked both ways), none for the rest."""
+    from issuer.register.desk import check_with_records
+    from issuer.register.lifecycle import code_history
+
+    replacement = replace_code(register, tools, reason="tag snapped").code
+    typed = [tools, replacement, _typos(tools)["adjacent"], "drill bit 3"]
+    with register.reading() as session:
+        plain = check_codes(session, typed)
+        paired = check_with_records(session, typed)
+        expected = code_history(session, tools)[0]
+    assert [answer.as_dict() for answer, _ in paired] == [answer.as_dict() for answer in plain]
+    assert [answer.status for answer, _ in paired] == ["voided", "issued", "bad_check", "malformed"]
+    old, new = paired[0][1], paired[1][1]
+    assert old == expected and old.replaced_by == replacement and old.void_reason == "tag snapped"
+    assert new.code == replacement and new.replaces == tools and new.replaces_display == old.display
+    assert paired[2][1] is None and paired[3][1] is None
