@@ -58,10 +58,10 @@ def _detail(answer: Any) -> str:
         parts.append(shown(answer.reason))
     if answer.status == "not_issued":
         parts.append(f"[bold]{NEVER_ISSUED}[/bold]")
-    for suggestion in answer.suggestions:
-        parts.append(f"did you mean [bold]{suggestion.display}[/bold]? ({suggestion.description})")
-    if getattr(answer, "advice", None):
+    if getattr(answer, "advice", None):  # first, as answer_text says it: read it again
         parts.append(f"[bold]{answer.advice}[/bold]")
+    for suggestion in answer.suggestions:
+        parts.append(f"did you mean [bold]{suggestion.display}[/bold]? ({shown(suggestion.description)})")
     return "\n".join(parts)
 
 
