@@ -159,12 +159,12 @@ def backup(
     The copy is checked, owner-only, and appears only when complete. For a PostgreSQL
     register this prints the pg_dump command to use instead.
     """
-    from issuer.register import admin
+    from issuer.register.backup import pg_dump_command, pg_restore_command, shell_line
 
     register = open_existing_from_options(db)
     if register.backend == "postgresql":
-        dump = admin.pg_dump_command(register, str(destination))
-        restore = admin.pg_restore_command(register, str(destination))
+        dump = pg_dump_command(register, str(destination))
+        restore = pg_restore_command(register, str(destination))
         has_password = register.engine.url.password is not None
         register.close()
         password_note = "The password is not printed: pg_dump and pg_restore read it from PGPASSWORD or ~/.pgpass."
@@ -174,9 +174,9 @@ def backup(
             return
         out = console()
         out.print("A PostgreSQL register is backed up with the server's own tool; run:")
-        typer.echo(admin.shell_line(dump))
+        typer.echo(shell_line(dump))
         out.print("and restore it with:", style="dim")
-        typer.echo(admin.shell_line(restore))
+        typer.echo(shell_line(restore))
         if has_password:
             out.print(password_note, style="dim")
         out.print("Keep the dump file private: it holds the register's personal data and keys.")
@@ -194,7 +194,8 @@ def backup(
 
 
 def _backup_with_progress(register: Any, destination: Path, force: bool) -> Any:
-    from issuer.register.admin import backup_sqlite, sqlite_path
+    from issuer.register.admin import sqlite_path
+    from issuer.register.backup import backup_sqlite
 
     path = sqlite_path(register)
     big = path is not None and path.stat().st_size > 64 * 1024 * 1024

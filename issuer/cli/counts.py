@@ -99,7 +99,8 @@ def add(
     as_json: JsonOption = False,
 ) -> None:
     """Add scan files to an open count. Each file goes in whole or not at all; the same file twice is refused."""
-    from issuer.register.counting import add_scan_file, count_info
+    from issuer.register.counting import count_info
+    from issuer.register.scanfiles import add_scan_file
     from issuer.stocktake.counts import read_scan_file
     from issuer.stocktake.zones import resolve_zone
 

@@ -207,7 +207,7 @@ def log_verify(
     anchor does not hold. Someone able to rewrite the whole chain and its head can hide
     an edit: check against an anchor written down elsewhere ('issuer log anchor').
     """
-    from issuer.register.admin import parse_anchor, verify_log
+    from issuer.register.anchors import parse_anchor, verify_log
 
     anchors = [parse_anchor(value) for value in anchor or []]
     signed, public = _checkpoint_and_key(checkpoint, public_key, key)
@@ -300,7 +300,7 @@ def log_anchor(db: DbOption = None, as_json: JsonOption = False) -> None:
     Later, 'issuer log verify --anchor tree:SIZE:ROOT' shows whether any entry sealed then
     changed or went missing, on any series' chain.
     """
-    from issuer.register.admin import current_anchor
+    from issuer.register.anchors import current_anchor
 
     register = open_existing_from_options(db)
     anchor, at = current_anchor(register)

@@ -77,8 +77,9 @@ def add(
     as_json: JsonOption = False,
 ) -> None:
     """Define a series. Its shape is frozen once it has issued a number."""
+    from issuer.register.defining import SeriesSpec, add_series
     from issuer.register.fill import parse_levels
-    from issuer.register.series import SeriesSpec, add_series, series_state
+    from issuer.register.series import series_state
     from issuer.register.standing import parse_period
 
     spec = SeriesSpec(
@@ -131,8 +132,9 @@ def change(
     as_json: JsonOption = False,
 ) -> None:
     """Change a series' title, or its shape while it has issued nothing (then it is frozen)."""
+    from issuer.register.defining import change_series
     from issuer.register.fill import parse_levels
-    from issuer.register.series import change_series, series_state
+    from issuer.register.series import series_state
     from issuer.register.standing import parse_period
 
     days = None if valid_for is None else 0 if valid_for.strip().lower() == "none" else parse_period(valid_for)

@@ -9,10 +9,11 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Any
 
+from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.desk import DeskAnswer, check_codes
 from issuer.register.issuing import issue_codes
 from issuer.register.lifecycle import replace_code, void_code
-from issuer.register.series import SeriesSpec, add_series, all_series, series_state
+from issuer.register.series import all_series, series_state
 from issuer.register.store import Register
 
 SERIES = (

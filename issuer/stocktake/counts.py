@@ -24,19 +24,21 @@ from issuer.readers.scanfile import Table
 from issuer.register.counting import (
     CountInfo,
     CountScope,
-    FileInfo,
-    ScanFile,
-    ScanRow,
-    add_scan_file,
     close_count,
-    count_files,
     count_info,
-    count_scans,
     get_count,
     list_counts,
     open_count,
 )
 from issuer.register.places import clean_place, move_places
+from issuer.register.scanfiles import (
+    FileInfo,
+    ScanFile,
+    ScanRow,
+    add_scan_file,
+    count_files,
+    count_scans,
+)
 from issuer.register.stocktake import write_sightings
 from issuer.register.store import Register
 from issuer.stocktake.reconcile import read_scans, reconcile, sightings

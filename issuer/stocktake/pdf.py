@@ -12,7 +12,8 @@ from collections.abc import Sequence
 from datetime import datetime
 from typing import IO, Any
 
-from issuer.register.counting import CountInfo, FileInfo
+from issuer.register.counting import CountInfo
+from issuer.register.scanfiles import FileInfo
 from issuer.stocktake.results import COUNT_KEYS, MEANINGS
 
 #: rows printed per list before "and N more"

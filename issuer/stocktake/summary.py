@@ -8,7 +8,8 @@ from collections.abc import Iterator, Sequence
 from typing import IO, Any
 
 from issuer.outputs import SafeCsvWriter
-from issuer.register.counting import CountInfo, FileInfo
+from issuer.register.counting import CountInfo
+from issuer.register.scanfiles import FileInfo
 
 #: the CSV's columns: ``code`` and ``likely_code`` canonical, ``display`` and
 #: ``likely_display`` as people read them; codes in ``detail`` in display form

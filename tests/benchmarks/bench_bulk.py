@@ -39,8 +39,8 @@ import time
 from collections.abc import Callable
 from pathlib import Path
 
+from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.issuing import issue_codes
-from issuer.register.series import SeriesSpec, add_series
 from issuer.register.store import open_register
 
 TOOLS = SeriesSpec(key="tools", scheme="luhn", length=9, prefix="QTL", group=(4, 4, 2))

@@ -100,8 +100,8 @@ def moments(argv: list[str]) -> dict[str, tuple[float, float]]:
 
 
 def startup(folder: Path) -> None:
+    from issuer.register.defining import SeriesSpec, add_series
     from issuer.register.issuing import issue_codes
-    from issuer.register.series import SeriesSpec, add_series
     from issuer.register.store import open_register
 
     path = folder / "small.sqlite"
@@ -147,9 +147,10 @@ def typo(code: str, rng: random.Random) -> str:
 
 def answers(folder: Path, count: int) -> None:
     from issuer.counter.desk import CounterDesk
+    from issuer.register.defining import SeriesSpec, add_series
     from issuer.register.issuing import issue_codes
     from issuer.register.lifecycle import void_code
-    from issuer.register.series import SeriesSpec, add_series, code_format, get_series
+    from issuer.register.series import code_format, get_series
     from issuer.register.store import open_register
 
     path = folder / "million.sqlite"

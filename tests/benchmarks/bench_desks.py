@@ -65,7 +65,7 @@ def raw_postgres(database: str, count: int) -> float:
 
 
 def desks_rate(url: str, desks: int, count: int, key: str) -> float:
-    from issuer.register.series import SeriesSpec, add_series
+    from issuer.register.defining import SeriesSpec, add_series
     from issuer.register.store import open_register
 
     register = open_register(url, actor="bench")

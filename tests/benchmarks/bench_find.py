@@ -18,9 +18,9 @@ from typing import Any
 
 from sqlalchemy import text
 
+from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.holders import find_holders
 from issuer.register.issuing import issue_codes
-from issuer.register.series import SeriesSpec, add_series
 from issuer.register.store import open_register
 
 ROUNDS = 5

@@ -20,9 +20,9 @@ from pathlib import Path
 
 from issuer.labels import get_layout, render_sheet
 from issuer.labels.printjob import LabelOptions, label_contents, print_selection
+from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.issuing import issue_codes
 from issuer.register.printing import record_prints, select_for_printing
-from issuer.register.series import SeriesSpec, add_series
 from issuer.register.store import open_register
 
 

@@ -26,8 +26,8 @@ import textwrap
 import time
 from pathlib import Path
 
+from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.issuing import issue_codes
-from issuer.register.series import SeriesSpec, add_series
 from issuer.register.store import open_register
 
 ROUNDS = 5

@@ -24,13 +24,14 @@ import tempfile
 import time
 from pathlib import Path
 
+from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.desk import check_codes
 from issuer.register.issuing import issue_codes
-from issuer.register.series import SeriesSpec, add_series, code_format, get_series
+from issuer.register.series import code_format, get_series
 from issuer.register.store import open_register
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[2]))
-from tests.checking.test_likely import slip  # noqa: E402 - the measured test's slips
+from tests.checking.test_likely import slip
 
 SIZE = 1_000_000
 PER_SERIES = {"tools": 600_000, "passes": 400_000}

@@ -14,16 +14,15 @@ from pathlib import Path
 from typing import Any
 
 import pytest
-from sqlalchemy import create_engine, text
 
+from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.issuing import issue_codes
 from issuer.register.lifecycle import replace_code, void_code
-from issuer.register.series import SeriesSpec, add_series
-from issuer.register.store import database_url, open_register
+from issuer.register.store import open_register
 from tests.register.consistency import assert_consistent
 from tests.register.desks import DeskRoom
-from tests.register.sidestep import sql_behind_the_back
 from tests.register.pg import pg_database, pg_url, register_url, temporary_database  # noqa: F401
+from tests.register.sidestep import sql_behind_the_back
 
 
 def fill(url: str) -> list[str]:
@@ -104,7 +103,8 @@ def test_backup_refuses_the_register_itself_and_makes_a_missing_folder_private(
 
 
 def test_backup_while_a_desk_keeps_issuing(db_path: Path, tmp_path: Path) -> None:
-    from issuer.register.admin import backup_sqlite, open_existing
+    from issuer.register.admin import open_existing
+    from issuer.register.backup import backup_sqlite
 
     fill(str(db_path))
     room = DeskRoom([{"mode": "issue", "db": str(db_path), "series": "tools", "count": 150, "seed": 1}])

@@ -12,9 +12,9 @@ import pytest
 from typer.testing import CliRunner
 
 from issuer.cli.app import app
+from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.issuing import issue_codes
 from issuer.register.lifecycle import void_code
-from issuer.register.series import SeriesSpec, add_series
 from issuer.register.store import Register
 
 TOOLS = SeriesSpec(key="tools", scheme="damm", length=7, prefix="QTL", group=(4, 4), title="Tool tags")

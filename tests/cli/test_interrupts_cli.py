@@ -17,9 +17,9 @@ from typing import Any
 import pytest
 from sqlalchemy import func, select
 
+from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.issuing import issue_codes
 from issuer.register.models import IssuedCode
-from issuer.register.series import SeriesSpec, add_series
 from issuer.register.store import Register
 
 TOOLS = SeriesSpec(key="tools", scheme="damm", length=7, prefix="QTL", title="Tool tags")

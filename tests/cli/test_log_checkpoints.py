@@ -18,10 +18,10 @@ from typer.testing import CliRunner
 from issuer.cli.app import app
 from issuer.proofs import merkle
 from issuer.proofs.statements import parse_checkpoint
+from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.issuing import issue_codes
 from issuer.register.log import entry_hash
 from issuer.register.models import LogEntry
-from issuer.register.series import SeriesSpec, add_series
 from issuer.register.store import database_url, open_register
 from tests.register.pg import pg_database, pg_url, register_url  # noqa: F401
 from tests.register.sidestep import sidestep

@@ -12,8 +12,8 @@ from typing import Any
 
 import pytest
 
+from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.issuing import issue_codes
-from issuer.register.series import SeriesSpec, add_series
 from issuer.register.store import Register
 
 TOOLS = SeriesSpec(key="tools", scheme="damm", length=7, prefix="QTL", group=(4, 4))
@@ -46,7 +46,7 @@ def state(db: Path) -> str:
         tables = [row[0] for row in connection.execute("SELECT name FROM sqlite_master WHERE type = 'table' ORDER BY name")]
         digest = hashlib.sha256()
         for table in tables:
-            for row in connection.execute(f"SELECT * FROM {table} ORDER BY 1"):  # noqa: S608 - our own table names
+            for row in connection.execute(f"SELECT * FROM {table} ORDER BY 1"):
                 digest.update(repr(row).encode("utf-8", "backslashreplace"))
         return digest.hexdigest()
     finally:

@@ -15,9 +15,9 @@ from typing import Any
 import pytest
 from stdnum import luhn
 
+from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.issuing import issue_codes
 from issuer.register.lifecycle import void_code
-from issuer.register.series import SeriesSpec, add_series
 from issuer.register.store import Register
 
 TOOLS = SeriesSpec(key="tools", scheme="luhn", length=7, prefix="QTL", group=(4, 4), start=4_200_000)

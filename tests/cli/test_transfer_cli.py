@@ -14,10 +14,10 @@ import pytest
 from sqlalchemy import func, select
 from stdnum import luhn
 
+from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.issuing import issue_codes
 from issuer.register.lifecycle import void_code
 from issuer.register.models import IssuedCode, LogEntry
-from issuer.register.series import SeriesSpec, add_series
 from issuer.register.store import Register, open_register
 
 TOOLS = SeriesSpec(key="tools", scheme="luhn", length=7, prefix="QTL", group=(4, 4))

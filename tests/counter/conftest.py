@@ -11,12 +11,12 @@ import pytest
 
 @pytest.fixture
 def desk(register: Any, tmp_path: Path) -> Any:
+    from datetime import UTC, datetime
+
     from issuer.config import load_settings
     from issuer.counter.desk import CounterDesk
+    from issuer.register.defining import SeriesSpec, add_series
     from issuer.register.issuing import issue_codes
-    from issuer.register.series import SeriesSpec, add_series
-
-    from datetime import UTC, datetime
 
     # a fixed clock: what the screen shows (issued when) stays the same run after run
     register.clock = lambda: datetime(2026, 3, 14, 9, 30, tzinfo=UTC)

@@ -136,8 +136,8 @@ def test_issue_void_replace_restore_reprint_history(desk: Any) -> None:
 
 
 def test_two_counters_at_once_lose_nothing(desk: Any) -> None:
-    from issuer.register.transfer import export_session_rows
     from issuer.register.series import get_series
+    from issuer.register.transfer import export_session_rows
 
     per_desk = 8
 
@@ -227,7 +227,7 @@ def test_a_register_that_cannot_open_ends_the_screen_with_one_line(tmp_path: Any
 
 
 def test_an_unknown_series_is_one_line_from_the_command(cli: Any, register: Any) -> None:
-    from issuer.register.series import SeriesSpec, add_series
+    from issuer.register.defining import SeriesSpec, add_series
 
     add_series(register, SeriesSpec(key="tools", scheme="luhn", length=6, prefix="QT"))
     result = cli("counter", "--series", "hammers")

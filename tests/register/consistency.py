@@ -145,7 +145,8 @@ def _check(connection: Any, url: str) -> RegisterFacts:
 
 
 def _check_chain(url: str) -> None:
-    from issuer.register.admin import open_existing, verify_log
+    from issuer.register.admin import open_existing
+    from issuer.register.anchors import verify_log
     from issuer.register.doctor import run_doctor
 
     register = open_existing(url)

@@ -46,7 +46,7 @@ def work(desk: int, job: dict[str, Any], register: Any) -> None:
     rng = random.Random(job.get("seed", desk))
     key, mode = job["series"], job["mode"]
     if mode == "define":
-        from issuer.register.series import SeriesSpec, add_series
+        from issuer.register.defining import SeriesSpec, add_series
 
         try:
             add_series(register, SeriesSpec(key=key, **job["spec"]))

@@ -7,9 +7,9 @@ from typing import Any
 import pytest
 
 from issuer.register.acts import committed_since, mark
+from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.issuing import issue_codes
 from issuer.register.lifecycle import void_code
-from issuer.register.series import SeriesSpec, add_series
 from issuer.register.store import Register
 
 TOOLS = SeriesSpec(key="tools", scheme="luhn", length=7, prefix="QTL")

@@ -23,7 +23,7 @@ MIXED_EACH = 500 if LONG else 8
 
 
 def define(url: str, key: str, mode: str, **extra: object) -> None:
-    from issuer.register.series import SeriesSpec, add_series
+    from issuer.register.defining import SeriesSpec, add_series
     from issuer.register.store import open_register
 
     register = open_register(url, actor="setup")

@@ -25,8 +25,8 @@ DELAYS = (0.02, 0.9)
 
 
 def prepare(url: str) -> None:
+    from issuer.register.defining import SeriesSpec, add_series
     from issuer.register.issuing import issue_codes
-    from issuer.register.series import SeriesSpec, add_series
     from issuer.register.store import open_register
 
     register = open_register(url, actor="setup")

@@ -7,10 +7,10 @@ from typing import Any
 
 import pytest
 
+from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.desk import check_codes
 from issuer.register.issuing import issue_codes
 from issuer.register.lifecycle import replace_code, void_code
-from issuer.register.series import SeriesSpec, add_series
 
 # body 1130232 holds a twin (11), a phonetic pair (30 -> "thirteen"), a jump twin (232)
 BODY_BASE = 1130232

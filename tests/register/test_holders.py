@@ -15,6 +15,7 @@ import pytest
 from sqlalchemy import String, Text, inspect, select, text
 
 from issuer.errors import Conflict, InvalidFormat
+from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.holders import (
     clear_holder,
     erase_holder,
@@ -26,7 +27,6 @@ from issuer.register.issuing import issue_codes
 from issuer.register.lifecycle import code_history, replace_code, void_code
 from issuer.register.log import verify_chain
 from issuer.register.models import IssuedCode
-from issuer.register.series import SeriesSpec, add_series
 from issuer.register.store import open_register
 from tests.register.pg import pg_database, pg_url, register_url  # noqa: F401
 

@@ -16,10 +16,11 @@ from stdnum.iso7064 import mod_97_10
 from issuer.checking.schemes import get_scheme
 from issuer.errors import InvalidFormat
 from issuer.readers.scanfile import read_table
+from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.desk import check_codes
 from issuer.register.importing import IMPORT_ROLES, import_codes
 from issuer.register.models import IssuedCode
-from issuer.register.series import SeriesSpec, add_series, code_format, get_series
+from issuer.register.series import code_format, get_series
 from issuer.register.store import Register
 
 # source: ISO/IEC 7064, clause 7 (pure systems): modulus M, radix r; the character set of

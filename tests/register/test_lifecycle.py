@@ -10,6 +10,7 @@ from sqlalchemy import func, select
 
 from issuer.checking.schemes import get_scheme
 from issuer.errors import Conflict, Exhausted, InvalidCheck, InvalidFormat, NotFound
+from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.issuing import issue_codes
 from issuer.register.lifecycle import (
     code_history,
@@ -20,7 +21,7 @@ from issuer.register.lifecycle import (
 )
 from issuer.register.log import verify_chain
 from issuer.register.models import IssuedCode, Series
-from issuer.register.series import SeriesSpec, add_series, get_series, series_state
+from issuer.register.series import get_series, series_state
 
 TOOLS = SeriesSpec(key="tools", scheme="luhn", length=7, prefix="QTL", group=(4, 4), title="Tool tags")
 
@@ -213,7 +214,7 @@ def test_scattered_series_spread_numbers_without_collisions(register: Any) -> No
 
 
 def test_a_series_shape_can_change_until_it_issues_then_it_is_frozen(register: Any) -> None:
-    from issuer.register.series import change_series
+    from issuer.register.defining import change_series
 
     add_series(register, TOOLS)
     changed = change_series(register, "tools", length=8, group=(4, 5), title="Workshop tags")

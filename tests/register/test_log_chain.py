@@ -13,14 +13,15 @@ from sqlalchemy import create_engine, text
 from typer.testing import CliRunner
 
 from issuer.cli.app import app
-from issuer.register.admin import Anchor, current_anchor, open_existing, verify_log
+from issuer.register.admin import open_existing
+from issuer.register.anchors import Anchor, current_anchor, verify_log
+from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.issuing import issue_codes
 from issuer.register.lifecycle import replace_code, void_code
 from issuer.register.log import entry_hash
-from issuer.register.series import SeriesSpec, add_series
 from issuer.register.store import database_url, open_register
-from tests.register.sidestep import sidestep, sql_behind_the_back
 from tests.register.pg import pg_database, pg_url, register_url  # noqa: F401
+from tests.register.sidestep import sidestep, sql_behind_the_back
 
 
 @pytest.fixture

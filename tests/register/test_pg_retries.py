@@ -20,10 +20,11 @@ import pytest
 from sqlalchemy import event, text
 
 from issuer.errors import ConnectionLost
-from issuer.register.admin import verify_log
-from issuer.register.issuing import issue_codes
-from issuer.register.series import SeriesSpec, add_series, get_series
 from issuer.register import store
+from issuer.register.anchors import verify_log
+from issuer.register.defining import SeriesSpec, add_series
+from issuer.register.issuing import issue_codes
+from issuer.register.series import get_series
 from issuer.register.store import Register, open_register
 from tests.register.consistency import assert_consistent
 from tests.register.pg import admin_sql, pg_database, pg_url  # noqa: F401

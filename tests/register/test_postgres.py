@@ -13,10 +13,11 @@ from typer.testing import CliRunner
 
 from issuer.cli.app import app
 from issuer.errors import Conflict, Exhausted, RegisterError
+from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.issuing import issue_codes
 from issuer.register.lifecycle import code_history, replace_code, restore_code, void_code
 from issuer.register.models import Base, IssuedCode, Series
-from issuer.register.series import SeriesSpec, add_series, get_series
+from issuer.register.series import get_series
 from issuer.register.store import SCHEMA_HEAD, database_url, open_register
 from tests.register.consistency import assert_consistent
 from tests.register.pg import pg_database, pg_url, register_url  # noqa: F401

@@ -14,6 +14,7 @@ from sqlalchemy import event, func, select
 from issuer.errors import Conflict, InvalidCheck, InvalidFormat, LabelError, NotFound
 from issuer.labels import get_layout
 from issuer.labels.printjob import LabelOptions, label_contents, parse_lines, print_selection
+from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.issuing import IssueResult, issue_codes
 from issuer.register.lifecycle import code_history, void_code
 from issuer.register.log import verify_chain
@@ -24,7 +25,6 @@ from issuer.register.printing import (
     record_prints,
     select_for_printing,
 )
-from issuer.register.series import SeriesSpec, add_series
 
 from ..labels.conftest import decode_pdf, page_text
 

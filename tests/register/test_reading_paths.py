@@ -13,12 +13,12 @@ from sqlalchemy import func, select
 from issuer.checking.schemes import get_scheme
 from issuer.errors import DuplicateRow, InvalidFormat
 from issuer.readers.scanfile import read_table
+from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.desk import check_codes
 from issuer.register.importing import IMPORT_ROLES, import_codes
 from issuer.register.issuing import issue_codes
 from issuer.register.lifecycle import code_history, replace_code, restore_code, void_code
 from issuer.register.models import IssuedCode, Series
-from issuer.register.series import SeriesSpec, add_series
 from issuer.register.store import Register
 from issuer.stocktake.reconcile import read_scans, reconcile
 

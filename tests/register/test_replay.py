@@ -13,11 +13,11 @@ from sqlalchemy import create_engine, text
 from typer.testing import CliRunner
 
 from issuer.cli.app import app
+from issuer.register.defining import SeriesSpec, add_series, change_series
 from issuer.register.doctor import run_doctor
 from issuer.register.issuing import issue_codes
 from issuer.register.lifecycle import replace_code, void_code
 from issuer.register.printing import record_prints
-from issuer.register.series import SeriesSpec, add_series, change_series
 from issuer.register.store import database_url, open_register
 from tests.register.pg import pg_database, pg_url, register_url  # noqa: F401
 from tests.register.sidestep import sql_behind_the_back

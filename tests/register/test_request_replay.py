@@ -9,9 +9,9 @@ import pytest
 from sqlalchemy import func, select
 
 from issuer.errors import Conflict
+from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.issuing import issue_codes, request_differences
 from issuer.register.models import IssuedCode
-from issuer.register.series import SeriesSpec, add_series
 
 TOOLS = SeriesSpec(key="tools", scheme="luhn", length=7, prefix="QTL", title="Tool tags")
 CARDS = SeriesSpec(key="cards", scheme="damm", length=8, prefix="QM", title="Member cards")

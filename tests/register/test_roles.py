@@ -21,11 +21,11 @@ from typer.testing import CliRunner
 from issuer.cli.app import app
 from issuer.errors import PermissionDenied
 from issuer.register.admin import apply_statements, open_existing, roles_script
+from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.desk import check_codes
 from issuer.register.issuing import issue_codes
-from issuer.register.printing import record_prints
 from issuer.register.lifecycle import replace_code, restore_code, void_code
-from issuer.register.series import SeriesSpec, add_series
+from issuer.register.printing import record_prints
 from issuer.register.store import open_register
 from issuer.register.tokens import add_token, list_tokens
 from tests.register.consistency import assert_consistent
@@ -169,7 +169,7 @@ def test_the_log_is_append_only_for_everyone(guarded: Guarded, who: str) -> None
         register.close()
     checked = open_existing(guarded.owner)
     try:
-        from issuer.register.admin import verify_log
+        from issuer.register.anchors import verify_log
 
         report, _ = verify_log(checked)
         assert report.intact and report.entries == 4  # two series defined, one batch, one token

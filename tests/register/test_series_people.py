@@ -13,9 +13,10 @@ from sqlalchemy import text
 
 from issuer.cli.common import PERSONAL_DATA_CAUTION
 from issuer.errors import Conflict
+from issuer.register.defining import SeriesSpec, add_series, change_series
 from issuer.register.issuing import issue_codes
 from issuer.register.migrate import alembic_config
-from issuer.register.series import SeriesSpec, add_series, change_series, get_series
+from issuer.register.series import get_series
 from issuer.register.store import SCHEMA_HEAD, open_register
 from tests.register.pg import pg_database, pg_url, register_url  # noqa: F401
 

@@ -13,6 +13,7 @@ from typing import Any
 import pytest
 
 from issuer.errors import Conflict, InvalidFormat
+from issuer.register.defining import SeriesSpec, add_series, change_series
 from issuer.register.desk import check_codes
 from issuer.register.doctor import run_doctor
 from issuer.register.fill import after_batch
@@ -20,7 +21,7 @@ from issuer.register.issuing import issue_codes
 from issuer.register.lifecycle import code_history, replace_code, restore_code, void_code
 from issuer.register.log import verify_chain
 from issuer.register.printing import select_for_printing
-from issuer.register.series import SeriesSpec, add_series, change_series, get_series, series_state
+from issuer.register.series import get_series, series_state
 from issuer.register.suspension import reinstate_code, suspend_code
 from issuer.register.transfer import EXPORT_COLUMNS, export_codes
 from issuer.register.validity import renew_code

@@ -24,7 +24,8 @@ from sqlalchemy import Connection, create_engine, text
 from sqlalchemy.exc import DBAPIError
 
 from issuer.readers.scanfile import read_table
-from issuer.register.admin import current_anchor
+from issuer.register.anchors import current_anchor
+from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.desk import check_codes
 from issuer.register.doctor import run_doctor
 from issuer.register.importing import IMPORT_ROLES, import_codes
@@ -33,7 +34,7 @@ from issuer.register.lifecycle import replace_code, restore_code, void_code
 from issuer.register.models import Base
 from issuer.register.places import place_codes
 from issuer.register.printing import record_prints
-from issuer.register.series import SeriesSpec, add_series, code_format, get_series
+from issuer.register.series import code_format, get_series
 from issuer.register.stocktake import record_sightings
 from issuer.register.store import Register, database_url, open_register
 from tests.register.desks import LONG

@@ -16,12 +16,13 @@ from stdnum import luhn
 
 from issuer.errors import InvalidFormat
 from issuer.readers.scanfile import read_table
+from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.importing import IMPORT_ROLES, import_codes, plan_import, rejects_rows
 from issuer.register.issuing import issue_codes
 from issuer.register.lifecycle import code_history, replace_code, void_code
 from issuer.register.log import head, verify_chain
 from issuer.register.models import Batch, IssuedCode, Series
-from issuer.register.series import SeriesSpec, add_series, get_series, permutation
+from issuer.register.series import get_series, permutation
 from issuer.register.store import Register, open_register
 from issuer.register.transfer import EXPORT_COLUMNS, export_codes
 from issuer.stocktake.reconcile import read_scans, reconcile, record_seen

@@ -5,9 +5,10 @@ from __future__ import annotations
 import pytest
 
 from issuer.errors import NotFound, did_you_mean, nearest
+from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.issuing import issue_codes
 from issuer.register.lifecycle import log_entries
-from issuer.register.series import SeriesSpec, add_series, get_series
+from issuer.register.series import get_series
 from issuer.register.store import Register
 
 

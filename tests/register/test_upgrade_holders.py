@@ -10,6 +10,7 @@ from __future__ import annotations
 
 from sqlalchemy import select, text
 
+from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.doctor import run_doctor
 from issuer.register.holders import find_holders
 from issuer.register.issuing import issue_codes
@@ -18,7 +19,6 @@ from issuer.register.log import head, verify_chain
 from issuer.register.migrate import alembic_config
 from issuer.register.models import Series
 from issuer.register.printing import record_prints
-from issuer.register.series import SeriesSpec, add_series
 from issuer.register.store import SCHEMA_HEAD, open_register
 from tests.register.pg import pg_database, pg_url, register_url  # noqa: F401
 

@@ -10,11 +10,12 @@ from typing import Any
 
 from sqlalchemy import Connection, create_engine, text
 
-from issuer.register.admin import current_anchor, open_existing, verify_log
+from issuer.register.admin import open_existing
+from issuer.register.anchors import current_anchor, verify_log
+from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.issuing import issue_codes
 from issuer.register.log import GENESIS, entry_hash
 from issuer.register.migrate import alembic_config
-from issuer.register.series import SeriesSpec, add_series
 from issuer.register.store import SCHEMA_HEAD, database_url, open_register
 from tests.register.pg import pg_database, pg_url, register_url  # noqa: F401
 from tests.register.sidestep import sql_behind_the_back

@@ -11,7 +11,7 @@ from tests.service.client import Api
 
 
 def build_service(register: Any, **options: Any) -> tuple[Any, dict[str, str]]:
-    from issuer.register.series import SeriesSpec, add_series
+    from issuer.register.defining import SeriesSpec, add_series
     from issuer.register.tokens import add_token
     from issuer.service.app import create_app
 

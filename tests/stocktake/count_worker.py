@@ -15,7 +15,8 @@ import time
 from pathlib import Path
 
 from issuer.errors import IssuerError
-from issuer.register.counting import add_scan_file, count_info
+from issuer.register.counting import count_info
+from issuer.register.scanfiles import add_scan_file
 from issuer.register.store import open_register
 from issuer.stocktake.counts import read_scan_file
 

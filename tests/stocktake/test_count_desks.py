@@ -11,9 +11,9 @@ import subprocess
 import sys
 from pathlib import Path
 
-from issuer.register.counting import SCAN_CHUNK
+from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.issuing import issue_codes
-from issuer.register.series import SeriesSpec, add_series
+from issuer.register.scanfiles import SCAN_CHUNK
 from issuer.register.store import open_register
 from issuer.stocktake.counts import add_files, count_status, start_count
 from tests.register.pg import pg_database, pg_url, register_url  # noqa: F401 - fixtures

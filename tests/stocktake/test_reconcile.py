@@ -22,10 +22,11 @@ from stdnum import damm
 
 from issuer.checking.neighbours import neighbours, omission_insertion_candidates
 from issuer.errors import InvalidFormat
+from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.issuing import issue_codes
 from issuer.register.lifecycle import code_history, replace_code, void_code
 from issuer.register.log import verify_chain
-from issuer.register.series import SeriesSpec, add_series, code_format
+from issuer.register.series import code_format
 from issuer.register.store import Register
 from issuer.stocktake.reconcile import read_scans, reconcile, record_seen
 from issuer.stocktake.report import REPORT_COLUMNS, as_json, write_report
