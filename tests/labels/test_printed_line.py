@@ -20,10 +20,8 @@ def _shapes() -> list[CodeFormat]:
     alphanumeric locker key with a dot separator."""
     return [
         CodeFormat(get_scheme("luhn"), length=6, prefix=normalise_affix("QT-")),
-        CodeFormat(get_scheme("damm"), length=8, prefix="QMC", suffix="B", group=(3, 3, 3),
-                   sep=" "),  # fmt: skip
-        CodeFormat(get_scheme("iso7064-37-36"), length=6, prefix="LK", group=(4, 3),
-                   sep="."),  # fmt: skip
+        CodeFormat(get_scheme("damm"), length=8, prefix="QMC", suffix="B", group=(3, 3, 3), sep=" "),
+        CodeFormat(get_scheme("iso7064-37-36"), length=6, prefix="LK", group=(4, 3), sep="."),
     ]
 
 
