@@ -6,18 +6,20 @@ from __future__ import annotations
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field
 from datetime import datetime
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 from sqlalchemy import select
 from sqlalchemy.orm import Session
 
 from issuer.checking.codes import CodeFormat, normalise_text
-from issuer.checking.likely import Ranked, advice
 from issuer.checking.reading import echo, read_code
 from issuer.errors import InvalidFormat
 from issuer.register.models import EXPIRED, ISSUED, SUSPENDED, VOIDED, IssuedCode, Series
 from issuer.register.series import all_series, code_format
 from issuer.register.standing import standing
+
+if TYPE_CHECKING:  # the suggestion machinery loads only when an answer needs suggestions
+    from issuer.checking.likely import Ranked
 
 #: statuses a desk check answers with
 STATUSES = ("issued", "expired", "suspended", "voided", "not_issued", "bad_check", "malformed")
@@ -101,6 +103,12 @@ def _ranked(session: Session, shape: CodeFormat, typed: str) -> list[Ranked]:
         return set(session.scalars(statement))
 
     return suggest(shape, typed, issued)
+
+
+def _advice(suggestions: Sequence[Suggestion]) -> str | None:
+    from issuer.checking.likely import advice
+
+    return advice([s.likelihood for s in suggestions])
 
 
 def _suggestions(shape: CodeFormat, ranked: Sequence[Ranked]) -> list[Suggestion]:
@@ -197,7 +205,7 @@ def _answer(
             reason = "; ".join(problems) if problems else "does not fit any series"
         answer = DeskAnswer(text, "malformed", reason=reason)
         answer.suggestions = _suggest_length(session, shapes, text)
-        answer.advice = advice([s.likelihood for s in answer.suggestions])
+        answer.advice = _advice(answer.suggestions)
         return answer
     for reading in readings:
         row = stored.get(reading.canonical)
@@ -236,7 +244,7 @@ def _answer(
             _suggestions(candidate_reading.shape, _ranked(session, candidate_reading.shape, candidate_reading.canonical))
         )
     answer.suggestions.sort(key=lambda s: -s.likelihood)
-    answer.advice = advice([s.likelihood for s in answer.suggestions])
+    answer.advice = _advice(answer.suggestions)
     return answer
 
 
