@@ -16,9 +16,15 @@ from issuer.labels.fonts import Face
 
 @lru_cache(maxsize=16)
 def _font(path: str) -> Any:
+    """The font file's tables, read lazily from its bytes in memory: a lazy font opened by
+    name would hold its file open for as long as the cache lives (until exit)."""
+    from io import BytesIO
+
     from fontTools.ttLib import TTFont
 
-    return TTFont(path, fontNumber=0, lazy=True)
+    with open(path, "rb") as handle:
+        data = handle.read()
+    return TTFont(BytesIO(data), fontNumber=0, lazy=True)
 
 
 def _pen(path: Any, glyphs: Any, scale: float, x: float, y: float) -> Any:

@@ -134,3 +134,27 @@ def test_the_fonts_ship_with_their_licence() -> None:
     licence = bundled_font_path("LICENSE-DejaVu.txt").read_text("utf-8")
     # source: the licence text in the fonts' own name table (entry 13)
     assert "Bitstream Vera Fonts Copyright" in licence and "Arev Fonts Copyright" in licence
+
+
+@pytest.mark.skipif(not Path("/proc/self/fd").is_dir(), reason="needs /proc to list this process's open files")
+def test_drawing_glyph_outlines_leaves_no_font_file_open() -> None:
+    """SVG labels draw glyph outlines from a cached font; the cache must not hold the file
+    open (an open file left at exit is a ResourceWarning)."""
+    import os
+
+    from issuer.labels.fonts import load_face
+    from issuer.labels.glyphs import glyph_paths
+
+    face = load_face(str(bundled_font_path("DejaVuSans.ttf")))
+    assert len(glyph_paths([(face, "Werkstatt Süd")], 0.0, 0.0, 10.0)) == 1
+
+    def open_files() -> set[str]:
+        found = set()
+        for fd in os.listdir("/proc/self/fd"):
+            try:
+                found.add(os.path.realpath(f"/proc/self/fd/{fd}"))
+            except OSError:  # closed meanwhile
+                continue
+        return found
+
+    assert os.path.realpath(face.path) not in open_files()
