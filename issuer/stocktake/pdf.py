@@ -3,7 +3,9 @@ chart of the classes, the lists a manager acts on (missing, found elsewhere, voi
 still present, typos with the code probably meant, other series), and room to sign.
 
 Long lists are cut at :data:`MAX_ROWS` rows with a line saying how many more there are
-(the CSV report has them all).
+(the CSV report has them all). Text is drawn with the bundled DejaVu faces the labels use
+(:mod:`issuer.labels.fonts`), so places, holders and file names in any script the labels
+print come out as written; reportlab's built-in fonts stop at Latin-1.
 """
 
 from __future__ import annotations
@@ -18,12 +20,22 @@ from issuer.stocktake.results import COUNT_KEYS, MEANINGS
 
 #: rows printed per list before "and N more"
 MAX_ROWS = 500
+#: a table cell's padding left and right, in points
+_PADDING = 4
 #: the classes drawn in the chart, in order, with their labels
 CHART = (
     ("issued", "found"), ("elsewhere", "found elsewhere"), ("missing", "missing"), ("voided", "voided"),
     ("bad_check", "bad check"), ("not_issued", "not issued"), ("malformed", "malformed"),
     ("other_series", "other series"), ("out_of_scope", "out of scope"), ("duplicates", "duplicates"),
 )  # fmt: skip
+
+
+def _faces() -> tuple[str, str]:
+    """The reportlab names of the bundled regular and bold faces (registered once)."""
+    from issuer.labels.fonts import font_set
+
+    fonts = font_set()
+    return fonts.face("text").name, fonts.face("bold").name
 
 
 def _when(moment: datetime | None) -> str:
@@ -35,6 +47,7 @@ def _chart(counts: dict[str, int], width: float) -> Any:
     from reportlab.graphics.shapes import Drawing, String
     from reportlab.lib import colors
 
+    regular, bold = _faces()
     labels = [label for _, label in CHART]
     values = [counts.get(key, 0) for key, _ in CHART]
     height = 16 * len(CHART) + 30
@@ -44,27 +57,47 @@ def _chart(counts: dict[str, int], width: float) -> Any:
     chart.width, chart.height = width - 160, height - 30
     chart.data = [list(reversed(values))]
     chart.categoryAxis.categoryNames = list(reversed(labels))
-    chart.categoryAxis.labels.fontSize = 8
+    chart.categoryAxis.labels.fontName, chart.categoryAxis.labels.fontSize = regular, 8
     chart.valueAxis.valueMin = 0
     chart.valueAxis.valueMax = max(1, max(values)) * 1.15
-    chart.valueAxis.labels.fontSize = 7
+    chart.valueAxis.labels.fontName, chart.valueAxis.labels.fontSize = regular, 7
     chart.bars[0].fillColor = colors.HexColor("#4a6fa5")
     chart.barLabelFormat = "%d"
-    chart.barLabels.fontSize = 7
+    chart.barLabels.fontName, chart.barLabels.fontSize = regular, 7
     chart.barLabels.nudge = 10
     drawing.add(chart)
-    drawing.add(String(0, height - 8, "Scans and codes by class", fontSize=9))
+    drawing.add(String(0, height - 8, "Scans and codes by class", fontName=bold, fontSize=9))
     return drawing
 
 
 def _table(rows: list[list[str]], widths: Sequence[float]) -> Any:
-    from reportlab.lib import colors
-    from reportlab.platypus import Table, TableStyle
+    """A table of plain text (the header row bold); a cell too wide for its column wraps."""
+    from xml.sax.saxutils import escape
 
-    table = Table(rows, colWidths=list(widths), repeatRows=1)
+    from reportlab.lib import colors
+    from reportlab.lib.styles import ParagraphStyle
+    from reportlab.pdfbase.pdfmetrics import stringWidth
+    from reportlab.platypus import Paragraph, Table, TableStyle
+
+    regular, bold = _faces()
+    styles = (ParagraphStyle("count-head", fontName=bold, fontSize=8, leading=10),
+              ParagraphStyle("count-cell", fontName=regular, fontSize=8, leading=10))  # fmt: skip
+    room = [width - 2 * _PADDING for width in widths]
+
+    def cell(text: str, column: int, font: str, style: Any) -> Any:
+        # a Paragraph costs several times a plain string: only where the text must wrap
+        return Paragraph(escape(text), style) if stringWidth(text, font, 8) > room[column] else text
+
+    cells = [
+        [cell(text, column, bold if number == 0 else regular, styles[number != 0]) for column, text in enumerate(row)]
+        for number, row in enumerate(rows)
+    ]
+    table = Table(cells, colWidths=list(widths), repeatRows=1)
     table.setStyle(TableStyle([
-        ("FONT", (0, 0), (-1, -1), "Helvetica", 8),
-        ("FONT", (0, 0), (-1, 0), "Helvetica-Bold", 8),
+        ("FONT", (0, 0), (-1, -1), regular, 8),
+        ("FONT", (0, 0), (-1, 0), bold, 8),
+        ("LEFTPADDING", (0, 0), (-1, -1), _PADDING),
+        ("RIGHTPADDING", (0, 0), (-1, -1), _PADDING),
         ("LINEBELOW", (0, 0), (-1, 0), 0.5, colors.black),
         ("ROWBACKGROUNDS", (0, 1), (-1, -1), [colors.white, colors.HexColor("#f0f0f0")]),
         ("VALIGN", (0, 0), (-1, -1), "TOP"),
@@ -115,11 +148,16 @@ def write_pdf(info: CountInfo, files: Sequence[FileInfo], result: dict[str, Any]
     from xml.sax.saxutils import escape
 
     from reportlab.lib.pagesizes import A4
-    from reportlab.lib.styles import getSampleStyleSheet
+    from reportlab.lib.styles import ParagraphStyle, getSampleStyleSheet
     from reportlab.lib.units import mm
     from reportlab.platypus import Paragraph, SimpleDocTemplate, Spacer
 
-    styles = getSampleStyleSheet()
+    regular, bold = _faces()
+    sample = getSampleStyleSheet()
+    styles = {
+        name: ParagraphStyle(f"count-{name}", parent=sample[name], fontName=regular if name == "BodyText" else bold)
+        for name in ("Title", "Heading2", "Heading3", "BodyText")
+    }
     body, heading = styles["BodyText"], styles["Heading2"]
     document = SimpleDocTemplate(
         stream, pagesize=A4, leftMargin=18 * mm, rightMargin=18 * mm, topMargin=16 * mm, bottomMargin=16 * mm,
@@ -144,7 +182,7 @@ def write_pdf(info: CountInfo, files: Sequence[FileInfo], result: dict[str, Any]
         [item.name, item.scanner or "", f"{item.scans:,}", str(item.blank_lines), str(item.comment_lines),
          f"{_when(item.added_at)} by {item.added_by}"] for item in files
     ]  # fmt: skip
-    story += [_table(file_rows, [120, 70, 50, 40, 50, 160]), Spacer(1, 4 * mm)]
+    story += [_table(file_rows, [115, 70, 45, 35, 55, 170]), Spacer(1, 4 * mm)]
     count_rows = [["class", "count", "meaning"]] + [
         [key.replace("_", " "), f"{counts.get(key, 0):,}", MEANINGS[key]] for key in COUNT_KEYS
     ] + [["blank lines", f"{counts.get('blank_lines', 0):,}", "empty lines in the files"],
@@ -154,8 +192,7 @@ def write_pdf(info: CountInfo, files: Sequence[FileInfo], result: dict[str, Any]
         if not rows:
             continue
         story.append(Paragraph(escape(f"{title} ({len(rows):,})"), heading))
-        shown = [[escape(cell) for cell in row] for row in rows[:MAX_ROWS]]
-        story.append(_table([header, *shown], widths))
+        story.append(_table([header, *rows[:MAX_ROWS]], widths))
         if len(rows) > MAX_ROWS:
             story.append(Paragraph(escape(f"... and {len(rows) - MAX_ROWS:,} more (the CSV report lists them all)"), body))
     story += [
