@@ -21,7 +21,7 @@ from dataclasses import dataclass
 from datetime import datetime
 from typing import Any, cast
 
-from sqlalchemy import Connection, Table, bindparam, insert, select, update
+from sqlalchemy import Connection, Table, bindparam, func, insert, select, update
 from sqlalchemy.orm import Session
 
 from issuer.errors import Exhausted, InvalidFormat, NotFound
@@ -66,8 +66,19 @@ _CLAIM_BY_ID = _claim(_SERIES.c.id == bindparam("series_id"))
 _SETTLE_COUNTER = Prepared(
     update(_SERIES).where(_SERIES.c.id == bindparam("series_id")).values(next_counter=bindparam("counter"))
 )
+#: where a new batch's codes begin: above every code id there is now (on SQLite exactly
+#: the first id its codes get; on PostgreSQL a bound, the sequence having moved on maybe)
+NEXT_CODE_ID = select(func.coalesce(func.max(_CODE.c.id), 0) + 1).scalar_subquery()
 _INSERT_BATCH = Prepared(
-    insert(_BATCH).values({name: bindparam(name) for name in BATCH_COLUMNS}).returning(_BATCH.c.id)
+    insert(_BATCH)
+    .values({**{name: bindparam(name) for name in BATCH_COLUMNS}, "code_id_from": NEXT_CODE_ID})
+    .returning(_BATCH.c.id)
+)
+#: where its codes end, once they are written: the highest code id this transaction sees
+_CLOSE_BATCH = Prepared(
+    update(_BATCH)
+    .where(_BATCH.c.id == bindparam("batch_id"))
+    .values(code_id_to=select(func.max(_CODE.c.id)).scalar_subquery())
 )
 
 
@@ -138,6 +149,12 @@ def settle_counter(connection: Connection, series: ClaimedSeries, count: int, co
         _SETTLE_COUNTER.rows(connection, {"series_id": series.id, "counter": counter})
 
 
+def close_batch(connection: Connection, batch_id: int) -> None:
+    """Record where the batch's codes end (after they are all written, in the same
+    transaction): with ``code_id_from`` the id range a reader finds them by."""
+    _CLOSE_BATCH.rows(connection, {"batch_id": batch_id})
+
+
 def open_batch(
     connection: Connection,
     series: ClaimedSeries,
@@ -148,7 +165,7 @@ def open_batch(
     at: datetime,
     actor: str,
 ) -> int:
-    """Write the batch row; its id."""
+    """Write the batch row (it records where its codes' ids begin); its id."""
     row = _INSERT_BATCH.one(
         connection,
         {"series_id": series.id, "kind": kind, "request_id": request_id, "count": count,
@@ -252,17 +269,18 @@ def place_codes(
     )
     shape = code_format(series.as_series)
     codes = [shape.code_for_base(base) for base in bases]
-    issued_at = bind_value(session, _CODE.c.issued_at, at)
     # a replacement keeps its predecessor's end (keep_until); a new code gets the series' period
     until = valid_until if keep_until else validity_for(series.valid_for_days, at, valid_until)
     bound_until = None if until is None else bind_value(session, _CODE.c.valid_until, until)
     holder_key, note_key = search_key(holder), search_key(note)
+    # when and by whom: the batch row says it once (the code rows leave origin_at/_by empty)
     insert_many(
         session, "issued_code", ISSUE_COLUMNS,
-        [(series.id, code, base, ISSUED, batch_id, holder, note, issued_at, actor, replaces_id, 0,
+        [(series.id, code, base, ISSUED, batch_id, holder, note, replaces_id, 0,
           holder_key, note_key, bound_until)
          for code, base in zip(codes, bases)],
     )  # fmt: skip
+    close_batch(connection, batch_id)
     settle_counter(connection, series, count, counter)
     return Placed(series, batch_id, codes, bases)
 
@@ -272,6 +290,7 @@ __all__ = [
     "ClaimedSeries",
     "Placed",
     "claim_series",
+    "close_batch",
     "codes_digest",
     "open_batch",
     "place_codes",

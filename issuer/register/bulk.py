@@ -30,7 +30,7 @@ from sqlalchemy.orm import Session
 from issuer.checking.codes import CodeFormat
 from issuer.errors import Exhausted, RegisterError
 from issuer.register.driver import bind_value, insert_many
-from issuer.register.models import ISSUED, SCATTERED, Batch, IssuedCode, Series
+from issuer.register.models import ISSUED, SCATTERED, Batch, IssuedCode, Series, in_batch
 from issuer.register.series import capacity, code_format, permutation
 from issuer.register.standing import search_key
 
@@ -42,9 +42,10 @@ if TYPE_CHECKING:
 CHUNK = 50_000
 
 #: the columns a newly issued row fills, in the order of the tuples handed to the driver
+#: (when and by whom is the batch row's to say: ``origin_at``/``origin_by`` stay empty)
 ISSUE_COLUMNS = (
     "series_id", "code", "base", "status", "batch_id", "holder", "note",
-    "issued_at", "issued_by", "replaces_id", "print_count", "holder_key", "note_key", "valid_until",
+    "replaces_id", "print_count", "holder_key", "note_key", "valid_until",
 )  # fmt: skip
 
 
@@ -245,11 +246,8 @@ def imported_bases(session: Session, series: Series) -> npt.NDArray[np.int64]:
 
     if not series.imported_count:
         return np.empty(0, dtype=np.int64)
-    found = session.scalars(
-        select(IssuedCode.base)
-        .join(Batch, Batch.id == IssuedCode.batch_id)
-        .where(Batch.series_id == series.id, Batch.kind == "import")
-    ).all()
+    imports = session.scalars(select(Batch.id).where(Batch.series_id == series.id, Batch.kind == "import"))
+    found = [base for batch in imports.all() for base in session.scalars(select(IssuedCode.base).where(in_batch(batch)))]
     return np.sort(np.asarray(found, dtype=np.int64))
 
 
@@ -378,7 +376,6 @@ def store_bulk(
     as claimed; its counters move on as chunks are drawn)."""
     shape = code_format(series)
     previous_cache = _roomy_cache(session, count)
-    issued_at = bind_value(session, IssuedCode.__table__.c.issued_at, at)  # type: ignore[arg-type]
     until = None if valid_until is None else bind_value(session, IssuedCode.__table__.c.valid_until, valid_until)  # type: ignore[arg-type]
     holder_key, note_key = search_key(holder), search_key(note)
     outcome = BulkOutcome()
@@ -388,8 +385,7 @@ def store_bulk(
             bases = bases_array.tolist()
             rows = zip(
                 repeat(series.id), codes, bases, repeat(ISSUED), repeat(batch_id), repeat(holder),
-                repeat(note), repeat(issued_at), repeat(actor), repeat(None), repeat(0),
-                repeat(holder_key), repeat(note_key), repeat(until),
+                repeat(note), repeat(None), repeat(0), repeat(holder_key), repeat(note_key), repeat(until),
             )  # fmt: skip
             insert_many(session, "issued_code", ISSUE_COLUMNS, rows)
             outcome.digest.update(("\n".join(codes) + "\n").encode("ascii"))

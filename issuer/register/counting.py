@@ -27,6 +27,7 @@ from issuer.register.models import (
     Series,
     StockCount,
     StockCountFile,
+    batch_range_sql,
 )
 from issuer.register.places import clean_place
 from issuer.register.series import code_format, get_series
@@ -220,7 +221,7 @@ def scope_query_filter(count: StockCount | CountInfo) -> tuple[str, tuple[Any, .
     if count.scope == "holder":
         return "holder = ?", (count.scope_text,)
     if count.scope == "batch":
-        return "batch_id = ?", (count.scope_first,)
+        return batch_range_sql("?"), (count.scope_first,) * 3
     if count.scope == "range":
         return "base BETWEEN ? AND ?", (count.scope_first, count.scope_last)
     return "1 = 1", ()

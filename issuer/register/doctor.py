@@ -171,9 +171,9 @@ def check_batches(session: Session) -> Finding:
     problems = [
         f"batch {row[0]} ({row[1]}) says {row[2]} code(s), holds {row[3]}: half-issued"
         for row in session.execute(text(
-            "SELECT b.id, b.kind, b.count, count(c.id) FROM batch b "
-            "LEFT JOIN issued_code c ON c.batch_id = b.id "
-            "GROUP BY b.id, b.kind, b.count HAVING b.count <> count(c.id) ORDER BY b.id"
+            "SELECT b.id, b.kind, b.count, coalesce(n.held, 0) FROM batch b "
+            "LEFT JOIN (SELECT batch_id, count(*) AS held FROM issued_code GROUP BY batch_id) n "
+            "ON n.batch_id = b.id WHERE b.count <> coalesce(n.held, 0) ORDER BY b.id"
         ))
     ]
     problems += [
@@ -183,35 +183,40 @@ def check_batches(session: Session) -> Finding:
             "WHERE b.series_id <> c.series_id"
         ))
     ]
+    # a batch's codes are found by its id range: a code outside it would be lost to
+    # replays, printing and export by batch
+    problems += [
+        f"code {row[0]} lies outside batch {row[1]}'s id range"
+        for row in session.execute(text(
+            "SELECT c.code, c.batch_id FROM issued_code c JOIN batch b ON b.id = c.batch_id "
+            "WHERE b.code_id_from IS NULL OR b.code_id_to IS NULL "
+            "OR c.id < b.code_id_from OR c.id > b.code_id_to ORDER BY c.id LIMIT 50"
+        ))
+    ]
     total = session.execute(text("SELECT count(*) FROM batch")).scalar_one()
     return _finding("batches", problems, f"{total} batch(es), each whole", "{n} batch problem(s)")
 
 
 def _batch_digests(session: Session) -> dict[int, tuple[int, str, list[str]]]:
-    """Per batch: how many codes, the SHA-256 over them in issue order, the first two."""
-    found: dict[int, tuple[int, str, list[str]]] = {}
-    current: int | None = None
-    digest, count = hashlib.sha256(), 0
-    first: list[str] = []
+    """Per batch: how many codes, the SHA-256 over them in issue order, the first two.
 
-    def close() -> None:
-        if current is not None:
-            found[current] = (count, digest.hexdigest(), first)
-
+    One pass in id order (the primary key: no sort, no index by batch); a batch's codes
+    are in id order within it, whatever other batches' codes lie between them."""
+    open_batches: dict[int, tuple[list[int], Any, list[str]]] = {}
     rows = session.execute(
-        text("SELECT batch_id, code FROM issued_code ORDER BY batch_id, id"),
+        text("SELECT batch_id, code FROM issued_code ORDER BY id"),
         execution_options={"yield_per": 20_000},
     )
     for batch_id, code in rows:
-        if batch_id != current:
-            close()
-            current, digest, count, first = batch_id, hashlib.sha256(), 0, []
+        state = open_batches.get(batch_id)
+        if state is None:
+            state = open_batches[batch_id] = ([0], hashlib.sha256(), [])
+        count, digest, first = state
         digest.update(code.encode("ascii") + b"\n")
-        count += 1
+        count[0] += 1
         if len(first) < 2:
             first.append(code)
-    close()
-    return found
+    return {batch: (count[0], digest.hexdigest(), first) for batch, (count, digest, first) in open_batches.items()}
 
 
 def check_log_agrees(session: Session) -> Finding:

@@ -29,6 +29,7 @@ from issuer.checking.reading import read_code
 from issuer.errors import Conflict, InvalidFormat, OutOfLimits
 from issuer.readers.bulkread import BAD_CHECK, MALFORMED, read_codes
 from issuer.readers.scanfile import Table
+from issuer.register.allotment import NEXT_CODE_ID, close_batch
 from issuer.register.driver import bind_value, execute_many, insert_many
 from issuer.register.log import NewEntry, append_entries, rows_digest, timestamp_text
 from issuer.register.models import EXPIRED, ISSUED, SUSPENDED, VOIDED, Batch, IssuedCode
@@ -63,8 +64,10 @@ FIELDS = {
 #: bad lines named in a refusal before "and N more"
 NAMED_IN_REFUSAL = 10
 
+#: ``origin_at``/``origin_by``: the file's issued_at/issued_by; empty where it gave none (the
+#: import batch's time and actor stand for them)
 ROW_COLUMNS = (
-    "series_id", "code", "base", "status", "batch_id", "holder", "note", "issued_at", "issued_by",
+    "series_id", "code", "base", "status", "batch_id", "holder", "note", "origin_at", "origin_by",
     "void_reason", "voided_at", "voided_by", "print_count", "last_seen_at", "last_seen_where", "expected_where",
     "holder_key", "note_key", "valid_until", "suspended_at", "suspended_by", "suspend_reason",
 )  # fmt: skip
@@ -285,7 +288,8 @@ def apply_import(
                 "nothing imported"
             )
         now = register.clock()
-        batch = Batch(series_id=series.id, kind="import", count=len(plan.rows), created_at=now, actor=register.actor)
+        batch = Batch(series_id=series.id, kind="import", count=len(plan.rows), created_at=now,
+                      actor=register.actor, code_id_from=NEXT_CODE_ID)
         session.add(batch)
         session.flush()
         table = IssuedCode.__table__.c
@@ -297,7 +301,7 @@ def apply_import(
             chunk = plan.rows[at: at + 10_000]
             insert_many(session, "issued_code", ROW_COLUMNS, [
                 (series.id, row.code, row.base, row.status, batch.id, row.holder, row.note,
-                 bind("issued_at", row.issued_at or now), row.issued_by or register.actor,
+                 bind("origin_at", row.issued_at), row.issued_by,
                  row.void_reason, bind("voided_at", row.voided_at or now) if row.status == VOIDED else None,
                  (row.voided_by or register.actor) if row.status == VOIDED else None, 0,
                  bind("last_seen_at", row.last_seen_at), row.last_seen_where, row.expected_where,
@@ -308,6 +312,7 @@ def apply_import(
             ])  # fmt: skip
             if progress is not None:
                 progress(len(chunk))
+        close_batch(session.connection(), batch.id)
         links = [(row.replaces, row.code) for row in plan.rows if row.replaces]
         if links:
             execute_many(session, "UPDATE issued_code SET replaces_id = "

@@ -22,6 +22,7 @@ from issuer.errors import Conflict, DuplicateRow, InvalidFormat
 from issuer.register.allotment import (
     BULK_FROM,
     claim_series,
+    close_batch,
     codes_digest,
     open_batch,
     place_codes,
@@ -29,7 +30,7 @@ from issuer.register.allotment import (
 )
 from issuer.register.bulk import CHUNK, CodeSink, IssuedChunk, store_bulk
 from issuer.register.log import NewEntry, append_entry
-from issuer.register.models import Batch, IssuedCode, Series
+from issuer.register.models import Batch, IssuedCode, Series, in_batch
 from issuer.register.series import code_format
 from issuer.register.standing import clean_text, validity_for
 from issuer.register.store import Register
@@ -103,7 +104,7 @@ def _replay(
     series = session.get(Series, batch.series_id)
     assert series is not None
     first = session.execute(
-        select(IssuedCode.holder, IssuedCode.note).where(IssuedCode.batch_id == batch.id)
+        select(IssuedCode.holder, IssuedCode.note).where(in_batch(batch.id))
         .order_by(IssuedCode.id).limit(1)
     ).first()
     was = (series.key, batch.count, *(first or (None, None)))
@@ -116,7 +117,7 @@ def _replay(
     shape = code_format(series)
     rows = session.execute(
         select(IssuedCode.code, IssuedCode.base, IssuedCode.holder)
-        .where(IssuedCode.batch_id == batch.id)
+        .where(in_batch(batch.id))
         .order_by(IssuedCode.id)
         .execution_options(yield_per=CHUNK)
     )
@@ -280,6 +281,7 @@ def _issue_many(
         at=at, actor=register.actor, collect=collect, sink=sink, progress=progress,
         valid_until=validity_for(series.valid_for_days, at, valid_until),
     )  # fmt: skip
+    close_batch(connection, batch_id)
     drawn_to = series.next_counter  # drawing moves the counters on as it goes
     series.next_counter, series.code_count = start, series.code_count - count
     settle_counter(connection, series, count, drawn_to)

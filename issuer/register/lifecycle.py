@@ -18,7 +18,7 @@ from issuer.checking.reading import Read, Reading, read_code, shown
 from issuer.errors import Conflict, InvalidCheck, InvalidFormat, NotFound
 from issuer.register.allotment import place_codes
 from issuer.register.log import NewEntry, append_entry
-from issuer.register.models import ISSUED, VOIDED, IssuedCode, LogEntry, Series
+from issuer.register.models import ISSUED, VOIDED, Batch, IssuedCode, LogEntry, Series
 from issuer.register.series import all_series, code_format, unknown_series
 from issuer.register.standing import standing
 from issuer.register.store import Register
@@ -104,7 +104,8 @@ class CodeRecord:
 
 def code_record(session: Session, row: IssuedCode, now: datetime | None = None) -> CodeRecord:
     series = session.get(Series, row.series_id)
-    assert series is not None
+    batch = session.get(Batch, row.batch_id)
+    assert series is not None and batch is not None
 
     def code_of(row_id: int | None) -> str | None:
         if row_id is None:
@@ -126,8 +127,8 @@ def code_record(session: Session, row: IssuedCode, now: datetime | None = None) 
         base=row.base,
         holder=row.holder,
         note=row.note,
-        issued_at=row.issued_at,
-        issued_by=row.issued_by,
+        issued_at=row.origin_at or batch.created_at,  # the batch says, unless an import brought its own
+        issued_by=row.origin_by or batch.actor,
         batch=row.batch_id,
         void_reason=row.void_reason,
         voided_at=row.voided_at,

@@ -22,7 +22,11 @@ from sqlalchemy import (
     Text,
     TypeDecorator,
     UniqueConstraint,
+    and_,
     false,
+    func,
+    select,
+    text,
 )
 from sqlalchemy.engine import Dialect
 from sqlalchemy.orm import DeclarativeBase, Mapped, mapped_column
@@ -129,8 +133,16 @@ class Batch(Base):
     kind: Mapped[str] = mapped_column(String(16))  # issue | replace | import
     request_id: Mapped[str | None] = mapped_column(String(200), unique=True, default=None)
     count: Mapped[int] = mapped_column(Integer)
+    #: when and by whom its codes were issued (a code row repeats neither; see
+    #: :func:`code_issued_at`): the batch's constants live here once
     created_at: Mapped[datetime] = mapped_column(UTCDateTime())
     actor: Mapped[str] = mapped_column(String(120))
+    #: the ids its codes lie between (inclusive): a batch's codes are found by this range of
+    #: the primary key, not by an index of their own. On SQLite the range holds this batch's
+    #: codes only; on PostgreSQL codes that other acts wrote at the same moment may fall
+    #: inside it, so a reader also asks for ``batch_id`` (:func:`in_batch`). None: no codes.
+    code_id_from: Mapped[int | None] = mapped_column(BigInteger, default=None)
+    code_id_to: Mapped[int | None] = mapped_column(BigInteger, default=None)
 
 
 class IssuedCode(Base):
@@ -138,7 +150,13 @@ class IssuedCode(Base):
     so no path can issue it again."""
 
     __tablename__ = "issued_code"
-    __table_args__ = (UniqueConstraint("series_id", "base"),)
+    __table_args__ = (
+        UniqueConstraint("series_id", "base"),
+        Index(None, "holder_key", sqlite_where=text("holder_key IS NOT NULL"),
+              postgresql_where=text("holder_key IS NOT NULL")),
+        Index(None, "note_key", sqlite_where=text("note_key IS NOT NULL"),
+              postgresql_where=text("note_key IS NOT NULL")),
+    )  # fmt: skip
 
     id: Mapped[int] = mapped_column(Integer, primary_key=True)
     series_id: Mapped[int] = mapped_column(ForeignKey("series.id"))
@@ -146,11 +164,15 @@ class IssuedCode(Base):
     code: Mapped[str] = mapped_column(String(100), unique=True)
     base: Mapped[int] = mapped_column(BigInteger)
     status: Mapped[str] = mapped_column(String(16), default=ISSUED)
-    batch_id: Mapped[int] = mapped_column(ForeignKey("batch.id"), index=True)
+    #: no index of its own: a batch's codes are a range of ids (``Batch.code_id_from``/``_to``)
+    batch_id: Mapped[int] = mapped_column(ForeignKey("batch.id"))
     holder: Mapped[str | None] = mapped_column(String(200), default=None)
     note: Mapped[str | None] = mapped_column(Text, default=None)
-    issued_at: Mapped[datetime] = mapped_column(UTCDateTime())
-    issued_by: Mapped[str] = mapped_column(String(120))
+    #: when and by whom an imported code was first issued, where its file said so; None (every
+    #: code issued here): its batch's ``created_at`` and ``actor``. Read both through
+    #: :func:`code_issued_at` and :func:`code_issued_by`, never alone.
+    origin_at: Mapped[datetime | None] = mapped_column(UTCDateTime(), default=None)
+    origin_by: Mapped[str | None] = mapped_column(String(120), default=None)
     void_reason: Mapped[str | None] = mapped_column(Text, default=None)
     voided_at: Mapped[datetime | None] = mapped_column(UTCDateTime(), default=None)
     voided_by: Mapped[str | None] = mapped_column(String(120), default=None)
@@ -166,8 +188,9 @@ class IssuedCode(Base):
     expected_where: Mapped[str | None] = mapped_column(String(200), default=None)
     #: holder and note folded for search (see :func:`issuer.register.standing.search_key`);
     #: erased together with the texts they come from
-    holder_key: Mapped[str | None] = mapped_column(SEARCH_KEY, default=None, index=True)
-    note_key: Mapped[str | None] = mapped_column(SEARCH_KEY, default=None, index=True)
+    #: indexed only where present (partial indexes): a code with no holder costs no index entry
+    holder_key: Mapped[str | None] = mapped_column(SEARCH_KEY, default=None)
+    note_key: Mapped[str | None] = mapped_column(SEARCH_KEY, default=None)
     #: the last instant the code is valid; None: valid until voided
     valid_until: Mapped[datetime | None] = mapped_column(UTCDateTime(), default=None)
     suspended_at: Mapped[datetime | None] = mapped_column(UTCDateTime(), default=None)
@@ -175,6 +198,40 @@ class IssuedCode(Base):
     suspend_reason: Mapped[str | None] = mapped_column(Text, default=None)
     #: when holder and note were last erased (the texts are gone; the act is logged)
     erased_at: Mapped[datetime | None] = mapped_column(UTCDateTime(), default=None)
+
+
+def code_issued_at() -> Any:
+    """When a code was issued: its own time if an import brought one, else its batch's.
+    The statement must join :class:`Batch` (``Batch.id == IssuedCode.batch_id``)."""
+    return func.coalesce(IssuedCode.origin_at, Batch.created_at, type_=UTCDateTime())
+
+
+def code_issued_by() -> Any:
+    """Who issued a code: as :func:`code_issued_at`, its own name or its batch's actor."""
+    return func.coalesce(IssuedCode.origin_by, Batch.actor, type_=String(120))
+
+
+def in_batch(batch_id: Any) -> Any:
+    """The codes of batch ``batch_id`` (a value, not a column): a range of the primary key
+    (the batch's ``code_id_from``..``code_id_to``), then the batch itself."""
+    ranged = Batch.__table__.alias("ranged")
+    lowest = select(ranged.c.code_id_from).where(ranged.c.id == batch_id).correlate(None)
+    highest = select(ranged.c.code_id_to).where(ranged.c.id == batch_id).correlate(None)
+    return and_(
+        IssuedCode.id >= lowest.scalar_subquery(),
+        IssuedCode.id <= highest.scalar_subquery(),
+        IssuedCode.batch_id == batch_id,
+    )
+
+
+def batch_range_sql(marker: str = ":b", table: str = "issued_code") -> str:
+    """:func:`in_batch` as SQL text for hand-written queries: ``marker`` (the batch id's
+    parameter) appears three times (``?`` markers need the id three times)."""
+    return (
+        f"{table}.id BETWEEN (SELECT ranged.code_id_from FROM batch ranged WHERE ranged.id = {marker}) "
+        f"AND (SELECT ranged.code_id_to FROM batch ranged WHERE ranged.id = {marker}) "
+        f"AND {table}.batch_id = {marker}"
+    )
 
 
 class LogEntry(Base):

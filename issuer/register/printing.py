@@ -24,7 +24,7 @@ from sqlalchemy.orm import Session
 from issuer.errors import Conflict, InvalidFormat, NotFound
 from issuer.register.lifecycle import find_code, require_reason, shown_code
 from issuer.register.log import NewEntry, append_entries
-from issuer.register.models import SCATTERED, SUSPENDED, VOIDED, Batch, IssuedCode, Series
+from issuer.register.models import SCATTERED, SUSPENDED, VOIDED, Batch, IssuedCode, Series, in_batch
 from issuer.register.series import code_format, get_series
 from issuer.register.store import Register
 
@@ -146,7 +146,7 @@ def _by_batch(session: Session, batch_id: int) -> tuple[list[PrintRow], str]:
     batch = session.get(Batch, batch_id)
     if batch is None:
         raise NotFound(f"no batch {batch_id} in this register")
-    statement = select(*_COLUMNS).where(IssuedCode.batch_id == batch_id).order_by(IssuedCode.id)
+    statement = select(*_COLUMNS).where(in_batch(batch_id)).order_by(IssuedCode.id)
     rows = _Rows(session)
     key = rows.series(batch.series_id).key
     kind = "" if batch.kind == "issue" else f", a {batch.kind}"

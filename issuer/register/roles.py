@@ -77,7 +77,7 @@ NO_ACCESS = TableGrants(select=False)
 #: the clerk: issue, check, reprint, reconcile
 CLERK_POLICY: dict[str, TableGrants] = {
     "series": TableGrants(update=("next_counter", "code_count")),
-    "batch": TableGrants(insert=True),
+    "batch": TableGrants(insert=True, update=("code_id_to",)),  # where its codes end, once written
     "issued_code": TableGrants(
         insert=True,
         update=(
@@ -105,7 +105,7 @@ ADMIN_POLICY: dict[str, TableGrants] = {
             "imported_count", "valid_for_days", "fill_levels",
         ),
     ),
-    "batch": TableGrants(insert=True),
+    "batch": TableGrants(insert=True, update=("code_id_to",)),  # where its codes end, once written
     "issued_code": TableGrants(
         insert=True,
         update=(

@@ -50,7 +50,7 @@ from issuer.outputs import private_folder, protect
 T = TypeVar("T")
 
 #: the Alembic revision the code expects; a test keeps it equal to the migrations' head
-SCHEMA_HEAD = "log_chains"
+SCHEMA_HEAD = "leaner_rows"
 
 #: how often a writing transaction is tried when another desk holds the lock
 WRITE_ATTEMPTS = 20

@@ -23,7 +23,18 @@ from sqlalchemy.orm import Session, aliased
 from issuer.errors import InvalidFormat, NotFound
 from issuer.limits import json_safe
 from issuer.register.driver import stream_rows
-from issuer.register.models import EXPIRED, ISSUED, SUSPENDED, VOIDED, Batch, IssuedCode, Series
+from issuer.register.models import (
+    EXPIRED,
+    ISSUED,
+    SUSPENDED,
+    VOIDED,
+    Batch,
+    IssuedCode,
+    Series,
+    code_issued_at,
+    code_issued_by,
+    in_batch,
+)
 from issuer.register.series import code_format, get_series
 from issuer.register.store import Register
 
@@ -104,8 +115,8 @@ def export_statement(
             IssuedCode.code,
             _display(series),
             shown_status,
-            _utc_text(IssuedCode.issued_at, dialect),
-            IssuedCode.issued_by,
+            _utc_text(code_issued_at(), dialect),
+            code_issued_by(),
             IssuedCode.holder,
             IssuedCode.note,
             _utc_text(IssuedCode.voided_at, dialect),
@@ -118,6 +129,7 @@ def export_statement(
             _utc_text(IssuedCode.suspended_at, dialect),
             IssuedCode.suspend_reason,
         )
+        .join(Batch, Batch.id == IssuedCode.batch_id)  # when and by whom: the batch says
         .outerjoin(replaced, replaced.id == IssuedCode.replaces_id)
         .where(_series_filter(series, dialect))
         .order_by(IssuedCode.id)
@@ -131,7 +143,7 @@ def export_statement(
     elif status in (VOIDED, SUSPENDED):
         statement = statement.where(IssuedCode.status == status)
     if batch is not None:
-        statement = statement.where(IssuedCode.batch_id == batch)
+        statement = statement.where(in_batch(batch))
     return statement
 
 
@@ -154,7 +166,7 @@ def count_codes(register: Register, key: str, status: str = "all", *, batch: int
             inner = export_statement(series, status, session.get_bind().dialect.name, batch, register.clock())
             statement = select(func.count()).select_from(inner.subquery())
         elif batch is not None:
-            statement = statement.where(IssuedCode.batch_id == batch)
+            statement = statement.where(in_batch(batch))
         return int(session.scalar(statement) or 0)
 
 

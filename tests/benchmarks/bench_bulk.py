@@ -20,8 +20,12 @@
 Rounds alternate issuer and baseline so that both see the same machine load; the
 figure of each side is its best round.
 
-Run: .venv/bin/python tests/benchmarks/bench_bulk.py [N] [ROUNDS] [issue,reconcile,export]
-(default 1,000,000, 2 rounds, all three)
+6. N in-order codes (as 1.) vs raw sqlite3 ``executemany`` of the codes alone into a
+   one-column table with a unique index: what a register row costs over the bare
+   minimum. Target: within 2.5x. Medians of at least 3 interleaved rounds.
+
+Run: .venv/bin/python tests/benchmarks/bench_bulk.py [N] [ROUNDS] [issue,reconcile,export,one-column]
+(default 1,000,000, 2 rounds, the first three; one-column runs only when named)
 
 The codes are invented Quillmere tool tags (QTL...) and member cards (QM...).
 """
@@ -29,6 +33,7 @@ The codes are invented Quillmere tool tags (QTL...) and member cards (QM...).
 from __future__ import annotations
 
 import csv
+import os
 import random
 import sqlite3
 import subprocess
@@ -46,9 +51,7 @@ from issuer.register.store import open_register
 TOOLS = SeriesSpec(key="tools", scheme="luhn", length=9, prefix="QTL", group=(4, 4, 2))
 MEMBERS = SeriesSpec(key="members", scheme="luhn", length=9, prefix="QM", group=(5, 5), mode="scattered")
 
-RAW_COLUMNS = (
-    "series_id, code, base, status, batch_id, holder, note, issued_at, issued_by, replaces_id, print_count"
-)
+RAW_COLUMNS = "series_id, code, base, status, batch_id, holder, note, replaces_id, print_count"
 
 
 def fresh(folder: Path, name: str) -> Path:
@@ -101,8 +104,8 @@ def raw_issue_round(folder: Path, rows: list[tuple[object, ...]]) -> float:
     connection.execute(
         "CREATE TABLE issued_code (id INTEGER PRIMARY KEY, series_id INTEGER NOT NULL, "
         "code VARCHAR(100) NOT NULL, base BIGINT NOT NULL, status VARCHAR(16) NOT NULL, "
-        "batch_id INTEGER NOT NULL, holder VARCHAR(200), note TEXT, issued_at DATETIME NOT NULL, "
-        "issued_by VARCHAR(120) NOT NULL, void_reason TEXT, voided_at DATETIME, voided_by VARCHAR(120), "
+        "batch_id INTEGER NOT NULL, holder VARCHAR(200), note TEXT, origin_at DATETIME, "
+        "origin_by VARCHAR(120), void_reason TEXT, voided_at DATETIME, voided_by VARCHAR(120), "
         "replaces_id INTEGER, replaced_by_id INTEGER, print_count INTEGER NOT NULL, "
         "last_seen_at DATETIME, last_seen_where VARCHAR(200))"
     )
@@ -111,13 +114,52 @@ def raw_issue_round(folder: Path, rows: list[tuple[object, ...]]) -> float:
     def work() -> None:
         connection.execute("BEGIN IMMEDIATE")
         connection.executemany(
-            f"INSERT INTO issued_code ({RAW_COLUMNS}) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)", rows
+            f"INSERT INTO issued_code ({RAW_COLUMNS}) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?)", rows
         )
         connection.execute("COMMIT")
 
     seconds = timed(work)
     connection.close()
     return seconds
+
+
+def raw_one_column_round(folder: Path, codes: list[str]) -> float:
+    """The floor of any register: the codes alone into a one-column table with a unique
+    index, one ``executemany`` in one durable transaction (WAL, synchronous=FULL)."""
+    connection = sqlite3.connect(fresh(folder, "raw-one-column.sqlite"), isolation_level=None)
+    connection.execute("PRAGMA journal_mode = WAL")
+    connection.execute("PRAGMA synchronous = FULL")
+    connection.execute("CREATE TABLE issued (code TEXT NOT NULL UNIQUE)")
+
+    def work() -> None:
+        connection.execute("BEGIN IMMEDIATE")
+        connection.executemany("INSERT INTO issued (code) VALUES (?)", ((code,) for code in codes))
+        connection.execute("COMMIT")
+
+    seconds = timed(work)
+    connection.close()
+    return seconds
+
+
+def bench_one_column(folder: Path, count: int, rounds: int) -> None:
+    """N in-order codes through issue_codes vs the one-column unique table, rounds
+    interleaved, medians reported."""
+    import statistics
+
+    ours, raw = [], []
+    codes: list[str] | None = None
+    for _ in range(rounds):
+        ours.append(issue_round(folder, TOOLS, count)[0])
+        if codes is None:
+            connection = sqlite3.connect(folder / "tools.sqlite")
+            codes = [row[0] for row in connection.execute("SELECT code FROM issued_code ORDER BY id")]
+            connection.close()
+        raw.append(raw_one_column_round(folder, codes))
+    mine, floor = statistics.median(ours), statistics.median(raw)
+    print(f"issue {count:,} in order vs raw sqlite3 into a one-column unique table (median of {rounds} "
+          f"interleaved rounds, load {os.getloadavg()[0]:.1f}): issuer {mine:.2f} s, raw {floor:.2f} s, "
+          f"ratio {mine / floor:.2f} (target <= 2.5); rounds {' '.join(f'{t:.2f}' for t in ours)} / "
+          f"{' '.join(f'{t:.2f}' for t in raw)}")
 
 
 def bench_issue(folder: Path, count: int, rounds: int) -> dict[str, float]:
@@ -295,9 +337,10 @@ def raw_export_round(folder: Path, name: str) -> float:
             writer.writerow(["code", "display", "status", "issued_at", "issued_by", "holder", "note", "voided_at",
                              "voided_by", "void_reason", "replaces_id", "last_seen_at", "last_seen_where"])
             writer.writerows(connection.execute(
-                "SELECT code, code, status, issued_at, issued_by, holder, note, voided_at, voided_by, "
-                "void_reason, replaces_id, last_seen_at, last_seen_where FROM issued_code "
-                "WHERE series_id = 1 ORDER BY id"))
+                "SELECT c.code, c.code, c.status, coalesce(c.origin_at, b.created_at), "
+                "coalesce(c.origin_by, b.actor), c.holder, c.note, c.voided_at, c.voided_by, "
+                "c.void_reason, c.replaces_id, c.last_seen_at, c.last_seen_where FROM issued_code c "
+                "JOIN batch b ON b.id = c.batch_id WHERE c.series_id = 1 ORDER BY c.id"))
 
     seconds = timed(work)
     connection.close()
@@ -351,6 +394,11 @@ def main() -> None:
     only = set(sys.argv[3].split(",")) if len(sys.argv) > 3 else {"issue", "reconcile", "export"}  # reconcile runs 5 too
     with tempfile.TemporaryDirectory(prefix="issuer-bench-") as name:
         folder = Path(name)
+        if "one-column" in only:
+            bench_one_column(folder, count, max(rounds, 3))
+            only.discard("one-column")
+            if not only:
+                return
         if "issue" in only:
             bench_issue(folder, count, rounds)
         else:

@@ -7,8 +7,12 @@ the same backend in the same run.
 Every code of an in-order series passes through one counter, so desks queue for it:
 the curve shows how much of the single-desk rate survives the queue, not a speed-up.
 
+Also, on PostgreSQL: one desk (issue_codes in this process) against the raw floor of the
+same statements hand-written over one psycopg connection (target: at most 1.3x its time).
+
 Run from the repository root: .venv/bin/python tests/benchmarks/bench_desks.py [codes]
-Median of 5 rounds (BENCH_ROUNDS), desks and raw loop taking turns.
+Median of 5 rounds (BENCH_ROUNDS), desks and raw loop taking turns; BENCH_ONLY=one-desk
+runs the one-desk comparison alone.
 (PostgreSQL on 127.0.0.1:5432 as user postgres, or ISSUER_TEST_PG; skipped if down).
 """
 
@@ -64,6 +68,68 @@ def raw_postgres(database: str, count: int) -> float:
         return count / (time.perf_counter() - start)
 
 
+def _floor_loop(url: str, key: str, count: int) -> float:
+    """The raw floor of one issue on PostgreSQL: the statements the issuing path sends
+    (claim, batch row, code row, the batch's id range, the log's append function, COMMIT),
+    hand-written over one psycopg connection, one durable transaction per code."""
+    import json
+    from datetime import UTC, datetime
+
+    import psycopg
+
+    plain = url.replace("postgresql+psycopg://", "postgresql://")
+    with psycopg.connect(plain) as connection:
+        start = time.perf_counter()
+        for _ in range(count):
+            series_id, counter = connection.execute(
+                "UPDATE series SET next_counter = next_counter + 1, code_count = code_count + 1 "
+                "WHERE key = %s RETURNING id, next_counter", (key,)
+            ).fetchone()  # type: ignore[misc]
+            at = datetime.now(UTC)
+            batch = connection.execute(
+                "INSERT INTO batch (series_id, kind, count, created_at, actor, code_id_from) VALUES "
+                "(%s, 'issue', 1, %s, 'bench', (SELECT coalesce(max(id), 0) + 1 FROM issued_code)) RETURNING id",
+                (series_id, at),
+            ).fetchone()[0]  # type: ignore[index]
+            code = f"F{counter:09d}"
+            connection.execute(
+                "INSERT INTO issued_code (series_id, code, base, status, batch_id, print_count) "
+                "VALUES (%s, %s, %s, 'issued', %s, 0)", (series_id, code, counter, batch)
+            )
+            connection.execute(
+                "UPDATE batch SET code_id_to = (SELECT max(id) FROM issued_code) WHERE id = %s", (batch,)
+            )
+            entry = [{"action": "issue", "series": series_id, "code": code, "batch": batch, "detail": "{}"}]
+            connection.execute("SELECT issuer_log_append(%s, %s, %s)", (at, "bench", json.dumps(entry)))
+            connection.commit()
+        return count / (time.perf_counter() - start)
+
+
+def one_desk_vs_floor(database: str, count: int) -> None:
+    """One desk issuing one durable code per transaction (in this process, through
+    issue_codes) against the raw floor of the same statements, rounds interleaved."""
+    from issuer.register.issuing import issue_codes
+    from issuer.register.defining import SeriesSpec, add_series
+    from issuer.register.store import open_register
+
+    url = database_url(database)
+    register = open_register(url, actor="bench")
+    add_series(register, SeriesSpec(key="desk", scheme="luhn", length=7, prefix="QD"))
+    add_series(register, SeriesSpec(key="floor", scheme="luhn", length=9, prefix="F"))
+    ours, floor = [], []
+    for _ in range(ROUNDS):
+        start = time.perf_counter()
+        for _ in range(count):
+            issue_codes(register, "desk", 1)
+        ours.append(count / (time.perf_counter() - start))
+        floor.append(_floor_loop(url, "floor", count))
+    register.close()
+    mine, raw = statistics.median(ours), statistics.median(floor)
+    print(f"\nPostgreSQL, one desk: issuer {mine:.0f} codes/s, raw floor of the same statements {raw:.0f}/s: "
+          f"issuer takes {raw / mine:.2f}x the floor's time (target <= 1.3); median of {ROUNDS} interleaved "
+          f"rounds of {count}; load average {os.getloadavg()[0]:.1f}")
+
+
 def desks_rate(url: str, desks: int, count: int, key: str) -> float:
     from issuer.register.defining import SeriesSpec, add_series
     from issuer.register.store import open_register
@@ -113,6 +179,10 @@ def curve(backend: str, url: str, raw: Callable[[int], float], count: int) -> No
 
 def main() -> None:
     count = int(sys.argv[1]) if len(sys.argv) > 1 else 300
+    if os.environ.get("BENCH_ONLY") == "one-desk":
+        with temporary_database("bench") as database:
+            one_desk_vs_floor(database, count)
+        return
     with tempfile.TemporaryDirectory() as folder:
         path = Path(folder)
         curve("SQLite (WAL, synchronous=FULL)", str(path / "desks.sqlite"),
@@ -122,6 +192,9 @@ def main() -> None:
         print(f"\nPostgreSQL skipped: {problem}")
         return
     with temporary_database("bench") as database:
+        one_desk_vs_floor(database, count)
+        if os.environ.get("BENCH_ONLY") == "one-desk":
+            return
         curve("PostgreSQL (synchronous_commit on)", database_url(database),
               lambda n: raw_postgres(database, n), count)  # fmt: skip
 

@@ -79,15 +79,17 @@ def raw_same_work_rate(folder: Path, count: int = 300) -> float:
         raw.execute("BEGIN IMMEDIATE")
         series_id, counter = raw.execute("SELECT id, next_counter FROM series WHERE key='tools'").fetchone()
         batch = raw.execute(
-            "INSERT INTO batch (series_id, kind, count, created_at, actor) VALUES (?, 'issue', 1, ?, 'b')",
+            "INSERT INTO batch (series_id, kind, count, created_at, actor, code_id_from) "
+            "VALUES (?, 'issue', 1, ?, 'b', (SELECT coalesce(max(id), 0) + 1 FROM issued_code))",
             (series_id, at),
         ).lastrowid
         code = f"QTL{counter + 1:010d}"
         raw.execute(
-            "INSERT INTO issued_code (series_id, code, base, status, batch_id, issued_at, issued_by, "
-            "print_count) VALUES (?, ?, ?, 'issued', ?, ?, 'b', 0)",
-            (series_id, code, counter + 1, batch, at),
+            "INSERT INTO issued_code (series_id, code, base, status, batch_id, print_count) "
+            "VALUES (?, ?, ?, 'issued', ?, 0)",
+            (series_id, code, counter + 1, batch),
         )
+        raw.execute("UPDATE batch SET code_id_to = (SELECT max(id) FROM issued_code) WHERE id = ?", (batch,))
         raw.execute("UPDATE series SET next_counter=?, code_count=code_count+1 WHERE id=?",
                     (counter + 1, series_id))
         last_id, last_hash = raw.execute("SELECT last_id, last_hash FROM log_head WHERE id=1").fetchone()

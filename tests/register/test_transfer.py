@@ -19,7 +19,7 @@ from issuer.readers.scanfile import read_table
 from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.importing import IMPORT_ROLES, import_codes, plan_import, rejects_rows
 from issuer.register.issuing import issue_codes
-from issuer.register.lifecycle import code_history, replace_code, void_code
+from issuer.register.lifecycle import code_history, code_record, replace_code, void_code
 from issuer.register.log import head, verify_chain
 from issuer.register.models import Batch, IssuedCode, Series
 from issuer.register.series import get_series, permutation
@@ -177,7 +177,7 @@ def test_a_bad_file_is_refused_whole_naming_each_line(register: Register, tmp_pa
     with register.reading() as session:
         row = session.scalar(select(IssuedCode).where(IssuedCode.code == good))
         assert row is not None and row.holder == "Workshop"
-        assert row.issued_at.isoformat() == "2019-04-01T00:00:00+00:00"
+        assert code_record(session, row).issued_at.isoformat() == "2019-04-01T00:00:00+00:00"
     # the same file again: everything is in the register already
     with pytest.raises(InvalidFormat, match=f"line 2: {good_shown} is in the register already"):
         import_codes(register, "tools", read_table(path, roles=IMPORT_ROLES))
