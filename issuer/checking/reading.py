@@ -52,7 +52,7 @@ import unicodedata
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from types import MappingProxyType
-from typing import Protocol
+from typing import Any, Protocol, TypeVar
 
 from issuer.checking.alphabets import SEPARATORS
 from issuer.errors import InvalidComponent, InvalidFormat, InvalidLength
@@ -230,11 +230,15 @@ class Parsed(Protocol):
     def completed(self) -> bool: ...
 
 
-class Shape(Layout, Protocol):
+#: what a shape's ``parse`` gives and its ``check_matches`` takes back (a ``ParsedCode``)
+P = TypeVar("P", bound=Parsed)
+
+
+class Shape(Layout, Protocol[P]):
     """What :func:`read_code` needs from a series' shape (a ``CodeFormat``)."""
 
-    def parse(self, text: str) -> Parsed: ...
-    def check_matches(self, parsed: Parsed) -> bool: ...  # type: ignore[misc]
+    def parse(self, text: str) -> P: ...
+    def check_matches(self, parsed: P) -> bool: ...
     def display(self, canonical: str) -> str: ...
 
 
@@ -271,7 +275,7 @@ class Read:
         raise InvalidFormat(self.problem or "not a code")
 
 
-def read_code(shapes: Sequence[tuple[str, Shape]], text: str, *, series: str | None = None) -> Read:
+def read_code(shapes: Sequence[tuple[str, Shape[Any]]], text: str, *, series: str | None = None) -> Read:
     """Read ``text`` as a code of one of ``shapes`` (series key, shape), by the rules above.
 
     With ``series``, only that series' reading is wanted; a code of another series is

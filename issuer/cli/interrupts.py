@@ -37,7 +37,7 @@ def truthful_interrupt(
     except KeyboardInterrupt:
         previous = signal.signal(signal.SIGINT, signal.SIG_IGN)  # a second Ctrl-C must not cut the answer
         try:
-            done = None if before is None else committed_since(register, before, actions, series=series)
+            done = None if register is None or before is None else committed_since(register, before, actions, series=series)
             message = tell(done)
         except Exception as exc:  # noqa: BLE001 - the register may be out of reach now
             message = f"could not ask the register what was done ({exc}); see 'issuer log --last 5'"

@@ -7,7 +7,6 @@ from typing import Annotated, Any
 
 import typer
 
-from issuer.cli.signing import KeyOption
 from issuer.cli.common import (
     PERSONAL_DATA_CAUTION,
     ActorOption,
@@ -21,6 +20,7 @@ from issuer.cli.common import (
     progress_bar,
     shown,
 )
+from issuer.cli.signing import KeyOption
 
 commands = command_set()
 

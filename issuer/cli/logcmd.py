@@ -8,7 +8,6 @@ from typing import Annotated, Any
 
 import typer
 
-from issuer.cli.signing import KeyOption, read_key_file, read_statement, signing_key_path
 from issuer.cli.common import (
     DbOption,
     JsonOption,
@@ -20,6 +19,7 @@ from issuer.cli.common import (
     print_json,
     shown,
 )
+from issuer.cli.signing import KeyOption, read_key_file, read_statement, signing_key_path
 
 commands = command_set()
 

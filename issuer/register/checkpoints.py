@@ -16,9 +16,9 @@ from sqlalchemy import select
 from issuer.errors import NotFound, ProofFailed
 from issuer.proofs import merkle
 from issuer.proofs.statements import Checkpoint, Receipt, sign_checkpoint
+from issuer.register.admin import snapshot
 from issuer.register.log import leaf_hashes, row_text, seal
 from issuer.register.models import LogEntry, LogLeaf
-from issuer.register.admin import snapshot
 from issuer.register.store import Register
 
 

@@ -13,7 +13,6 @@ from sqlalchemy.orm import Session
 
 from issuer.checking.codes import CodeFormat, normalise_text
 from issuer.checking.reading import echo, read_code
-from issuer.errors import InvalidFormat
 from issuer.register.models import EXPIRED, ISSUED, SUSPENDED, VOIDED, IssuedCode, Series
 from issuer.register.series import all_series, code_format
 from issuer.register.standing import standing

@@ -201,9 +201,9 @@ def _do(request: Request, web: WebSession, act: str, form: dict[str, str]) -> Re
         record = state.write_blocking(lambda: void_code(register, code, reason=reason))
         return _desk(request, web, code=record.code, message=f"Voided {record.display}.")
     if act == "replace":
-        made = state.write_blocking(lambda: replace_code(register, code, reason=reason))
-        return _desk(request, web, code=made.code,
-                     message=f"Voided the old code; its replacement is {made.display}.")  # fmt: skip
+        replacement = state.write_blocking(lambda: replace_code(register, code, reason=reason))
+        return _desk(request, web, code=replacement.code,
+                     message=f"Voided the old code; its replacement is {replacement.display}.")  # fmt: skip
     content = state.write_blocking(lambda: draw_labels(state, web.caller, codes=[code], reason=reason))
     return Response(content, media_type="application/pdf", headers={
         "Content-Disposition": 'attachment; filename="reprint.pdf"', **SECURITY_HEADERS})  # fmt: skip

@@ -8,8 +8,8 @@ import signal
 import subprocess
 import sys
 import time
-from pathlib import Path
 from collections.abc import Callable
+from pathlib import Path
 from typing import Any
 
 WORKER = Path(__file__).with_name("desk_worker.py")

@@ -51,7 +51,7 @@ async def _client(base: str, clerk: str, admin: str, index: int, issues: int, re
                 result.latency["check"].append(time.perf_counter() - began)
                 result.statuses.append(answer.status_code)
             began = time.perf_counter()
-            bare = await client.get("/bare")
+            await client.get("/bare")
             result.latency["bare"].append(time.perf_counter() - began)
             if n % 10 == 9 and mine:
                 victim = mine.pop(0)
