@@ -103,6 +103,12 @@ class ConnectionLost(RegisterError):
     """The connection to the database dropped; the act may or may not have happened."""
 
 
+class CommitUnconfirmed(ConnectionLost):
+    """The database committed the act but warned while committing (a synchronous
+    standby's confirmation was not waited for): the primary has the act, its standby may
+    not, so after a failover it may be gone. Repeat the act under the same request id."""
+
+
 class NotFound(RegisterError):
     default_message = "not found in the register"
 

@@ -14,7 +14,8 @@ from dataclasses import dataclass, field
 from datetime import datetime
 from typing import Any
 
-from sqlalchemy import select
+from sqlalchemy import select, text
+from sqlalchemy.exc import DBAPIError
 from sqlalchemy.orm import Session
 
 from issuer import limits
@@ -141,6 +142,23 @@ def _replay(
     return IssueResult(batch.id, series.key, batch.count, codes, replayed=True, head=head, tail=tail)
 
 
+def _durable_like_an_issue(session: Session) -> None:
+    """Make a replay's COMMIT wait as an issue's does. On PostgreSQL a transaction that
+    writes no WAL commits without waiting for a synchronous standby, so a replay could
+    hand out codes whose first commit is on the primary alone (its wait was cancelled, or
+    its session ended before the standby confirmed). A transactional message in the WAL
+    (read only by logical decoding, which may ignore it) makes this COMMIT wait for the
+    standby to confirm it, and with it everything before it in the WAL. An engine
+    without the function replays without the wait."""
+    if session.get_bind().dialect.name != "postgresql":
+        return
+    try:
+        with session.begin_nested():
+            session.execute(text("SELECT pg_logical_emit_message(true, 'issuer', 'replay')"))
+    except DBAPIError:
+        pass
+
+
 def issue_codes(
     register: Register,
     key: str,
@@ -181,6 +199,7 @@ def issue_codes(
         if request_id is not None:
             replay = _replay(session, request_id, key, count, holder=holder, note=note, collect=collect, sink=sink)
             if replay is not None:
+                _durable_like_an_issue(session)
                 return replay
         if count < BULK_FROM:
             return _issue_few(session, register, key, count, holder, note, request_id, sink, valid_until)

@@ -37,6 +37,7 @@ from sqlalchemy.orm import Session
 
 from issuer import limits
 from issuer.errors import (
+    CommitUnconfirmed,
     ConnectionLost,
     DuplicateRow,
     IssuerError,
@@ -161,7 +162,25 @@ def make_engine(url: str, *, busy_timeout_ms: int = 15000) -> Engine:
                 raise DBAPIError.instance(sql, None, exc, sqlite3.Error) from None
 
         return engine
-    return create_engine(url, pool_recycle=POOL_RECYCLE_S)
+    engine = create_engine(url, pool_recycle=POOL_RECYCLE_S)
+
+    @event.listens_for(engine, "connect")
+    def _hear_warnings(dbapi_connection: Any, record: Any) -> None:
+        # PostgreSQL says "canceling wait for synchronous replication" as a WARNING and
+        # still reports the COMMIT as done; Register.writing listens for it
+        heard: list[str] = record.info.setdefault(_WARNINGS, [])
+
+        def hear(diagnostic: Any) -> None:
+            if diagnostic.severity_nonlocalized == "WARNING":
+                heard.append(str(diagnostic.message_primary or "a warning"))
+
+        dbapi_connection.add_notice_handler(hear)
+
+    return engine
+
+
+#: where a PostgreSQL connection keeps the warnings it heard (the pool entry's info)
+_WARNINGS = "issuer_warnings"
 
 
 def _is_retryable(exc: DBAPIError) -> bool:
@@ -229,11 +248,21 @@ class Register:
         ``"commit"`` once the work is done and the COMMIT is about to be sent."""
         with self.engine.connect() as connection:
             connection.execution_options(issuer_write=True)
+            heard: list[str] = connection.info.get(_WARNINGS, [])
             with Session(bind=connection, expire_on_commit=False) as session:
                 with session.begin():
                     yield session
+                    heard.clear()  # only what the COMMIT itself brings counts
                     if steps is not None:
                         steps.append("commit")
+            if heard:
+                # committed on this server, but the wait for its synchronous standby was
+                # cut short (a cancel): the standby may not have the act
+                raise CommitUnconfirmed(
+                    f"the database committed this act but warned: {heard[0]}; its standby may not "
+                    "have it, so after a failover its outcome is unknown: repeat it with the same "
+                    "request id"
+                )
 
     def write(self, work: Callable[[Session], T]) -> T:
         """Run ``work`` in one writing transaction, retried (with jitter) while another

@@ -22,6 +22,7 @@ from __future__ import annotations
 
 import json
 import os
+import threading
 import time
 from collections import Counter
 from collections.abc import Iterator
@@ -30,6 +31,7 @@ from typing import Any
 
 import pytest
 
+from issuer.errors import CommitUnconfirmed
 from tests.register.desks import DeskRoom
 from tests.register.pgpair import ServerPair, build_pair
 
@@ -71,6 +73,30 @@ def _exported(url: str, key: str) -> list[str]:
     result = cli("export", key, "--format", "json", "--db", url)
     assert result.exit_code == 0, result.output
     return [row["code"] for row in json.loads(result.stdout)]
+
+
+class _Replay(threading.Thread):
+    """An issue retried under its request id, in a thread of its own."""
+
+    def __init__(self, url: str, key: str, count: int, request: str) -> None:
+        super().__init__(daemon=True)
+        self.args_ = (url, key, count, request)
+        self.result: Any = None
+        self.error: BaseException | None = None
+        self.start()
+
+    def run(self) -> None:
+        from issuer.register.issuing import issue_codes
+        from issuer.register.store import open_register
+
+        url, key, count, request = self.args_
+        register = open_register(url, actor="auditor", create=False)
+        try:
+            self.result = issue_codes(register, key, count, request_id=request)
+        except BaseException as exc:  # noqa: BLE001 - handed to the test
+            self.error = exc
+        finally:
+            register.close()
 
 
 def _sync_waiters(pair: ServerPair) -> list[int]:
@@ -143,9 +169,24 @@ def test_no_told_code_is_lost_across_a_failover(pair: ServerPair, tmp_path: Path
             return {code for key in SERIES for code in _exported(new_url, key)} == on_primary
         _wait("X on the standby", standby_has_x)
         room.resume()
+        (x_line,) = [line for line in room.until(lambda lines: any(line["op"] == "unknown" for line in lines))
+                     if line["op"] == "unknown"]
         # the next commit, Y, waits on the primary alone: held in the link, not on the standby
-        y = _wait("a second commit waiting", lambda: [pid for pid in _sync_waiters(pair) if pid != x])
+        y = _wait("a second commit waiting", lambda: [pid for pid in _sync_waiters(pair) if pid != x])[0]
         assert {code for key in SERIES for code in _exported(new_url, key)} == on_primary
+
+        # X retried on the old primary: its codes are there, but the replay waits for the
+        # standby's confirmation as an issue would (it never comes) ...
+        replay = _Replay(old_url, jobs[x_line["desk"]]["series"], x_line["count"], x_line["request"])
+        waiting = _wait("the replay waiting", lambda: [p for p in _sync_waiters(pair) if p not in (x, y)])[0]
+        assert replay.is_alive()
+        # ... and a cancelled wait is an unknown outcome, not a success (the COMMIT only warned)
+        pair.sql(pair.primary, f"SELECT pg_cancel_backend({waiting})")
+        replay.join(30)
+        assert isinstance(replay.error, CommitUnconfirmed), replay.error or replay.result
+        # Y's wait is cancelled too: its desk must not take the COMMIT's success for one
+        pair.sql(pair.primary, f"SELECT pg_cancel_backend({y})")
+        _wait("a third commit waiting", lambda: [p for p in _sync_waiters(pair) if p not in (x, y, waiting)])
         pair.kill_primary()
         killed = time.monotonic()
         pair.relay.close()  # Y, held in the link, is gone with the primary
@@ -225,7 +266,7 @@ def test_no_told_code_is_lost_across_a_failover(pair: ServerPair, tmp_path: Path
         f"\nfailover: {len(codes)} codes in {sum(line['op'] in ('issue', 'retried') for line in lines)} acts; "
         f"in flight at the kill: {len(unknown)} acts ({sum(retried[r]['count'] for r in unknown)} codes), "
         f"{len(replayed)} on the standby unacknowledged (replayed), {len(fresh)} not on the standby "
-        f"(issued on retry; {len(y)} of them committed on the old primary alone); seconds: traffic {traffic - started:.1f}, "
+        f"(issued on retry; Y among them, committed on the old primary alone); seconds: traffic {traffic - started:.1f}, "
         f"stall to kill {killed - traffic:.1f}, promote {promoted - killed:.2f}, "
         f"desks finish {finished - promoted:.1f}, exports {retrying - finished:.1f}, "
         f"retries {verifying - retrying:.1f}, verify+doctor {time.monotonic() - verifying:.1f}; "
