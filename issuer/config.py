@@ -3,7 +3,7 @@
 The documented defaults ship inside the package (``issuer/bundled_config/issuer.toml``,
 from the repository's ``config/``). A user's own file is ``issuer.toml`` in the user
 config directory (``platformdirs.user_config_dir("issuer")``), or the file named by
-``ISSUER_CONFIG``. Environment: ``ISSUER_DB``, ``ISSUER_ACTOR``.
+``ISSUER_CONFIG``. Environment: ``ISSUER_DB``, ``ISSUER_ACTOR``, ``ISSUER_KEY_FILE``.
 """
 
 from __future__ import annotations
@@ -66,6 +66,8 @@ class Settings:
     actor: str
     raw: dict[str, Any] = field(default_factory=dict)
     source: Path | None = None  # the user's config file, when one was read
+    #: the file the register's scatter keys are sealed under (None: the default place)
+    key_file: str | None = None
 
     @property
     def folder(self) -> Path | None:
@@ -103,7 +105,10 @@ def load_settings(*, database: str | None = None, actor: str | None = None) -> S
         or str(default_database_path())
     )
     chosen_actor = actor or os.environ.get("ISSUER_ACTOR") or register.get("actor") or _os_user()
-    return Settings(database=str(chosen_db), actor=str(chosen_actor), raw=raw, source=source)
+    key_file = os.environ.get("ISSUER_KEY_FILE") or register.get("key_file") or None
+    if key_file is not None and source is not None and not Path(key_file).expanduser().is_absolute():
+        key_file = str(source.parent / Path(key_file).expanduser())  # relative to the config file
+    return Settings(database=str(chosen_db), actor=str(chosen_actor), raw=raw, source=source, key_file=key_file)
 
 
 def _read_text(path: Path) -> str:
@@ -119,7 +124,9 @@ def _read_text(path: Path) -> str:
 
 #: what each known setting must be: a table, or in ``[register]`` a text or a whole number
 _TABLES = ("register", "layouts", "labels")
-_REGISTER_TYPES: dict[str, type] = {"database": str, "actor": str, "busy_timeout_ms": int, "signing_key": str}
+_REGISTER_TYPES: dict[str, type] = {
+    "database": str, "actor": str, "busy_timeout_ms": int, "signing_key": str, "key_file": str,
+}
 #: the longest wait for a busy register a config may ask for, in milliseconds
 MAX_BUSY_TIMEOUT_MS = 600_000
 
@@ -144,10 +151,9 @@ def _check_types(raw: dict[str, Any], where: str) -> None:
         raise InvalidFormat(f"config file {where}: register.busy_timeout_ms must be 0 to {MAX_BUSY_TIMEOUT_MS:,}")
     if register.get("actor") is not None:
         limits.text("actor", register["actor"], label=f"config file {where}: register.actor")
-    if register.get("database") is not None:
-        limits.file_name(f"config file {where}: register.database", register["database"])
-    if register.get("signing_key") is not None:
-        limits.file_name(f"config file {where}: register.signing_key", register["signing_key"])
+    for name in ("database", "signing_key", "key_file"):
+        if register.get(name) is not None:
+            limits.file_name(f"config file {where}: register.{name}", register[name])
 
 
 def _os_user() -> str:

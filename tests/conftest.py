@@ -43,6 +43,10 @@ def db_path(tmp_path: Path, migrated_template: Path) -> Path:
     path = tmp_path / "register.sqlite"
     shutil.copyfile(migrated_template, path)
     path.chmod(0o600)
+    # the register's key file (its scatter keys are sealed under it) goes with it
+    key = migrated_template.with_name(migrated_template.name + ".key")
+    shutil.copyfile(key, path.with_name(path.name + ".key"))
+    path.with_name(path.name + ".key").chmod(0o600)
     return path
 
 

@@ -17,6 +17,7 @@ from issuer.cli.common import (
     err_console,
     open_existing_from_options,
     print_json,
+    shown,
 )
 
 commands = command_set()
@@ -74,12 +75,20 @@ def db_init(db: DbOption = None, actor: ActorOption = None, as_json: JsonOption 
     from issuer.register.admin import init_register
 
     settings = load_settings(database=db, actor=actor)
-    created, place = init_register(settings.database, actor=settings.actor)
+    from issuer.register.sealing import default_key_file
+    from issuer.register.store import database_url, key_path
+
+    created, place = init_register(settings.database, actor=settings.actor, key_file=settings.key_file)
+    key_file = key_path(settings.key_file) or default_key_file(database_url(settings.database))
     if as_json:
-        print_json({"database": place, "created": created})
+        print_json({"database": place, "created": created, "key_file": str(key_file)})
         return
     if created:
         console().print(f"Made a new register at {place}; next: 'issuer series add KEY ...'")
+        console().print(
+            f"Its key file is {shown(key_file)}: scattered series are sealed under it. Keep a copy apart "
+            "from the register's backups; without it a scattered series can no longer issue."
+        )
     else:
         console().print(f"There is a register at {place} already; nothing changed.")
 
@@ -166,11 +175,12 @@ def backup(
         dump = pg_dump_command(register, str(destination))
         restore = pg_restore_command(register, str(destination))
         has_password = register.engine.url.password is not None
+        key_file = str(register.keyring.path)
         register.close()
         password_note = "The password is not printed: pg_dump and pg_restore read it from PGPASSWORD or ~/.pgpass."
         if as_json:
             print_json({"backend": "postgresql", "command": dump, "restore": restore,
-                        "password": "PGPASSWORD or ~/.pgpass" if has_password else None})
+                        "password": "PGPASSWORD or ~/.pgpass" if has_password else None, "key_file": key_file})
             return
         out = console()
         out.print("A PostgreSQL register is backed up with the server's own tool; run:")
@@ -179,7 +189,11 @@ def backup(
         typer.echo(shell_line(restore))
         if has_password:
             out.print(password_note, style="dim")
-        out.print("Keep the dump file private: it holds the register's personal data and keys.")
+        out.print("Keep the dump file private: it holds the register's personal data.")
+        out.print(
+            f"The dump holds the scatter keys sealed: keep a copy of the key file {shown(key_file)} apart "
+            "from it (a register restored under another name needs register.key_file pointing at it)."
+        )
         return
     result = _backup_with_progress(register, destination, force)
     register.close()
@@ -191,6 +205,11 @@ def backup(
         f"({result.size:,} bytes, owner-only, integrity checked); "
         f"log head {result.head_id}:{result.head_hash}"
     )
+    if result.key_file:
+        console().print(
+            f"The register's key file is copied beside it ({shown(result.key_file)}): keep another copy "
+            "apart from the backups; without it the scattered series can no longer issue."
+        )
 
 
 def _backup_with_progress(register: Any, destination: Path, force: bool) -> Any:

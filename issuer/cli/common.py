@@ -94,7 +94,9 @@ def open_existing_from_options(db: str | None) -> Any:
 
     settings = load_settings(database=db)
     timeout = int(settings.section("register").get("busy_timeout_ms", 15000))
-    register = open_existing(settings.database, actor=settings.actor, busy_timeout_ms=timeout)
+    register = open_existing(
+        settings.database, actor=settings.actor, busy_timeout_ms=timeout, key_file=settings.key_file
+    )
     close_with_command(register)
     return register
 
@@ -212,7 +214,7 @@ def open_register_from_options(db: str | None, actor: str | None, *, create: boo
     settings = load_settings(database=db, actor=actor)
     timeout = int(settings.section("register").get("busy_timeout_ms", 15000))
     register = open_register(
-        settings.database, actor=settings.actor, busy_timeout_ms=timeout, create=create
+        settings.database, actor=settings.actor, busy_timeout_ms=timeout, create=create, key_file=settings.key_file
     )
     close_with_command(register)
     return register

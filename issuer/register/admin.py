@@ -8,6 +8,7 @@ holds the role policy; :mod:`issuer.register.backup` copies a register and
 
 from __future__ import annotations
 
+import os
 from collections.abc import Iterator
 from contextlib import contextmanager
 from dataclasses import dataclass
@@ -23,6 +24,7 @@ from issuer.errors import InvalidFormat, NoRegister, PermissionDenied, RegisterE
 from issuer.register.models import IssuedCode, LogEntry, Series
 from issuer.register.store import (
     SCHEMA_HEAD,
+    key_path,
     Register,
     database_url,
     make_engine,
@@ -42,7 +44,9 @@ def sqlite_path(register: Register) -> Path | None:
     return Path(database)
 
 
-def open_existing(database: str, *, actor: str = "doctor", busy_timeout_ms: int = 15000) -> Register:
+def open_existing(
+    database: str, *, actor: str = "doctor", busy_timeout_ms: int = 15000, key_file: str | os.PathLike[str] | None = None
+) -> Register:
     """Open a register as it is: no upgrade, and no empty file made where none was."""
     url = database_url(database)
     if url.startswith("sqlite"):
@@ -53,7 +57,7 @@ def open_existing(database: str, *, actor: str = "doctor", busy_timeout_ms: int 
         engine = make_engine(url, busy_timeout_ms=busy_timeout_ms)
     except (ImportError, ValueError) as exc:
         raise RegisterError(f"cannot open the register {database}: {exc}") from None
-    register = Register(engine=engine, actor=actor)
+    register = Register(engine=engine, actor=actor, key_file=key_path(key_file))
     try:
         with engine.connect():
             pass
@@ -72,7 +76,7 @@ def snapshot(register: Register) -> Iterator[Session]:
     with register.engine.connect() as connection:
         if register.backend == "postgresql":
             connection = connection.execution_options(isolation_level="REPEATABLE READ")
-        with Session(bind=connection, expire_on_commit=False) as session:
+        with Session(bind=connection, expire_on_commit=False, info=register.session_info()) as session:
             try:
                 yield session
             finally:
@@ -133,7 +137,7 @@ def register_status(register: Register) -> RegisterStatus:
     )
 
 
-def init_register(database: str, *, actor: str) -> tuple[bool, str]:
+def init_register(database: str, *, actor: str, key_file: str | os.PathLike[str] | None = None) -> tuple[bool, str]:
     """Make a register at ``database`` on purpose (a new SQLite file, owner-only in an
     owner-only folder, or issuer's tables in an empty PostgreSQL database); a register
     already there is left as it is. Returns (created, where it is)."""
@@ -146,7 +150,7 @@ def init_register(database: str, *, actor: str) -> tuple[bool, str]:
         existing.close()
         if revision is not None:
             return False, where(existing.engine.url.render_as_string(hide_password=False))
-    made = open_register(database, actor=actor, create=True)
+    made = open_register(database, actor=actor, create=True, key_file=key_file)
     made.close()
     return True, where(made.engine.url.render_as_string(hide_password=False))
 
@@ -161,7 +165,7 @@ def upgrade_register(register: Register) -> tuple[str | None, str | None]:
         if before is None:
             raise no_register(register.engine.url.render_as_string(hide_password=False))
         if before != SCHEMA_HEAD:
-            upgrade_to_head(register.engine)
+            upgrade_to_head(register.engine, register.keyring)
         return before, register.schema_revision()
     except DBAPIError as exc:
         raise RegisterError(f"cannot upgrade the register: {str(exc.orig).splitlines()[0]}") from None

@@ -28,7 +28,8 @@ from issuer.errors import Exhausted, InvalidFormat, NotFound
 from issuer.register.bulk import ISSUE_COLUMNS, check_room
 from issuer.register.driver import Prepared, bind_value, insert_many
 from issuer.register.models import ISSUED, SCATTERED, Batch, IssuedCode, Series
-from issuer.register.series import capacity, code_format, permutation, unknown_series
+from issuer.register.sealing import keyring_of
+from issuer.register.series import capacity, code_format, permutation, scatter_protected, unknown_series
 from issuer.register.standing import search_key, validity_for
 
 #: batches at least this large make their numbers with numpy, chunk by chunk
@@ -105,6 +106,8 @@ class ClaimedSeries:
     scatter_key: bytes | None
     #: how long a new code stays valid, in days (None: no end)
     valid_for_days: int | None = None
+    #: a scattered series' FF1 key, opened with the register's key file at the claim
+    opened_key: bytes | None = None
 
     @property
     def as_series(self) -> Series:
@@ -114,7 +117,7 @@ class ClaimedSeries:
     @property
     def protected(self) -> bool | None:
         """Whether a scattered series' permutation has its full strength (None: in order)."""
-        return permutation(self.as_series).is_protected if self.mode == SCATTERED else None
+        return scatter_protected(self.as_series) if self.mode == SCATTERED else None
 
 
 def claim_series(
@@ -138,6 +141,7 @@ def claim_series(
     series.code_count -= count
     if series.scatter_key is not None:
         series.scatter_key = bytes(series.scatter_key)
+        series.opened_key = keyring_of(session).open(series.key, series.scatter_key)
     check_room(series.as_series, count)
     return series
 

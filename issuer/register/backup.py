@@ -28,6 +28,8 @@ class BackupResult:
     size: int
     head_id: int
     head_hash: str
+    #: the copy of the register's key file beside the backup (None: the register has none)
+    key_file: str | None = None
 
     def as_dict(self) -> dict[str, Any]:
         return dict(self.__dict__)
@@ -99,6 +101,7 @@ def backup_sqlite(
         if not force and os.path.lexists(target):
             raise Conflict(f"{target} appeared meanwhile; use --force to overwrite it")
         os.replace(partial, target)
+        key_copy = _copy_key_file(register, target)
         _fsync_directory(target.parent)
     except BaseException:
         for leftover in (partial, Path(f"{partial}-journal"), Path(f"{partial}-wal"), Path(f"{partial}-shm")):
@@ -107,7 +110,27 @@ def backup_sqlite(
     finally:
         if note is not None:
             note.unlink(missing_ok=True)
-    return BackupResult(str(source), str(target), target.stat().st_size, head_id, head_hash)
+    return BackupResult(str(source), str(target), target.stat().st_size, head_id, head_hash,
+                        None if key_copy is None else str(key_copy))
+
+
+def _copy_key_file(register: Register, target: Path) -> Path | None:
+    """The register's key file beside the backup (``backup.sqlite.key``), owner-only, so the
+    copy issues from its scattered series when restored; None when there is no key file."""
+    from issuer.register.sealing import default_key_file
+
+    source = register.keyring.path
+    if not source.is_file():
+        return None
+    copy = default_key_file(f"sqlite:///{target}")
+    partial = copy.with_name(f".{copy.name}.{os.getpid()}.part")
+    descriptor = os.open(partial, os.O_WRONLY | os.O_CREAT | os.O_TRUNC, 0o600)
+    with os.fdopen(descriptor, "wb") as handle:
+        handle.write(source.read_bytes())
+        handle.flush()
+        os.fsync(handle.fileno())
+    os.replace(partial, copy)
+    return copy
 
 
 def _copy(source: Path, partial: Path, progress: Progress | None) -> tuple[int, str]:

@@ -17,7 +17,8 @@ from issuer.errors import Conflict, InvalidFormat, OutOfLimits
 from issuer.register.fill import levels_text, series_levels
 from issuer.register.log import NewEntry, append_entry
 from issuer.register.models import SCATTERED, SEQUENTIAL, Series
-from issuer.register.series import code_format, get_series, stored_shape
+from issuer.register.sealing import fingerprint, keyring_of
+from issuer.register.series import SERIES_SETTINGS, code_format, get_series, stored_shape
 
 if TYPE_CHECKING:
     from issuer.register.store import Register
@@ -177,7 +178,7 @@ def add_series(register: Register, spec: SeriesSpec) -> Series:
             next_counter=0,
             code_count=0,
             imported_count=0,
-            scatter_key=key_bytes,
+            scatter_key=None if key_bytes is None else register.keyring.seal(spec.key, key_bytes),
             created_at=at,
             created_by=register.actor,
             holds_people=spec.mode == SCATTERED if spec.holds_people is None else spec.holds_people,
@@ -208,8 +209,7 @@ def add_series(register: Register, spec: SeriesSpec) -> Series:
                     "valid_for_days": series.valid_for_days,
                     "fill_levels": series.fill_levels,
                     # the key's fingerprint (never the key): the replay sees a changed key
-                    **({"scatter_key_sha256": stored_shape(series)["scatter_key_sha256"]}
-                       if series.scatter_key is not None else {}),
+                    **({"scatter_key_sha256": fingerprint(key_bytes)} if key_bytes is not None else {}),
                 },
             ),
             actor=register.actor,
@@ -257,6 +257,7 @@ def change_series(register: Register, key: str, **changes: object) -> Series:
         lock_definitions(session)
         series = get_series(session, key, lock=True)
         before = stored_shape(series)
+        new_fingerprint: str | None | bool = False  # False: the key did not change
         current = _spec_of(series)
         spec = dataclasses.replace(current, **wanted)  # type: ignore[arg-type]
         shape_changes = {
@@ -282,7 +283,9 @@ def change_series(register: Register, key: str, **changes: object) -> Series:
                 from issuer.scattering.scatter import new_key
 
                 series.mode = spec.mode
-                series.scatter_key = new_key() if spec.mode == SCATTERED else None
+                raw = new_key() if spec.mode == SCATTERED else None
+                series.scatter_key = None if raw is None else keyring_of(session).seal(series.key, raw)
+                new_fingerprint = None if raw is None else fingerprint(raw)
         series.title = spec.title
         series.holds_people = bool(spec.holds_people)
         series.valid_for_days = spec.valid_for_days or None
@@ -295,7 +298,10 @@ def change_series(register: Register, key: str, **changes: object) -> Series:
                 series_id=series.id,
                 detail={**{name: str(getattr(spec, name)) for name in sorted(wanted)},
                         # the columns as stored after the change, only those that moved
-                        "stored": {k: v for k, v in stored_shape(series).items() if before.get(k) != v}},
+                        "stored": {**{k: v for k, v in stored_shape(series).items() if before.get(k) != v},
+                                   **({} if new_fingerprint is False else {"scatter_key_sha256": new_fingerprint}),
+                                   # the settings the change names, as stored (the replay checks them)
+                                   **{k: getattr(series, k) for k in SERIES_SETTINGS if k in wanted}}},
             ),
             actor=register.actor,
             at=register.clock(),

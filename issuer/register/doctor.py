@@ -317,6 +317,7 @@ def run_doctor(register: Register, stage: Stage | None = None, *, fix: bool = Fa
     from sqlalchemy.exc import DBAPIError
 
     from issuer.register.admin import redacted_url
+    from issuer.register.sealing import KeyFileError
 
     findings: list[Finding] = []
 
@@ -329,6 +330,8 @@ def run_doctor(register: Register, stage: Stage | None = None, *, fix: bool = Fa
             session.rollback()
             reason = str(exc.orig).splitlines()[0] if str(exc.orig) else type(exc.orig).__name__
             findings.append(Finding(name, PROBLEM, f"the check could not run: {reason}", [reason]))
+        except KeyFileError as exc:  # a scattered series' key does not open with the key file
+            findings.append(Finding(name, PROBLEM, f"the check could not run: {exc.message}", [exc.message]))
 
     try:
         revision = register.schema_revision()

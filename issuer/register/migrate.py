@@ -10,6 +10,8 @@ if TYPE_CHECKING:
     from alembic.config import Config
     from sqlalchemy.engine import Engine
 
+    from issuer.register.sealing import Keyring
+
 
 def alembic_config() -> Config:
     from alembic.config import Config
@@ -27,13 +29,26 @@ def head_revision() -> str:
     return head
 
 
-def upgrade_to_head(engine: Engine) -> None:
-    """Create or upgrade the schema in one writing transaction."""
+def sealing_attributes(config: Config, keyring: Keyring) -> None:
+    """Hand a migration the register's keyring: the sealed-keys migration seals (and its
+    downgrade opens) the scatter keys with it."""
+    config.attributes["seal_scatter_key"] = keyring.seal
+    config.attributes["open_scatter_key"] = keyring.open
+
+
+def upgrade_to_head(engine: Engine, keyring: Keyring | None = None) -> None:
+    """Create or upgrade the schema in one writing transaction; the register's key file
+    is made when the register holds no sealed key yet (a new or newly upgraded one)."""
     from alembic import command
 
+    from issuer.register.sealing import Keyring, default_key_file
+
+    keyring = keyring or Keyring(default_key_file(engine.url))
     config = alembic_config()
     with engine.connect() as connection:
         connection.execution_options(issuer_write=True)
         config.attributes["connection"] = connection
+        sealing_attributes(config, keyring)
+        keyring.ensure(connection)
         command.upgrade(config, "head")
         connection.commit()

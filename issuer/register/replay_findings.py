@@ -14,6 +14,7 @@ from sqlalchemy.orm import Session
 from issuer.register.log import rows_digest, timestamp_text
 from issuer.register.models import ISSUED, batch_range_sql
 from issuer.register.replay import UNKNOWN, CodeExpect, Replay, replay_log, same_time, stored_time
+from issuer.register.sealing import KeyFileError, fingerprint, keyring_of
 from issuer.register.series import SHAPE_COLUMNS
 
 _CODE_ROWS = (
@@ -183,7 +184,13 @@ def _series_problems(session: Session, replay: Replay) -> list[str]:
         f"SELECT id, created_by, created_at, scatter_key, {columns} FROM series ORDER BY id"
     )):
         series_id, created_by, held = row[0], row[1], dict(zip(SHAPE_COLUMNS, row[4:]))
-        held["scatter_key_sha256"] = hashlib.sha256(bytes(row[3])).hexdigest() if row[3] is not None else None
+        if row[3] is None:
+            held["scatter_key_sha256"] = None
+        else:  # the key is sealed: its fingerprint is the raw key's, opened with the key file
+            try:
+                held["scatter_key_sha256"] = fingerprint(keyring_of(session).open(str(held["key"]), bytes(row[3])))
+            except KeyFileError as exc:
+                problems.append(f"series {held['key']}: {exc.message}")
         if series_id not in replay.series_entry:
             problems.append(f"series {held['key']}: its definition is not in the log")
             continue

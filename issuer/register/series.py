@@ -18,7 +18,7 @@ from sqlalchemy.orm import Session
 from issuer import limits
 from issuer.checking.codes import CodeFormat
 from issuer.checking.schemes import get_scheme
-from issuer.errors import NotFound, did_you_mean
+from issuer.errors import NotFound, RegisterError, did_you_mean
 from issuer.register.fill import level_reached, series_levels
 from issuer.register.models import (
     ISSUED,
@@ -29,6 +29,7 @@ from issuer.register.models import (
     IssuedCode,
     Series,
 )
+from issuer.register.sealing import keyring_of
 from issuer.register.standing import period_text
 
 if TYPE_CHECKING:
@@ -67,9 +68,8 @@ def permutation(series: Series) -> ScatterPermutation:
     """
     from issuer.scattering.scatter import ScatterPermutation
 
-    assert series.scatter_key is not None
     radix = code_format(series).alphabet_size
-    ident = (bytes(series.scatter_key), radix, series.range_start, series.range_end, series.key)
+    ident = (open_key(series), radix, series.range_start, series.range_end, series.key)
     cache: dict[tuple[object, ...], ScatterPermutation] | None = getattr(_permutations, "cache", None)
     if cache is None:
         cache = _permutations.cache = {}
@@ -87,6 +87,28 @@ def permutation(series: Series) -> ScatterPermutation:
     return found
 
 
+def scatter_protected(series: Series) -> bool:
+    """Whether a scattered series' range has FF1's full strength (needs no key)."""
+    from issuer.scattering.scatter import range_is_protected
+
+    return range_is_protected(code_format(series).alphabet_size, series.range_start, series.range_end)
+
+
+def open_key(series: Series) -> bytes:
+    """A scattered series' raw FF1 key: opened with its register's key file (a series read
+    through a session of the register), or the one its claim already opened."""
+    from sqlalchemy.orm import object_session
+
+    opened = getattr(series, "opened_key", None)
+    if opened is not None:
+        return bytes(opened)
+    assert series.scatter_key is not None
+    session = object_session(series)
+    if session is None:
+        raise RegisterError(f"series {series.key}: its scatter key can be opened only inside a register session")
+    return keyring_of(session).open(series.key, bytes(series.scatter_key))
+
+
 def capacity(series: Series) -> int:
     return series.range_end - series.range_start + 1
 
@@ -98,15 +120,14 @@ SHAPE_COLUMNS = (
 )  # fmt: skip
 
 
-def stored_shape(series: Series) -> dict[str, object]:
-    """The shape as stored, and a SHA-256 of the scatter key (it shows a changed key and
-    tells nothing about the key itself)."""
-    import hashlib
+#: the settings that may change any time; logged at definition and, as stored, at change
+SERIES_SETTINGS = ("holds_people", "valid_for_days", "fill_levels")
 
-    shape: dict[str, object] = {column: getattr(series, column) for column in SHAPE_COLUMNS}
-    key = series.scatter_key
-    shape["scatter_key_sha256"] = hashlib.sha256(bytes(key)).hexdigest() if key is not None else None
-    return shape
+
+def stored_shape(series: Series) -> dict[str, object]:
+    """The shape as stored. The scatter key's fingerprint (a SHA-256 of the raw key) is
+    logged apart, by the acts that make a key: reading it needs the key file."""
+    return {column: getattr(series, column) for column in SHAPE_COLUMNS}
 
 
 def get_series(session: Session, key: str, *, lock: bool = False) -> Series:
@@ -198,7 +219,7 @@ def series_state(session: Session, series: Series, now: datetime | None = None) 
     if series.mode == SEQUENTIAL and remaining > 0:
         next_code = shape.display(shape.code_for_base(series.range_start + series.next_counter))
     if series.mode == SCATTERED:
-        protected = permutation(series).is_protected
+        protected = scatter_protected(series)
     return SeriesState(
         key=series.key,
         title=series.title,

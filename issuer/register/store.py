@@ -47,11 +47,12 @@ from issuer.errors import (
     redact,
 )
 from issuer.outputs import private_folder, protect
+from issuer.register.sealing import SESSION_INFO, Keyring, default_key_file
 
 T = TypeVar("T")
 
 #: the Alembic revision the code expects; a test keeps it equal to the migrations' head
-SCHEMA_HEAD = "leaner_rows"
+SCHEMA_HEAD = "sealed_keys"
 
 #: how often a writing transaction is tried when another desk holds the lock
 WRITE_ATTEMPTS = 20
@@ -71,6 +72,13 @@ def _constraint_line(exc: IntegrityError) -> str:
     if first.startswith("UNIQUE constraint failed: "):  # SQLite
         return f"the register refused a row: its {first.split(': ', 1)[1]} is held already"
     return f"the register refused a row: {first}"
+
+
+def key_path(key_file: str | os.PathLike[str] | None) -> Path | None:
+    if key_file is None or key_file == "":
+        return None
+    limits.file_name("the key file", key_file)
+    return Path(key_file).expanduser().absolute()
 
 
 def utc_now() -> datetime:
@@ -210,6 +218,9 @@ class Register:
     engine: Engine
     actor: str
     clock: Callable[[], datetime] = field(default=utc_now)
+    #: the file the scatter keys are sealed under (None: the default place for this register)
+    key_file: Path | None = None
+    _keyring: Keyring | None = field(default=None, repr=False, compare=False)
 
     @property
     def backend(self) -> str:
@@ -228,12 +239,23 @@ class Register:
             overflow = size()
         return max(1, size() + overflow)
 
+    @property
+    def keyring(self) -> Keyring:
+        """The register's key file, read once when a scatter key is first needed."""
+        if self._keyring is None:
+            self._keyring = Keyring(self.key_file or default_key_file(self.engine.url))
+        return self._keyring
+
+    def session_info(self) -> dict[str, Any]:
+        """What every session of this register carries (its keyring)."""
+        return {SESSION_INFO: self.keyring}
+
     @contextmanager
     def reading(self) -> Iterator[Session]:
         """A session for reads; nothing it does is committed. A read the database refuses
         to the connected role (a login without rights on a table) is one
         :class:`PermissionDenied` line, as it is for :meth:`write`."""
-        with Session(self.engine, expire_on_commit=False) as session:
+        with Session(self.engine, expire_on_commit=False, info=self.session_info()) as session:
             try:
                 yield session
             except DBAPIError as exc:
@@ -249,7 +271,7 @@ class Register:
         with self.engine.connect() as connection:
             connection.execution_options(issuer_write=True)
             heard: list[str] = connection.info.get(_WARNINGS, [])
-            with Session(bind=connection, expire_on_commit=False) as session:
+            with Session(bind=connection, expire_on_commit=False, info=self.session_info()) as session:
                 with session.begin():
                     yield session
                     heard.clear()  # only what the COMMIT itself brings counts
@@ -322,12 +344,15 @@ def open_register(
     busy_timeout_ms: int = 15000,
     upgrade: bool = True,
     create: bool = True,
+    key_file: str | os.PathLike[str] | None = None,
 ) -> Register:
     """Open (upgrading as needed) the register at ``database``.
 
     With ``create=False`` a missing SQLite file, or a database without issuer's tables,
     raises :class:`NoRegister` and nothing is made: a mistyped path must not become an
     empty register. ``create=True`` makes the register there when there is none.
+    ``key_file`` is where the scatter keys are sealed (default: :func:`default_key_file`);
+    it is made when the register is made.
     """
     limits.text("actor", actor)
     url = database_url(database)
@@ -337,7 +362,7 @@ def open_register(
         engine = make_engine(url, busy_timeout_ms=busy_timeout_ms)
     except (ArgumentError, ImportError) as exc:
         raise RegisterError(f"cannot open the register {database}: {exc}") from None
-    register = Register(engine=engine, actor=actor, clock=clock)
+    register = Register(engine=engine, actor=actor, clock=clock, key_file=key_path(key_file))
     try:
         revision = register.schema_revision()
     except DBAPIError as exc:
@@ -355,7 +380,7 @@ def open_register(
         from issuer.register.migrate import upgrade_to_head
 
         try:
-            upgrade_to_head(register.engine)
+            upgrade_to_head(register.engine, register.keyring)
         except IssuerError:
             raise
         except DBAPIError as exc:

@@ -64,6 +64,21 @@ __all__ = [
 ]
 
 
+def domain_digits(radix: int, capacity: int) -> int:
+    """Numerals per FF1 string for a range of ``capacity`` numbers: the fewest with
+    radix**digits >= capacity and >= 100."""
+    digits = 2
+    while radix**digits < max(capacity, MIN_DOMAIN):
+        digits += 1
+    return digits
+
+
+def range_is_protected(radix: int, start: int, end: int) -> bool:
+    """Whether a scattered range's FF1 domain reaches NIST SP 800-38G Rev. 1's one million
+    (what :attr:`ScatterPermutation.is_protected` says, known without the key)."""
+    return int(radix ** domain_digits(radix, end - start + 1)) >= PROTECTED_DOMAIN
+
+
 def new_key() -> bytes:
     """A fresh AES-256 key for a scattered series, from the operating system's CSPRNG."""
     return secrets.token_bytes(KEY_BYTES)
@@ -116,10 +131,7 @@ class ScatterPermutation:
     @cached_property
     def digits(self) -> int:
         """Numerals per FF1 string: the fewest with radix**digits >= capacity and >= 100."""
-        digits = 2
-        while self.radix**digits < max(self.capacity, MIN_DOMAIN):
-            digits += 1
-        return digits
+        return domain_digits(self.radix, self.capacity)
 
     @property
     def domain_size(self) -> int:

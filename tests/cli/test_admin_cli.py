@@ -63,8 +63,12 @@ def test_backup_is_owner_only_checked_and_complete(cli: Any, db_path: Path, tmp_
     data = json.loads(result.stdout)
     assert data["destination"] == str(target) and data["size"] == target.stat().st_size
     assert stat.S_IMODE(target.stat().st_mode) == 0o600
-    # one self-contained file: no journal or WAL beside it, nothing half-written left over
-    assert sorted(p.name for p in target.parent.iterdir()) == [target.name]
+    # one self-contained file: no journal or WAL beside it, nothing half-written left over;
+    # the register's key file is copied beside it, owner-only, so the copy issues when restored
+    assert sorted(p.name for p in target.parent.iterdir()) == [target.name, target.name + ".key"]
+    assert data["key_file"] == str(target) + ".key"
+    assert Path(data["key_file"]).read_bytes() == db_path.with_name(db_path.name + ".key").read_bytes()
+    assert stat.S_IMODE(Path(data["key_file"]).stat().st_mode) == 0o600
     with sqlite3.connect(target) as copy:
         assert copy.execute("PRAGMA integrity_check").fetchall() == [("ok",)]
         assert copy.execute("PRAGMA journal_mode").fetchone() == ("delete",)
@@ -155,7 +159,16 @@ def test_backup_of_a_postgres_register_prints_pg_dump(pg_url: str, tmp_path: Pat
         target = pg_database_url(restored).replace("postgresql+psycopg://", "postgresql://")
         restore = [f"--dbname={target}" if arg.startswith("--dbname=") else arg for arg in data["restore"]]
         subprocess.run(restore, check=True, capture_output=True)
-        facts = assert_consistent(pg_database_url(restored, schema=schema))
+        # a register restored under another name finds its key file where it is told to:
+        # here, a copy at the new name's default place
+        from issuer.register.sealing import default_key_file
+
+        restored_url = pg_database_url(restored, schema=schema)
+        assert data["key_file"] == str(default_key_file(pg_url))
+        key = default_key_file(restored_url)
+        key.parent.mkdir(parents=True, exist_ok=True)
+        shutil.copyfile(data["key_file"], key)
+        facts = assert_consistent(restored_url)
         assert facts.series_next == {"tools": 121, "members": 80}
 
 

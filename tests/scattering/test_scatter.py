@@ -18,7 +18,7 @@ from issuer.scattering.ff1 import (
     num_radix,
     str_radix,
 )
-from issuer.scattering.scatter import MAX_BASE, PROTECTED_DOMAIN, ScatterPermutation, new_key
+from issuer.scattering.scatter import MAX_BASE, PROTECTED_DOMAIN, ScatterPermutation, new_key, range_is_protected
 
 FAST = settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 
@@ -260,6 +260,9 @@ def test_is_protected_boundary() -> None:
     assert not ScatterPermutation(KEY, 2, 0, 2**19 - 1).is_protected  # 524,288
     assert ScatterPermutation(KEY, 2, 0, 2**19).is_protected  # 1,048,576
     assert not ScatterPermutation(KEY, 36, 0, 36**3 - 1).is_protected  # 46,656
+    # the register knows it without the key (a sealed key needs the key file to open)
+    for radix, start, end in [(10, 0, 99_999), (10, 0, 100_000), (2, 0, 2**19 - 1), (2, 0, 2**19), (36, 0, 36**3 - 1)]:
+        assert range_is_protected(radix, start, end) == ScatterPermutation(KEY, radix, start, end).is_protected
     assert ScatterPermutation(KEY, 36, 0, 36**3).is_protected  # 36**4 = 1,679,616
 
 
