@@ -25,6 +25,7 @@ from sqlalchemy import text
 from sqlalchemy.orm import Session
 
 from issuer.register.models import ISSUED, SUSPENDED, VOIDED
+from issuer.register.series import SERIES_SETTINGS
 
 #: "the log does not say" (an entry written before the log carried this particular)
 UNKNOWN: Any = object()
@@ -46,6 +47,11 @@ class CodeExpect:
     seen_at: str | None = None
     seen_where: str | None = None
     expected_where: str | None = None
+    #: (since, by, reason) while suspended, None when not; UNKNOWN: as an imported file said
+    suspension: Any = None
+    #: what the last renewal made it (UNKNOWN: as its batch made it; issue entries do not say)
+    valid_until: Any = UNKNOWN
+    erased_at: datetime | None = None
     last_entry: int = 0
 
 
@@ -137,6 +143,7 @@ def _restore(replay: Replay, e: Entry) -> None:
     if e.code is not None:
         code = replay.code(e.code, e.id)
         code.status, code.void_reason, code.voided_by, code.voided_at = ISSUED, None, None, None
+        code.suspension = None  # a restore clears a suspension too
 
 
 def _printed(replay: Replay, e: Entry) -> None:
@@ -153,19 +160,38 @@ def _seen(replay: Replay, e: Entry) -> None:
 
 
 def _holder(replay: Replay, e: Entry) -> None:
-    """Holder set, cleared or erased: the log carries no holder text, so from here on the
-    holder and note are whatever the register holds."""
+    """Holder set or cleared: the log carries no holder text, so from here on the holder
+    and note are whatever the register holds (their search keys must still match them)."""
     if e.code is not None:
         code = replay.code(e.code, e.id)
         code.holder = code.note = UNKNOWN
 
 
-def _status(status: str) -> Effect:
-    def effect(replay: Replay, e: Entry) -> None:
-        if e.code is not None:
-            replay.code(e.code, e.id).status = status
+def _erased(replay: Replay, e: Entry) -> None:
+    """Holder and note erased: both gone for good, and when is logged."""
+    if e.code is not None:
+        code = replay.code(e.code, e.id)
+        code.holder = code.note = None
+        code.erased_at = e.at
 
-    return effect
+
+def _suspended(replay: Replay, e: Entry) -> None:
+    if e.code is not None:
+        code = replay.code(e.code, e.id)
+        code.status = SUSPENDED
+        # an import takes the time from its file; otherwise the act's own moment and actor
+        code.suspension = UNKNOWN if e.detail.get("imported") else (e.at, e.actor, e.detail.get("reason"))
+
+
+def _reinstated(replay: Replay, e: Entry) -> None:
+    if e.code is not None:
+        code = replay.code(e.code, e.id)
+        code.status, code.suspension = ISSUED, None
+
+
+def _renewed(replay: Replay, e: Entry) -> None:
+    if e.code is not None and "valid_until" in e.detail:
+        replay.code(e.code, e.id).valid_until = e.detail["valid_until"]
 
 
 def _placed(replay: Replay, e: Entry) -> None:
@@ -183,10 +209,14 @@ def _series(replay: Replay, e: Entry) -> None:
     shape = replay.series.setdefault(e.series_id, {})
     if isinstance(stored, dict):  # a change: the columns that moved, as stored
         shape.update(stored)
+        # a field the change names without its stored value (an older entry): no longer known
+        for name in e.detail:
+            if name in SERIES_SETTINGS and name not in stored:
+                shape.pop(name, None)
         return
     named = {"start": "range_start", "end": "range_end"}
     known = {"key", "scheme", "alphabet", "length", "prefix", "suffix", "grouping", "separator",
-             "mode", "start", "end", "title", "scatter_key_sha256"}  # fmt: skip
+             "mode", "start", "end", "title", "scatter_key_sha256", *SERIES_SETTINGS}  # fmt: skip
     for name, value in e.detail.items():
         if e.action == "series.add" and name in known:
             shape[named.get(name, name)] = value
@@ -214,10 +244,10 @@ ACTS: dict[str, Effect] = {
     "seen": _seen,
     "holder.set": _holder,
     "holder.clear": _holder,
-    "holder.erase": _holder,
-    "suspend": _status(SUSPENDED),
-    "reinstate": _status(ISSUED),
-    "renew": _nothing,  # validity moves on; the status stays what it was
+    "holder.erase": _erased,
+    "suspend": _suspended,
+    "reinstate": _reinstated,
+    "renew": _renewed,  # validity moves on; the status stays what it was
     "placed": _placed,
     "stocktake": _nothing,
     # stock counts keep their own tables; access tokens theirs: no code, batch or series changes

@@ -15,11 +15,12 @@ from issuer.register.log import rows_digest, timestamp_text
 from issuer.register.models import ISSUED, batch_range_sql
 from issuer.register.replay import UNKNOWN, CodeExpect, Replay, replay_log, same_time, stored_time
 from issuer.register.sealing import KeyFileError, fingerprint, keyring_of
-from issuer.register.series import SHAPE_COLUMNS
+from issuer.register.series import SERIES_SETTINGS, SHAPE_COLUMNS
 
 _CODE_ROWS = (
     "SELECT c.code, c.status, c.void_reason, c.holder, r1.code, r2.code, c.print_count, c.batch_id, "
-    "c.voided_by, c.voided_at, c.last_seen_at, c.last_seen_where, c.note, c.expected_where FROM issued_code c "
+    "c.voided_by, c.voided_at, c.last_seen_at, c.last_seen_where, c.note, c.expected_where, "
+    "c.suspended_at, c.suspended_by, c.suspend_reason, c.erased_at, c.valid_until FROM issued_code c "
     "LEFT JOIN issued_code r1 ON r1.id = c.replaces_id LEFT JOIN issued_code r2 ON r2.id = c.replaced_by_id "
 )
 
@@ -46,6 +47,7 @@ def _code_problems(replay: Replay, row: Any, expect: CodeExpect) -> list[str]:
             problems.append(f"{code}: {name} is {held!r}, the log's acts imply {implied!r}{where}")
     if expect.voided_at is not UNKNOWN and not same_time(row[9], expect.voided_at):
         problems.append(f"{code}: voided at {row[9]}, the log's acts imply {expect.voided_at}{where}")
+    problems += _standing_problems(row, expect, code, where)
     if batch is None or batch.complete:
         held_seen = timestamp_text(row[10]) if isinstance(row[10], datetime) else row[10]
         if held_seen != expect.seen_at or row[11] != expect.seen_where:
@@ -53,6 +55,59 @@ def _code_problems(replay: Replay, row: Any, expect: CodeExpect) -> list[str]:
                             f"{expect.seen_at} at {expect.seen_where!r}{where}")  # fmt: skip
         if row[13] != expect.expected_where:
             problems.append(f"{code}: expected at {row[13]!r}, the log's placings say {expect.expected_where!r}{where}")
+    return problems
+
+
+def _moment(value: Any) -> Any:
+    """A stored time as an aware datetime, or the stored value itself when it is none."""
+    try:
+        return stored_time(value)
+    except (TypeError, ValueError):
+        return value
+
+
+def _same(held: Any, implied: Any) -> bool:
+    held, implied = _moment(held), _moment(implied)
+    if isinstance(held, datetime) and isinstance(implied, datetime):
+        return held == implied
+    return bool(held == implied)
+
+
+def _standing_problems(row: Any, expect: CodeExpect, code: str, where: str) -> list[str]:
+    """Suspension, erasure and validity against the suspend, reinstate, restore, erase and
+    renew acts that name the code."""
+    problems = []
+    held = (row[14], row[15], row[16])
+    if expect.suspension is None and held != (None, None, None):
+        problems.append(f"{code}: suspended since {row[14]} by {row[15]} ({row[16]!r}), "
+                        f"but the log's acts leave it unsuspended{where}")  # fmt: skip
+    elif expect.suspension not in (None, UNKNOWN):
+        since, by, reason = expect.suspension
+        if not (_same(row[14], since) and row[15] == by and row[16] == reason):
+            problems.append(f"{code}: suspended since {row[14]} by {row[15]} ({row[16]!r}), "
+                            f"the log says since {since} by {by} ({reason!r}){where}")  # fmt: skip
+    if not _same(row[17], expect.erased_at):
+        problems.append(f"{code}: erased at {row[17]}, the log's acts imply {expect.erased_at}{where}")
+    if expect.valid_until is not UNKNOWN and not _same(row[18], expect.valid_until):
+        problems.append(f"{code}: valid until {row[18]}, its last renewal says {expect.valid_until}{where}")
+    return problems
+
+
+def _search_key_problems(session: Session) -> list[str]:
+    """Each holder's and note's search key is the one their text makes (a key edited
+    alone would make ``find`` answer for a holder the code does not have)."""
+    from issuer.register.standing import search_key
+
+    problems = []
+    rows = session.execute(text(
+        "SELECT code, holder, holder_key, note, note_key FROM issued_code WHERE holder IS NOT NULL "
+        "OR holder_key IS NOT NULL OR note IS NOT NULL OR note_key IS NOT NULL ORDER BY id"
+    ), execution_options={"yield_per": 50_000})  # fmt: skip
+    for code, holder, holder_key, note, note_key in rows:
+        if holder_key != search_key(holder):
+            problems.append(f"{code}: its holder's search key is not the one its holder makes")
+        if note_key != search_key(note):
+            problems.append(f"{code}: its note's search key is not the one its note makes")
     return problems
 
 
@@ -68,7 +123,7 @@ def replay_problems(session: Session) -> tuple[list[str], list[str], int]:
         for row in session.execute(text(_CODE_ROWS + f"WHERE c.code IN ({marks})"), params):
             found.add(row[0])
             fixed = list(row)
-            fixed[9], fixed[10] = stored_time(row[9]), stored_time(row[10])
+            fixed[9], fixed[10] = _moment(row[9]), _moment(row[10])
             problems += _code_problems(replay, fixed, replay.codes[row[0]])
     problems += [f"{code}: named by log entry #{replay.codes[code].last_entry} but not in the register"
                  for code in named if code not in found]  # fmt: skip
@@ -80,7 +135,8 @@ def replay_problems(session: Session) -> tuple[list[str], list[str], int]:
         "WHERE c.status <> 'issued' OR c.void_reason IS NOT NULL OR c.replaces_id IS NOT NULL "
         "OR c.replaced_by_id IS NOT NULL OR c.print_count <> 0 OR c.last_seen_at IS NOT NULL "
         "OR c.last_seen_where IS NOT NULL OR c.voided_at IS NOT NULL OR c.voided_by IS NOT NULL "
-        "OR c.expected_where IS NOT NULL"
+        "OR c.expected_where IS NOT NULL OR c.suspended_at IS NOT NULL OR c.suspended_by IS NOT NULL "
+        "OR c.suspend_reason IS NOT NULL OR c.erased_at IS NOT NULL"
     )):
         batch = replay.batches.get(row[10])
         if row[0] not in replay.codes and (batch is None or batch.complete or row[1] != ISSUED):
@@ -92,6 +148,7 @@ def replay_problems(session: Session) -> tuple[list[str], list[str], int]:
     problems += _batch_problems(session, replay)
     problems += _series_problems(session, replay)
     problems += _text_problems(session)
+    problems += _search_key_problems(session)
     trees = session.execute(text("SELECT count(*) FROM log_tree")).scalar_one()
     if trees != 1:
         problems.append(f"log_tree holds {trees} rows; the sealed tree has one")
@@ -179,11 +236,15 @@ def _text_problems(session: Session) -> list[str]:
 
 def _series_problems(session: Session, replay: Replay) -> list[str]:
     problems = []
-    columns = ", ".join(SHAPE_COLUMNS)
+    named = (*SHAPE_COLUMNS, *SERIES_SETTINGS)
+    columns = ", ".join(named)
+    held_ids: set[int] = set()
     for row in session.execute(text(
         f"SELECT id, created_by, created_at, scatter_key, {columns} FROM series ORDER BY id"
     )):
-        series_id, created_by, held = row[0], row[1], dict(zip(SHAPE_COLUMNS, row[4:]))
+        series_id, created_by, held = row[0], row[1], dict(zip(named, row[4:]))
+        held["holds_people"] = bool(held["holds_people"])  # SQLite keeps 0/1
+        held_ids.add(int(series_id))
         if row[3] is None:
             held["scatter_key_sha256"] = None
         else:  # the key is sealed: its fingerprint is the raw key's, opened with the key file
@@ -201,4 +262,9 @@ def _series_problems(session: Session, replay: Replay) -> list[str]:
         for column, implied in replay.series.get(series_id, {}).items():
             if column in held and str(held[column]) != str(implied):
                 problems.append(f"series {held['key']}: {column} is {held[column]!r}, the log implies {implied!r}")
+    # a series the log defined is gone (a superuser's replica mode skips the foreign keys)
+    for series_id, (entry, _actor, _at) in sorted(replay.series_entry.items()):
+        if series_id not in held_ids:
+            key = replay.series.get(series_id, {}).get("key", f"#{series_id}")
+            problems.append(f"series {key}: defined by log entry #{entry}, it is missing from the register")
     return problems

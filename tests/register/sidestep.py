@@ -50,6 +50,13 @@ def sidestep(connection: Connection, statement: str, params: dict[str, Any] | No
         connection.exec_driver_sql(sql)
 
 
+def as_replica(connection: Connection, statement: str, params: dict[str, Any] | None = None) -> None:
+    """Run ``statement`` as a superuser who sets ``session_replication_role = replica`` for
+    the transaction (PostgreSQL): ordinary triggers stay silent, ALWAYS triggers fire."""
+    connection.execute(text("SET LOCAL session_replication_role = replica"))
+    connection.execute(text(statement), params or {})
+
+
 def sql_behind_the_back(url: str, statement: str, **params: Any) -> None:
     """One statement in its own transaction, side-stepping the triggers."""
     engine = create_engine(database_url(url))

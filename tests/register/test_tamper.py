@@ -39,15 +39,16 @@ from issuer.register.stocktake import record_sightings
 from issuer.register.store import Register, database_url, open_register
 from tests.register.desks import LONG
 from tests.register.pg import pg_database, pg_url, register_url  # noqa: F401
-from tests.register.sidestep import sidestep
+from tests.register.sidestep import as_replica, sidestep
 
 NOW = datetime(2026, 5, 4, 10, 0, tzinfo=UTC)
 
-#: columns of the holders work whose edits the replay cannot judge yet (see the closing report)
-NOT_YET_REPLAYED = frozenset((
-    "holder", "holder_key", "note", "valid_until", "suspended_at", "suspended_by", "suspend_reason",
-    "erased_at", "holds_people", "valid_for_days", "fill_levels",
-))
+#: columns whose single edits the replay cannot always judge, and why:
+#: * valid_until of a code never renewed: issue entries do not log it (a renewal's is replayed);
+#: * holder and note text: the log keeps no personal data. An edit of the text alone is caught
+#:   through its search key (``holder_key`` must be what the text makes), but an edit of text
+#:   and key together is not: no digest of the texts is chained yet.
+NOT_YET_REPLAYED = frozenset(("valid_until", "holder", "holder_key", "note", "note_key"))
 
 
 @dataclass
@@ -96,6 +97,16 @@ def build(url: str, folder: Path) -> Scene:
     legacy = folder / "old-register.csv"
     legacy.write_text(f"code,holder,status,void_reason\n{imported[0]},Bea Loom,issued,\n{imported[1]},,voided,broken\n")
     import_codes(register, "tools", read_table(legacy, roles=IMPORT_ROLES))
+    # a stock count with one scan file, and the service's token
+    from issuer.register.counting import CountScope, add_scan_file, open_count
+    from issuer.register.tokens import add_token
+    from issuer.stocktake.counts import read_scan_file
+
+    open_count(register, "spring", "tools", CountScope(), zone="UTC")
+    scans = folder / "shelf-b.txt"
+    scans.write_text(f"{tools[3]}\n{tools[4]}\n")
+    add_scan_file(register, "spring", read_scan_file(scans, zone="UTC", scanner="wand 2"))
+    add_token(register, "front-desk", "clerk")
     register.close()
     codes = {"voided": tools[0], "replaced": tools[1], "replacement": new, "restored": tools[2],
              "printed": tools[3], "seen": tools[4], "plain": tools[5], "member": members[1],
@@ -122,7 +133,7 @@ def healthy(scene: Scene) -> tuple[bool, list[str]]:
 
 def _changed(value: Any, column: str, ids: list[int]) -> Any:
     """A different value of the same kind."""
-    if isinstance(value, bool):
+    if isinstance(value, bool) or column == "holds_people":  # SQLite keeps a flag as 0/1
         return not value
     if column == "status":
         return "voided" if value == "issued" else "issued"
@@ -143,8 +154,14 @@ def _changed(value: Any, column: str, ids: list[int]) -> Any:
         data = bytearray(bytes(value))
         data[0] ^= 0x01
         return bytes(data)
-    if value is None:
-        return "tampered" if column not in ("voided_at", "last_seen_at") else NOW
+    if value is None:  # a value of the column's own kind, so the database takes it
+        if column.endswith("_at") or column == "valid_until":
+            return NOW
+        if column in ("scatter_key", "salt", "digest"):
+            return b"tampered"
+        if column in ("valid_for_days", "scope_first", "scope_last", "replaces_id", "replaced_by_id"):
+            return 7
+        return "tampered"
     if column in ("detail",):
         return value.replace("}", ', "x": 1}') if value != "{}" else '{"x": 1}'
     if column in ("hash", "prev_hash", "last_hash"):
@@ -152,6 +169,10 @@ def _changed(value: Any, column: str, ids: list[int]) -> Any:
     if column == "code":
         return value[:-1] + ("0" if value[-1] != "0" else "1")
     return value + "x" if value else "x"
+
+
+def _first(connection: Connection, table: str) -> int:
+    return int(connection.execute(text(f"SELECT min(id) FROM {table}")).scalar_one())
 
 
 def _rows(connection: Connection, scene: Scene) -> dict[str, list[tuple[str, dict[str, Any]]]]:
@@ -174,6 +195,10 @@ def _rows(connection: Connection, scene: Scene) -> dict[str, list[tuple[str, dic
                       if LONG or c != 0],
         "log_leaf": [(f"leaf {p}", {"position": p}) for p in leaves if LONG or p in (leaves[len(leaves) // 2], leaves[-1])],
         "log_tree": [("tree", {"id": 1})],
+        "stock_count": [("spring", {"id": _first(connection, "stock_count")})],
+        "stock_count_file": [("shelf-b.txt", {"id": _first(connection, "stock_count_file")})],
+        "stock_count_scan": [("line 1", {"id": _first(connection, "stock_count_scan")})],
+        "access_token": [("front-desk", {"id": _first(connection, "access_token")})],
         "alembic_version": [("version", {"version_num": connection.execute(
             text("SELECT version_num FROM alembic_version")).scalar_one()})],
     }
@@ -245,11 +270,11 @@ class Outcome:
     checks: list[str]
 
 
-def judge(scene: Scene, edit: Edit, before: list[dict[str, Any]]) -> Outcome:
+def judge(scene: Scene, edit: Edit, before: list[dict[str, Any]], how: Any = sidestep) -> Outcome:
     engine = scene.desk().engine  # the tamperer's connection: plain SQL, no tool in between
     try:
         with engine.begin() as connection:
-            sidestep(connection, edit.statement, edit.params)
+            how(connection, edit.statement, edit.params)
     except DBAPIError:
         return Outcome(edit, "refused", False, [])
     try:
@@ -269,24 +294,34 @@ def scene(register_url: str, tmp_path: Path) -> Iterator[Scene]:  # noqa: F811
     made.desk().close()
 
 
-def test_every_single_row_edit_is_refused_or_caught_when_it_changes_an_answer(scene: Scene) -> None:
-    assert healthy(scene) == (True, [])
-    before = answers(scene)
-    outcomes = [judge(scene, edit, before) for edit in edits(scene)]
+def _report(scene: Scene, outcomes: list[Outcome], how: str) -> list[str]:
+    """Print the figures; the names of the missed edits that change a check answer and
+    are not in the list of columns the replay cannot judge yet."""
     total = len(outcomes)
     caught = sum(o.result != "missed" for o in outcomes)
-    significant = [o for o in outcomes if o.changes_answers or o.result != "missed" and o.result != "refused"]
     answering = [o for o in outcomes if o.changes_answers]
     missed = [o for o in outcomes if o.result == "missed"]
     backend = scene.url.split(":", 1)[0] if "://" in scene.url else "sqlite"
-    print(f"\ntamper suite ({backend}): {caught}/{total} single-row edits refused or caught by doctor; "
+    print(f"\ntamper suite ({backend}, {how}): {caught}/{total} single-row edits refused or caught by doctor; "
           f"{sum(o.result != 'missed' for o in answering)}/{len(answering)} of those that change a check answer; "
           f"missed: {[o.edit.name for o in missed]}")  # fmt: skip
-    del significant
-    # the holders work (issue 12) landed last: its columns are not replayed yet (the log
-    # carries no holder text); they are reported above and listed here, nothing else may be missed
     pending = [o.edit.name for o in answering if o.result == "missed" and o.edit.kind.split()[-1] in NOT_YET_REPLAYED]
-    print(f"not yet replayed (holders, validity, suspension): {pending}")
-    assert [o.edit.name for o in answering if o.result == "missed" and o.edit.name not in pending] == []
+    print(f"not replayed (valid_until before a renewal; holder and note text): {pending}")
+    return [o.edit.name for o in answering if o.result == "missed" and o.edit.name not in pending]
+
+
+def test_every_single_row_edit_is_refused_or_caught_when_it_changes_an_answer(scene: Scene) -> None:
+    assert healthy(scene) == (True, [])
+    before = answers(scene)
+    found = edits(scene)
+    # every table of the register is edited (a new table must join the suite)
+    assert {e.table for e in found} == set(Base.metadata.tables) | {"alembic_version"}
+    outcomes = [judge(scene, edit, before) for edit in found]
+    assert _report(scene, outcomes, "triggers disabled") == []
+    if "://" in scene.url:  # a superuser's replica mode: only ALWAYS triggers still fire
+        replica = [judge(scene, edit, before, how=as_replica) for edit in found]
+        # replica mode also silences the foreign keys (their triggers are not ALWAYS): a series,
+        # count or file row can go missing; each such edit must still be caught or change no answer
+        assert _report(scene, replica, "session_replication_role = replica") == []
     assert healthy(scene) == (True, []), "an edit was not undone"
     assert answers(scene) == before
