@@ -98,7 +98,8 @@ def build(url: str, folder: Path) -> Scene:
     legacy.write_text(f"code,holder,status,void_reason\n{imported[0]},Bea Loom,issued,\n{imported[1]},,voided,broken\n")
     import_codes(register, "tools", read_table(legacy, roles=IMPORT_ROLES))
     # a stock count with one scan file, and the service's token
-    from issuer.register.counting import CountScope, add_scan_file, open_count
+    from issuer.register.counting import CountScope, open_count
+    from issuer.register.scanfiles import add_scan_file
     from issuer.register.tokens import add_token
     from issuer.stocktake.counts import read_scan_file
 
