@@ -43,12 +43,12 @@ from issuer.checking.likely import rank
 from issuer.errors import InvalidFormat, OutOfLimits
 from issuer.readers.bulkread import BAD_CHECK, MALFORMED, read_codes
 from issuer.readers.scanfile import Table, read_table
+from issuer.register.codeset import CodeSet
 from issuer.register.counting import CountInfo, scope_query_filter
 from issuer.register.models import EXPIRED, ISSUED, SUSPENDED, VOIDED
 from issuer.register.places import codes_of_other_series, expected_places, same_place, scope_codes
 from issuer.register.series import code_format, get_series
 from issuer.register.stocktake import (
-    CodeSet,
     Sighting,
     held_codes,
     last_seen,

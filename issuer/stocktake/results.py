@@ -11,9 +11,10 @@ from typing import Any
 from issuer.checking.codes import CodeFormat
 from issuer.checking.likely import advice
 from issuer.readers.scanfile import Table
+from issuer.register.codeset import CodeSet
 from issuer.register.models import ISSUED
 from issuer.register.places import OtherSeries
-from issuer.register.stocktake import CodeSet, LastSeen, StandingDetail, VoidDetail
+from issuer.register.stocktake import LastSeen, StandingDetail, VoidDetail
 
 #: the classes of a scanned line, in report order
 LINE_CLASSES = (

@@ -7,7 +7,7 @@ import numpy as np
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from issuer.register.stocktake import CodeSet
+from issuer.register.codeset import CodeSet
 from issuer.stocktake.results import Tally
 
 DIGITS = "0123456789"
