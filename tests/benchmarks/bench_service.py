@@ -13,6 +13,7 @@ Run from the repository root: .venv/bin/python tests/benchmarks/bench_service.py
 
 from __future__ import annotations
 
+import os
 import sys
 import tempfile
 import time
@@ -39,6 +40,7 @@ def measure(url: str, issues: int) -> None:
     with served(url) as base:
         for token in tokens.values():  # each token's slow hash once, before the clock runs
             httpx.get(f"{base}/api/v1/series", headers={"Authorization": f"Bearer {token}"}, timeout=120)
+        loaded = os.getloadavg()[0]
         began = time.perf_counter()
         result = run_load(base, tokens["clerk"], tokens["admin"], clients=CLIENTS, issues=issues)
         wall = time.perf_counter() - began
@@ -48,7 +50,8 @@ def measure(url: str, issues: int) -> None:
     assert result.server_errors == 0
     bare50, bare99 = (percentile(result.latency["bare"], q) * 1000 for q in (0.5, 0.99))
     print(f"  {len(codes):,} issues by {CLIENTS} clients in {wall:.1f} s "
-          f"({len(codes) / wall:.0f} issues/s), 0 duplicates, 0 5xx")
+          f"({len(codes) / wall:.0f} issues/s), 0 duplicates, 0 5xx; "
+          f"machine load (1-min average) {loaded:.1f} before, {os.getloadavg()[0]:.1f} after")
     for op in ("check", "issue", "void"):
         values = result.latency[op]
         if not values:
