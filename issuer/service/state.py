@@ -94,7 +94,8 @@ class ServiceState:
         return await asyncio.wrap_future(self._submit(work, writing=True))
 
     def write_blocking(self, work: Callable[[], T]) -> T:
-        """:meth:`write` for code already running in a worker thread."""
+        """:meth:`write` for code already running in a worker thread of the server's own
+        pool, never on the register's threads (on PostgreSQL it could wait on itself)."""
         return self._submit(work, writing=True).result()
 
     def close(self) -> None:
