@@ -80,7 +80,8 @@ def check_schema(revision: str | None) -> Finding:
 def check_log(session: Session) -> Finding:
     report = verify_chain(session)
     if report.problem is None:
-        return Finding("log chain", OK, f"{report.entries} entries, chain intact up to #{report.head_id}")
+        return Finding("log chain", OK, f"{report.entries} entries in {report.chains} chain(s) intact up to "
+                                        f"#{report.head_id}; {report.tree_size} sealed")
     return Finding(
         "log chain", PROBLEM,
         f"the chain breaks at entry {report.problem.entry_id}",

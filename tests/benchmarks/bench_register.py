@@ -92,14 +92,17 @@ def raw_same_work_rate(folder: Path, count: int = 300) -> float:
         raw.execute("UPDATE batch SET code_id_to = (SELECT max(id) FROM issued_code) WHERE id = ?", (batch,))
         raw.execute("UPDATE series SET next_counter=?, code_count=code_count+1 WHERE id=?",
                     (counter + 1, series_id))
-        last_id, last_hash = raw.execute("SELECT last_id, last_hash FROM log_head WHERE id=1").fetchone()
+        raw.execute("INSERT OR IGNORE INTO log_chain (chain, last_id, last_hash) VALUES (?, 0, ?)",
+                    (series_id, "0" * 64))  # the series' own chain, as the tool appends
+        last_hash = raw.execute("SELECT last_hash FROM log_chain WHERE chain=?", (series_id,)).fetchone()[0]
+        last_id = raw.execute("SELECT coalesce(max(id), 0) FROM log_entry").fetchone()[0]
         digest = hashlib.sha256(json.dumps([last_id, last_hash, code]).encode()).hexdigest()
         raw.execute(
             "INSERT INTO log_entry (id, at, actor, action, series_id, code, batch_id, detail, "
-            "prev_hash, hash) VALUES (?, ?, 'b', 'issue', ?, ?, ?, '{}', ?, ?)",
-            (last_id + 1, at, series_id, code, batch, last_hash, digest),
+            "prev_hash, hash, chain) VALUES (?, ?, 'b', 'issue', ?, ?, ?, '{}', ?, ?, ?)",
+            (last_id + 1, at, series_id, code, batch, last_hash, digest, series_id),
         )
-        raw.execute("UPDATE log_head SET last_id=?, last_hash=? WHERE id=1", (last_id + 1, digest))
+        raw.execute("UPDATE log_chain SET last_id=?, last_hash=? WHERE chain=?", (last_id + 1, digest, series_id))
         raw.execute("COMMIT")
     return count / (time.perf_counter() - start)
 
