@@ -32,6 +32,8 @@ from issuer.errors import IssuerError
 RECENT = 20
 #: after this long an unfinished act says that it is waiting
 SLOW_S = 0.4
+#: an act that takes longer than this says what it is doing (a quick answer redraws only once)
+BUSY_S = 0.15
 
 CAUTION = "A check character catches mistakes, not fraud."
 
@@ -214,14 +216,15 @@ class CounterApp(App[None]):
                 text.append(f"\nlast seen {record.last_seen_at:%Y-%m-%d %H:%M} UTC{where}")
         self.query_one("#answer", Static).update(text)
         suggestions = self.query_one("#suggestions", OptionList)
-        suggestions.clear_options()
+        if suggestions.option_count:
+            suggestions.clear_options()
         if answer.suggestions:
             suggestions.add_options(
                 Option(f"{n}. {s.display}  ({s.description})", id=s.code)
                 for n, s in enumerate(answer.suggestions, 1)
             )
             suggestions.add_class("shown")
-        else:
+        elif suggestions.has_class("shown"):
             suggestions.remove_class("shown")
         symbol, words, _ = looks(answer.status)
         self.remember(answer.code or answer.input, f"{symbol} {answer.display or answer.input}  {words}")
@@ -246,29 +249,41 @@ class CounterApp(App[None]):
     def run_act(self, work_fn: Callable[[], Any], then: Callable[[Any], None], what: str) -> None:
         self.busy += 1
         status = self.query_one("#status", Static)
-        status.update(f"⋯ {what}…")
-        timer = self.set_timer(SLOW_S, lambda: status.update(f"⋯ {what}: waiting for another desk…"))
-        self._worker(work_fn, then, timer)
+        timers = [
+            self.set_timer(BUSY_S, lambda: status.update(f"⋯ {what}…")),
+            self.set_timer(SLOW_S, lambda: status.update(f"⋯ {what}: waiting for another desk…")),
+        ]
+        self._worker(work_fn, then, timers)
 
     @work(thread=True, group="register")
-    def _worker(self, work_fn: Callable[[], Any], then: Callable[[Any], None], timer: Any) -> None:
+    def _worker(self, work_fn: Callable[[], Any], then: Callable[[Any], None], timers: list[Any]) -> None:
         try:
             result = work_fn()
         except IssuerError as exc:
-            self.call_from_thread(self._done, timer, lambda: self.say(f"✗ {exc.message}", "bold red"))
+            self.call_from_thread(self._done, timers, lambda: self.say(f"✗ {exc.message}", "bold red"))
             return
         except Exception as exc:  # a face never shows a traceback to the clerk
             message = f"✗ the act failed unexpectedly ({type(exc).__name__}); nothing more was done"
-            self.call_from_thread(self._done, timer, lambda: self.say(message, "bold red"))
+            self.call_from_thread(self._done, timers, lambda: self.say(message, "bold red"))
             return
-        self.call_from_thread(self._done, timer, lambda: then(result))
+        self.call_from_thread(self._done, timers, lambda: then(result))
 
-    def _done(self, timer: Any, show: Callable[[], None]) -> None:
-        timer.stop()
+    def _done(self, timers: list[Any], show: Callable[[], None]) -> None:
+        for timer in timers:
+            timer.stop()
         self.busy -= 1
-        self.query_one("#status", Static).update("")
-        self.query_one("#banner", Static).remove_class("shown")
+        if self.busy == 0:  # another act still running keeps its line
+            self._quietly("#status", "")
+        banner = self.query_one("#banner", Static)
+        if banner.has_class("shown"):
+            banner.remove_class("shown")
         show()
+
+    def _quietly(self, selector: str, text: str) -> None:
+        """Set a one-line widget's text, redrawing only when it changes."""
+        widget = self.query_one(selector, Static)
+        if str(widget.render()) != text:
+            widget.update(text)
 
     def reconnecting(self, attempt: int) -> None:
         """Called from a worker when the database connection dropped and is being retried."""

@@ -36,6 +36,7 @@ sys.path.insert(0, str(ROOT))
 
 ROUNDS = int(os.environ.get("BENCH_ROUNDS", "7"))
 SAMPLES = 200  # answers timed per kind
+SCREEN_SAMPLES = 210  # answers timed through the screen (the first 10 warm it)
 
 # The counter as `issuer counter --db X --series tools` starts it (the console script's
 # path: the lazy root group loads only the counter command), headless. Three moments are
@@ -212,8 +213,49 @@ def answers(folder: Path, count: int) -> None:
         print(f"  {name:34}{statistics.median(w):10.2f}{quantile(w, 0.95):8.2f}"
               f"{statistics.median(c):10.2f}{quantile(c, 0.95):8.2f}")  # fmt: skip
     print("  target: every answer under 50 ms")
+    on_screen(desk, stream[:SCREEN_SAMPLES])
     raw.close()
     register.close()
+
+
+def on_screen(desk: object, stream: list[tuple[str, str]]) -> None:
+    """The same answers through the screen (Textual pilot, headless, 120x40): from the
+    scan line's Enter to the answer shown (the worker's call, the hand-over to the
+    screen, the panel and strip updated), and to the next frame drawn after it."""
+    import asyncio
+
+    from issuer.counter.app import CounterApp
+
+    shown_ms: list[float] = []
+    drawn_ms: list[float] = []
+
+    async def run() -> None:
+        app = CounterApp(desk, where="bench")  # type: ignore[arg-type]
+        answered = asyncio.Event()
+        show = app.show_answer
+
+        def show_and_tell(result: object) -> None:
+            show(result)
+            answered.set()
+
+        app.show_answer = show_and_tell  # type: ignore[method-assign]
+        async with app.run_test(size=(120, 40)) as pilot:
+            scan = app.query_one("#scan")
+            for n, (_kind, text) in enumerate(stream):
+                answered.clear()
+                began = time.perf_counter()
+                scan.post_message(scan.Submitted(scan, text))  # type: ignore[attr-defined]
+                await answered.wait()
+                shown = time.perf_counter()
+                await pilot.pause()
+                if n >= 10:  # the first few warm the screen's caches
+                    shown_ms.append((shown - began) * 1000)
+                    drawn_ms.append((time.perf_counter() - began) * 1000)
+
+    asyncio.run(run())
+    print(f"  on the screen (pilot, headless 120x40), {len(shown_ms)} of the same stream; load {os.getloadavg()[0]:.1f}")
+    for name, values in (("Enter to answer shown", shown_ms), ("Enter to the next frame drawn", drawn_ms)):
+        print(f"  {name:34}{statistics.median(values):10.2f}{quantile(values, 0.95):8.2f}   (wall ms)")
 
 
 def main() -> None:
