@@ -3,8 +3,6 @@ the library (the same calls the command line makes), run off the screen's thread
 
 from __future__ import annotations
 
-import secrets
-import tempfile
 import time
 from collections.abc import Callable
 from dataclasses import dataclass, field
@@ -35,7 +33,7 @@ class CounterDesk:
     register: Any
     series: str | None = None
     settings: Any = None
-    label_folder: Path = field(default_factory=lambda: Path(tempfile.gettempdir()))
+    label_folder: Path = field(default_factory=lambda: _temporary_folder())
     on_reconnect: Callable[[int], None] | None = None
 
     # -- reading --------------------------------------------------------------------
@@ -85,6 +83,8 @@ class CounterDesk:
 
         if self.series is None:
             raise IssuerError("choose a series first (F10), or start with --series KEY")
+        import secrets
+
         request_id = f"counter-{secrets.token_hex(8)}"
         return self._again(lambda: issue_codes(
             self.register, self.series or "", 1, holder=holder, note=note, request_id=request_id,
@@ -174,6 +174,12 @@ def open_desk(settings: Any, *, series: str | None = None, label_folder: Path | 
     if folder:
         desk.label_folder = Path(str(folder)).expanduser()
     return desk
+
+
+def _temporary_folder() -> Path:
+    import tempfile  # loaded when a desk is made (behind the screen), not for the first frame
+
+    return Path(tempfile.gettempdir())
 
 
 def _lost(exc: Exception) -> bool:
