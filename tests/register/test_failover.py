@@ -129,12 +129,16 @@ def _all_blocked(count: int) -> Any:
 
 
 def test_no_told_code_is_lost_across_a_failover(pair: ServerPair, tmp_path: Path) -> None:
-    """The story: desks issue; the replication link stalls, so a commit X waits for the
-    standby; X's session is ended (as a primary restart would end it): X is committed
-    and visible on the primary, its desk was told nothing. The link passes X on to the
-    standby, but the standby's confirmation never gets back; the next commit Y waits
-    on the primary alone; the primary is killed. After promotion X must come back
-    under its request id with the same codes, Y (never replicated) is issued once."""
+    """The story: desks issue; the replication link stalls, so the commits in flight
+    (X, one per series at most) wait for the standby; their sessions are ended (as a
+    primary restart would end them): X is committed and visible on the primary, its desk
+    was told nothing. The link passes X on to the standby, but the standby's
+    confirmation never gets back. A replay of X on the old primary must wait for the
+    standby like an issue, and its cancelled wait is an unknown outcome, not a success.
+    The next commits, Y, wait on the primary alone; their waits are cancelled (the COMMIT
+    then reports success with a warning: the desks must take it as unknown); the primary
+    is killed with commits still waiting. After promotion X must come back under its
+    request ids with the same codes, and Y (never replicated) is issued once."""
     started = time.monotonic()
     assert pair.relay is not None
     switch = tmp_path / "new-server"
