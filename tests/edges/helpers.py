@@ -7,6 +7,7 @@ import hashlib
 from typing import Any
 
 from sqlalchemy import create_engine, text
+from sqlalchemy.pool import NullPool
 from stdnum import luhn
 
 TABLES = ("series", "batch", "issued_code", "log_entry", "log_chain", "log_leaf", "log_tree")
@@ -17,20 +18,27 @@ def tool(base: int) -> str:
     return "QTL" + f"{base:07d}" + luhn.calc_check_digit(f"{base:07d}")
 
 
+_ENGINES: dict[str, Any] = {}
+
+
 def fingerprint(url: str) -> str:
-    """A digest of every row of the register's tables, in key order."""
+    """A digest of every row of the register's tables, in key order (one engine per
+    register for the whole run: the fuzz takes a fingerprint before and after each input)."""
     from issuer.register.store import database_url
 
-    engine = create_engine(database_url(url))
+    engine = _ENGINES.get(url)
+    if engine is None:
+        if len(_ENGINES) > 8:
+            for old in _ENGINES.values():
+                old.dispose()
+            _ENGINES.clear()
+        engine = _ENGINES[url] = create_engine(database_url(url), poolclass=NullPool)
     digest = hashlib.sha256()
-    try:
-        with engine.connect() as connection:
-            for table in TABLES:
-                for row in connection.execute(text(f"SELECT * FROM {table} ORDER BY 1")):
-                    digest.update(repr(tuple(row)).encode("utf-8", "backslashreplace"))
-                digest.update(b"|")
-    finally:
-        engine.dispose()
+    with engine.connect() as connection:
+        for table in TABLES:
+            for row in connection.execute(text(f"SELECT * FROM {table} ORDER BY 1")):
+                digest.update(repr(tuple(row)).encode("utf-8", "backslashreplace"))
+            digest.update(b"|")
     return digest.hexdigest()
 
 
