@@ -196,7 +196,13 @@ def backup(
         )
         return
     result = _backup_with_progress(register, destination, force)
+    key_file = register.keyring.path
     register.close()
+    if result.key_file is None:  # said on stderr, with --json too: the copy cannot issue scattered codes
+        err_console().print(
+            f"Note: no key file at {shown(key_file)} to copy beside the backup; a scattered series "
+            "restored from it cannot issue until its key file is put beside it (or named by register.key_file)."
+        )
     if as_json:
         print_json(result.as_dict())
         return

@@ -119,6 +119,10 @@ def test_a_missing_wrong_or_malformed_key_file_is_one_line(tmp_path: Path) -> No
     refused(run(url, "issue", "members", env={"ISSUER_KEY_FILE": str(malformed)}), "is not an issuer key file")
     # checking codes needs no key: the desk still answers
     assert run(url, "check", "QM0000000", env={"ISSUER_KEY_FILE": str(malformed)}).exit_code in (0, 1)
+    # a backup made without the key file says so (the copy cannot issue scattered codes)
+    backup = run(url, "backup", str(tmp_path / "copy.sqlite"))
+    assert backup.exit_code == 0 and "no key file at" in backup.stderr
+    assert not (tmp_path / "copy.sqlite.key").exists()
     # the doctor names the series whose key the file does not open
     doctor = run(url, "doctor", env={"ISSUER_KEY_FILE": str(other.path)})
     assert doctor.exit_code == 1 and "members" in doctor.output
