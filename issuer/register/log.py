@@ -339,8 +339,7 @@ def verify_chain(session: Session) -> ChainReport:
     from issuer.proofs.merkle import Frontier, leaf_hash
 
     tails: dict[int, tuple[int, str]] = {}  # chain -> (newest id, its hash) seen so far
-    hashes: dict[str, int] = {}
-    members: dict[int, list[int]] = {}  # chain -> its entries' ids, in order
+    # memory grows with the number of chains, never with the number of entries
     count = 0
     problem: ChainProblem | None = None
     newest = (0, GENESIS)
@@ -350,7 +349,8 @@ def verify_chain(session: Session) -> ChainReport:
         chain = int(entry.chain)
         last_id, previous = tails.get(chain, (0, GENESIS))
         if entry.prev_hash != previous:
-            if entry.prev_hash != GENESIS and entry.prev_hash not in hashes:
+            known = session.scalar(select(LogEntry.id).where(LogEntry.hash == entry.prev_hash).limit(1))
+            if entry.prev_hash != GENESIS and known is None:
                 what = (f"links to an entry no longer in the log: an entry of {_chain_name(chain)} "
                         f"after #{last_id} is missing (deleted)") if last_id else (
                         f"links to an entry no longer in the log: the start of {_chain_name(chain)} is missing")
@@ -363,8 +363,6 @@ def verify_chain(session: Session) -> ChainReport:
             problem = ChainProblem(entry.id, "its content no longer matches its hash (altered)")
             break
         tails[chain] = (entry.id, entry.hash)
-        hashes[entry.hash] = entry.id
-        members.setdefault(chain, []).append(entry.id)
         newest = (entry.id, entry.hash)
     entries.close()
     heads = {int(c): (int(i), str(h)) for c, i, h in session.execute(
@@ -374,7 +372,7 @@ def verify_chain(session: Session) -> ChainReport:
     size = tree_size(session)
     frontier = Frontier()
     if problem is None:
-        problem = _tree_problem(session, size, hashes, members, frontier, leaf_hash)
+        problem = _tree_problem(session, size, frontier, leaf_hash)
     return ChainReport(
         entries=count, head_id=newest[0], head_hash=newest[1], problem=problem, chains=len(heads),
         tree_size=size, tree_root=frontier.root().hex(),
@@ -398,31 +396,42 @@ def _heads_problem(tails: dict[int, tuple[int, str]], heads: dict[int, tuple[int
     return None
 
 
-def _tree_problem(
-    session: Session, size: int, hashes: dict[str, int], members: dict[int, list[int]], frontier: Any, leaf_hash: Any
-) -> ChainProblem | None:
+def _tree_problem(session: Session, size: int, frontier: Any, leaf_hash: Any) -> ChainProblem | None:
     """The sealed leaves: positions 0..size-1, each an entry of the log once, in its chain
-    in id order (what sealing gives); the frontier gets every leaf."""
-    ids = {entry_id: h for h, entry_id in hashes.items()}
-    sealed: dict[int, int] = {}  # chain -> how many of its entries are sealed
+    in id order with nothing of the chain left out before it (what sealing gives); the
+    frontier gets every leaf. Runs after every chain verified, so the hashes are the entries'."""
+    sealed: dict[int, int] = {}  # chain -> its newest sealed entry's id
+    counts: dict[int, int] = {}  # chain -> how many of its entries are sealed
     expected = 0
     rows = session.execute(
-        select(LogLeaf.position, LogLeaf.entry_id, LogLeaf.chain, LogEntry.chain)
+        select(LogLeaf.position, LogLeaf.entry_id, LogLeaf.chain, LogEntry.chain, LogEntry.hash)
         .outerjoin(LogEntry, LogEntry.id == LogLeaf.entry_id)
         .order_by(LogLeaf.position)
+        .execution_options(yield_per=5000)
     )
-    for position, entry_id, leaf_chain, entry_chain in rows:
+    for position, entry_id, leaf_chain, entry_chain, entry_hash_ in rows:
         if position != expected:
+            rows.close()
             return ChainProblem(int(entry_id), f"leaf {expected} of the sealed tree is missing (next found: {position})")
-        if entry_chain is None or int(entry_id) not in ids:
+        if entry_chain is None:
+            rows.close()
             return ChainProblem(int(entry_id), f"leaf {position} names an entry no longer in the log")
-        chain, done = int(leaf_chain), sealed.get(int(leaf_chain), 0)
-        order = members.get(chain, [])
-        if chain != int(entry_chain) or done >= len(order) or order[done] != int(entry_id):
+        chain = int(leaf_chain)
+        if chain != int(entry_chain) or int(entry_id) <= sealed.get(chain, 0):
+            rows.close()
             return ChainProblem(int(entry_id), f"leaf {position} is out of its chain's order (leaves moved)")
-        sealed[chain] = done + 1
-        frontier.append(leaf_hash(bytes.fromhex(ids[int(entry_id)])))
+        sealed[chain] = int(entry_id)
+        counts[chain] = counts.get(chain, 0) + 1
+        frontier.append(leaf_hash(bytes.fromhex(entry_hash_)))
         expected += 1
     if expected != size:
         return ChainProblem(0, f"the sealed tree holds {expected} leaves but its size says {size}")
+    # each chain's sealed entries are its oldest ones: as many entries up to the newest sealed one as leaves
+    for chain, newest in sorted(sealed.items()):
+        before = session.scalar(
+            select(func.count()).select_from(LogEntry).where(LogEntry.chain == chain, LogEntry.id <= newest)
+        )
+        if int(before or 0) != counts[chain]:
+            return ChainProblem(newest, f"{_chain_name(chain)} has entries before #{newest} that no leaf holds "
+                                        "(leaves moved)")  # fmt: skip
     return None
