@@ -27,9 +27,12 @@ FAILURE_WINDOW_S = 60.0
 FAILURE_LIMIT = 10
 #: a web session ends after this long without a request
 SESSION_IDLE_S = 8 * 3600.0
-#: the most threads that run register calls at once: a thread per pooled connection, up to
+#: the most threads that run register reads at once: a thread per pooled connection, up to
 #: this (the work holds the interpreter lock most of the time; more threads only queue there)
 MAX_THREADS = 8
+#: on PostgreSQL, the most writes at once; they have threads of their own, so writers queued
+#: on a series' row lock never leave reads without a thread
+MAX_WRITERS = 4
 
 
 @dataclass(frozen=True)
@@ -71,16 +74,21 @@ class ServiceState:
         return replace(self.register, actor=caller.name)
 
     def __post_init__(self) -> None:
-        threads = max(1, min(MAX_THREADS, self.register.connections))
-        self._threads = ThreadPoolExecutor(threads, thread_name_prefix="issuer-register")
+        connections = self.register.connections
         if self.register.backend == "sqlite":
             # SQLite has one writer at a time: every write goes to one thread, in the order the
             # requests came (the executor's queue is first in, first out). A waiting desk holds
             # no thread and no connection, and nobody spins on the file's lock.
-            self._writer = ThreadPoolExecutor(1, thread_name_prefix="issuer-writer")
+            writers = 1
+        else:
+            # PostgreSQL serves concurrent writers; a few at once, the rest wait their turn here
+            writers = max(1, min(MAX_WRITERS, connections // 3))
+        readers = max(1, min(MAX_THREADS, connections - writers))
+        self._writer = ThreadPoolExecutor(writers, thread_name_prefix="issuer-writer")
+        self._threads = ThreadPoolExecutor(readers, thread_name_prefix="issuer-register")
 
     def _submit(self, work: Callable[[], T], *, writing: bool) -> Future[T]:
-        executor = self._writer if writing and self._writer is not None else self._threads
+        executor = self._writer if writing else self._threads
         assert executor is not None
         return executor.submit(work)
 
@@ -89,13 +97,14 @@ class ServiceState:
         return await asyncio.wrap_future(self._submit(work, writing=False))
 
     async def write(self, work: Callable[[], T]) -> T:
-        """Run a writing act: on SQLite in the one writer thread, in arrival order; on
-        PostgreSQL on the register's threads (the database serves concurrent writers)."""
+        """Run a writing act on the writers' threads, in arrival order: on SQLite one thread
+        (one act at a time); on PostgreSQL a few at once (the database serves concurrent
+        writers). Reads never wait behind writes for a thread."""
         return await asyncio.wrap_future(self._submit(work, writing=True))
 
     def write_blocking(self, work: Callable[[], T]) -> T:
         """:meth:`write` for code already running in a worker thread of the server's own
-        pool, never on the register's threads (on PostgreSQL it could wait on itself)."""
+        pool (never on the writers' threads: it would wait on itself)."""
         return self._submit(work, writing=True).result()
 
     def close(self) -> None:

@@ -7,7 +7,8 @@ Reports p50/p99 latency of check and issue, each beside a bare ASGI endpoint tha
 a constant on the same server in the same run (the floor any request costs here), and
 verifies the run: no duplicate, no gap, no 5xx, retries return the same codes.
 
-Run from the repository root: .venv/bin/python tests/benchmarks/bench_service.py [issues-per-client]
+Run from the repository root:
+.venv/bin/python tests/benchmarks/bench_service.py [issues-per-client [sqlite|postgresql ...]]
 (PostgreSQL on 127.0.0.1:5432 as user postgres, or ISSUER_TEST_PG; skipped if down).
 """
 
@@ -63,9 +64,13 @@ def measure(url: str, issues: int) -> None:
 
 def main() -> None:
     issues = int(sys.argv[1]) if len(sys.argv) > 1 else 200
-    with tempfile.TemporaryDirectory() as folder:
-        print("SQLite")
-        measure(str(Path(folder) / "register.sqlite"), issues)
+    backends = sys.argv[2:] or ["sqlite", "postgresql"]
+    if "sqlite" in backends:
+        with tempfile.TemporaryDirectory() as folder:
+            print("SQLite")
+            measure(str(Path(folder) / "register.sqlite"), issues)
+    if "postgresql" not in backends:
+        return
     problem = server_problem()
     if problem:
         print(f"PostgreSQL skipped: {problem}")

@@ -1,5 +1,6 @@
 """How the service runs register calls: on SQLite every write goes to one thread, one at a
-time, in the order the requests came; reads run beside it; PostgreSQL has no writer queue."""
+time, in the order the requests came; reads run beside it on threads of their own;
+PostgreSQL writes run a few at once."""
 
 from __future__ import annotations
 
@@ -65,9 +66,11 @@ def test_threads_follow_the_connection_pool(register: Any) -> None:
 
     state = _state(register)
     try:
-        assert register.connections >= 1
-        assert state._threads is not None
-        assert state._threads._max_workers == min(MAX_THREADS, register.connections)
+        assert register.connections >= 2
+        assert state._writer is not None and state._threads is not None
+        assert state._writer._max_workers == 1
+        # a connection for every thread: the writer's and each reader's
+        assert state._threads._max_workers == min(MAX_THREADS, register.connections - 1)
     finally:
         state.close()
 
@@ -86,6 +89,9 @@ def test_postgres_writes_run_concurrently(pg_url: str) -> None:  # noqa: F811
 
     try:
         assert sorted(asyncio.run(main())) == [0, 1]
+        assert state._writer is not None and state._threads is not None
+        writers, readers = state._writer._max_workers, state._threads._max_workers
+        assert 2 <= writers and writers + readers <= register.connections
     finally:
         state.close()
         register.close()
