@@ -58,7 +58,10 @@ def test_a_bare_check_makes_no_register_in_the_data_folder() -> None:
 def test_db_init_series_add_and_demo_make_one(tmp_path: Path) -> None:
     made = tmp_path / "desk" / "register.sqlite"
     first = _invoke("db", "init", "--db", str(made), "--json")
-    assert first.exit_code == 0 and json.loads(first.stdout) == {"database": str(made), "created": True}
+    assert first.exit_code == 0 and json.loads(first.stdout) == {
+        "database": str(made), "created": True, "key_file": str(made) + ".key"  # made with the register
+    }
+    assert Path(str(made) + ".key").stat().st_mode & 0o777 == 0o600
     assert made.parent.stat().st_mode & 0o777 == 0o700
     again = _invoke("db", "init", "--db", str(made))
     assert again.exit_code == 0 and "already" in again.stdout
