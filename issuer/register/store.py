@@ -234,10 +234,11 @@ class Register:
         size = getattr(pool, "size", None)
         if not callable(size):
             return 1
-        overflow = getattr(pool, "_max_overflow", 0)
+        held = int(size())
+        overflow = int(getattr(pool, "_max_overflow", 0))
         if overflow < 0:  # no limit on overflow
-            overflow = size()
-        return max(1, size() + overflow)
+            overflow = held
+        return max(1, held + overflow)
 
     @property
     def keyring(self) -> Keyring:

@@ -121,7 +121,7 @@ class ServiceState:
             recent = self._failures.get(address)
             while recent and now - recent[0] > FAILURE_WINDOW_S:
                 recent.popleft()
-            return bool(recent) and len(recent) >= FAILURE_LIMIT
+            return recent is not None and len(recent) >= FAILURE_LIMIT
 
     def failed(self, address: str) -> int:
         with self._lock:

@@ -133,7 +133,7 @@ def test_cookies_are_http_only_strict_and_secure_behind_tls(served: tuple[Api, d
 
 def test_failed_sign_ins_are_slowed_then_refused(served: tuple[Api, dict[str, str], Any],
                                                  monkeypatch: pytest.MonkeyPatch) -> None:  # fmt: skip
-    import issuer.service.auth as auth
+    from issuer.service import auth
 
     waited: list[float] = []
 
