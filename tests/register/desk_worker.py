@@ -125,7 +125,7 @@ def _fork_desk(desk: int, job: dict[str, Any], start_read: int, start_write: int
 
         # the desk is open (connected, schema checked) before it says it is ready, so a
         # test's clock starts when the work does
-        register = open_register(job["db"], actor=job.get("actor", f"desk-{desk}"))
+        register = open_register(job["db"], actor=job.get("actor", f"desk-{desk}"), key_file=job.get("key_file"))
         say(desk, {"op": "ready", "pid": os.getpid()})
         os.read(start_read, 1)  # wait for the room's signal
         work(desk, job, register)
@@ -209,7 +209,10 @@ def _issue_across_failover(desk: int, job: dict[str, Any], register: Any, rng: r
                 if time.monotonic() > deadline:
                     raise SystemExit(f"desk {desk}: no new server named in {switch}") from None
                 time.sleep(0.02)
-            register = open_register(switch.read_text().strip(), actor=job.get("actor", f"desk-{desk}"), create=False)
+            register = open_register(
+                switch.read_text().strip(), actor=job.get("actor", f"desk-{desk}"), create=False,
+                key_file=job.get("key_file"),
+            )
             moved = True
             result = issue_codes(register, key, count, request_id=request)
             op = "retried"

@@ -59,7 +59,13 @@ class DeskRoom:
             if not line:
                 _, err = self.process.communicate(timeout=60)
                 raise AssertionError(f"the desks stopped early: {err[-3000:]}")
-            self._lines.append(json.loads(line))
+            record = json.loads(line)
+            self._lines.append(record)
+            if record["op"] == "exit" and record["status"] != 0:  # it will never say more
+                self.close()
+                _, err = self.process.communicate(timeout=60)
+                lost = [line for line in self._lines if line["op"] == "unknown"]
+                raise AssertionError(f"desk {record['desk']} failed: {err[-3000:]}; {lost}")
         return list(self._lines)
 
     def pause(self) -> None:
