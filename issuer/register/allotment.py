@@ -26,7 +26,7 @@ from sqlalchemy.orm import Session
 
 from issuer.errors import Exhausted, InvalidFormat, NotFound
 from issuer.register.bulk import ISSUE_COLUMNS, check_room
-from issuer.register.driver import Prepared, bind_value, insert_many
+from issuer.register.driver import Prepared, bind_value, insert_many, pipeline_to_commit
 from issuer.register.models import ISSUED, SCATTERED, Batch, IssuedCode, Series
 from issuer.register.sealing import keyring_of
 from issuer.register.series import capacity, code_format, permutation, scatter_protected, unknown_series
@@ -262,6 +262,7 @@ def place_codes(
     replaces_id: int | None = None,
     valid_until: datetime | None = None,
     keep_until: bool = False,
+    last_writes: bool = False,
 ) -> Placed:
     """Claim, open the batch and write ``count`` codes (fewer than :data:`BULK_FROM`);
     the caller logs the act. Four statements when no imported number is in the way."""
@@ -277,6 +278,8 @@ def place_codes(
     until = valid_until if keep_until else validity_for(series.valid_for_days, at, valid_until)
     bound_until = None if until is None else bind_value(session, _CODE.c.valid_until, until)
     holder_key, note_key = search_key(holder), search_key(note)
+    if last_writes:  # the caller only logs the act next: send the rest without waiting
+        pipeline_to_commit(session)
     # when and by whom: the batch row says it once (the code rows leave origin_at/_by empty)
     insert_many(
         session, "issued_code", ISSUE_COLUMNS,

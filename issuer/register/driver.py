@@ -50,7 +50,10 @@ def execute_many(session: Session, sql: str, rows: Iterable[Sequence[Any]]) -> N
         sql = sql.replace("?", "%s")
     cursor = connection.connection.cursor()
     try:
-        cursor.executemany(sql, rows)  # type: ignore[arg-type]  # both drivers take any iterable
+        if isinstance(rows, list) and len(rows) == 1:
+            cursor.execute(sql, rows[0])  # one row: no batching machinery (psycopg's costs round trips)
+        else:
+            cursor.executemany(sql, rows)  # type: ignore[arg-type]  # both drivers take any iterable
     except dialect.loaded_dbapi.Error as exc:
         # the same wrapped error the ORM would raise, so retries and callers see one kind
         raise driver_error(connection, sql, exc) from None
@@ -115,6 +118,7 @@ class _Form:
     positional: bool
     defaults: Mapping[str, Any]  # values written into the statement (``id == 1``)
     processors: Mapping[str, Callable[[Any], Any]]
+    returns_rows: bool = False  # a SELECT or a write with RETURNING
 
     def parameters(self, values: Mapping[str, Any]) -> Sequence[Any] | dict[str, Any]:
         out = []
@@ -156,7 +160,8 @@ class Prepared:
                 if processor is not None:
                     processors[name] = processor
             defaults = {name: binds[name].value for name in names if not binds[name].required}
-            form = _Form(str(compiled), names, positional, defaults, processors)
+            returns = bool(getattr(self.statement, "is_select", False) or getattr(self.statement, "_returning", ()))
+            form = _Form(str(compiled), names, positional, defaults, processors, returns)
             self._forms[dialect.name] = form
         return form
 
@@ -177,7 +182,9 @@ class Prepared:
 
         def call(cursor: Any, form: _Form) -> list[tuple[Any, ...]]:
             cursor.execute(form.sql, form.parameters(values or {}))
-            return list(cursor.fetchall()) if cursor.description else []
+            # in pipeline mode a write's answer is not waited for (its error, if any, comes
+            # with the next answer that is); a statement that returns rows waits for them
+            return list(cursor.fetchall()) if form.returns_rows else []
 
         return self._run(connection, call)  # type: ignore[no-any-return]
 
@@ -185,6 +192,15 @@ class Prepared:
         """Run once; its only row, or None."""
         found = self.rows(connection, values)
         return found[0] if found else None
+
+    def send(self, connection: Connection, values: Mapping[str, Any] | None = None) -> None:
+        """Run once and read nothing back: in pipeline mode (:func:`pipeline_to_commit`) it
+        goes out without waiting, and an error it meets comes with the COMMIT's answer."""
+
+        def call(cursor: Any, form: _Form) -> None:
+            cursor.execute(form.sql, form.parameters(values or {}))
+
+        self._run(connection, call)
 
     def many(self, connection: Connection, values: Iterable[Mapping[str, Any]]) -> None:
         """Run once per mapping of ``values`` (a write), through ``executemany``."""
@@ -195,4 +211,36 @@ class Prepared:
         self._run(connection, call)
 
 
-__all__ = ["Prepared", "bind_value", "driver_error", "driver_rows", "execute_many", "insert_many", "stream_rows"]
+#: ``Session.info`` key: an ``ExitStack`` that :meth:`issuer.register.store.Register.writing`
+#: closes once the transaction has ended (committed or rolled back)
+AFTER_TRANSACTION = "issuer_after_transaction"
+
+
+def pipeline_to_commit(session: Session) -> None:
+    """From here to the end of the writing transaction, send statements without waiting
+    for each one's answer (psycopg 3's pipeline mode on PostgreSQL; elsewhere nothing
+    changes): the writes that end an act and its COMMIT go out together, one round trip
+    instead of one each. Only :class:`Prepared` statements, :func:`insert_many` and the
+    COMMIT may follow (Core and the ORM read a result's shape before it has come back)."""
+    connection = session.connection()
+    after = session.info.get(AFTER_TRANSACTION)
+    if connection.dialect.name != "postgresql" or after is None:
+        return
+    raw = connection.connection.dbapi_connection
+    if raw is None or getattr(raw, "_pipeline", None) is not None:
+        return
+    pipeline = raw.pipeline()
+    pipeline.__enter__()
+
+    def leave(exc_type: Any, exc: Any, traceback: Any) -> bool:
+        try:
+            pipeline.__exit__(exc_type, exc, traceback)
+        except Exception:  # noqa: BLE001 - a failed act's error is the one to see
+            if exc_type is None and not raw.closed:
+                raise
+        return False
+
+    after.push(leave)
+
+
+__all__ = ["AFTER_TRANSACTION", "Prepared", "bind_value", "driver_error", "pipeline_to_commit", "driver_rows", "execute_many", "insert_many", "stream_rows"]

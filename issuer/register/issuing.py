@@ -254,7 +254,7 @@ def _issue_few(
     at = register.clock()
     placed = place_codes(
         session, key=key, count=count, kind="issue", at=at, actor=register.actor,
-        request_id=request_id, holder=holder, note=note, valid_until=valid_until,
+        request_id=request_id, holder=holder, note=note, valid_until=valid_until, last_writes=True,
     )  # fmt: skip
     series, batch_id, codes, bases = placed.series, placed.batch_id, placed.codes, placed.bases
     append_entry(

@@ -29,11 +29,11 @@ from dataclasses import dataclass
 from datetime import datetime
 from typing import Any, cast
 
-from sqlalchemy import Table, bindparam, func, insert, select, text, update
+from sqlalchemy import Table, Text, bindparam, func, insert, select, text, update
 from sqlalchemy.orm import Session
 
 from issuer.register.driver import Prepared
-from issuer.register.models import LogChain, LogEntry, LogLeaf, LogTree
+from issuer.register.models import LogChain, LogEntry, LogLeaf, LogTree, UTCDateTime
 
 GENESIS = "0" * 64
 
@@ -192,7 +192,9 @@ def chain_rows(
 
 #: PostgreSQL: the one append path (SECURITY DEFINER, migrations log_rights and log_chains):
 #: it locks the entries' chains, computes the hashes and records the login itself
-_APPEND_FUNCTION = text("SELECT issuer_log_append(:at, :actor, :entries)")
+_APPEND_FUNCTION = Prepared(select(func.issuer_log_append(
+    bindparam("at", type_=UTCDateTime()), bindparam("actor", type_=Text()), bindparam("entries", type_=Text())
+)))
 
 
 def append_entries(
@@ -218,10 +220,10 @@ def append_entries(
              "detail": detail_text(e.detail)}
             for e in entries
         ]  # fmt: skip
-        added = connection.execute(
-            _APPEND_FUNCTION, {"at": at, "actor": actor, "entries": json.dumps(payload)}
-        ).scalar_one()
-        return int(added)
+        # sent, not waited for: an issue's last writes, this and its COMMIT go out together
+        # (pipeline mode); the function appends every entry or raises
+        _APPEND_FUNCTION.send(connection, {"at": at, "actor": actor, "entries": json.dumps(payload)})
+        return len(payload)
     heads: dict[int, str] = {}
     for chain in sorted({chain_of(e.action, e.series_id) for e in entries}):  # one order: no deadlock
         found = _LOCK_CHAIN.one(connection, {"chain": chain})

@@ -269,10 +269,17 @@ class Register:
         """One writing transaction: committed whole on success, rolled back whole on any
         error. Use :meth:`write` to get the retries as well. ``steps`` (if given) gets
         ``"commit"`` once the work is done and the COMMIT is about to be sent."""
+        from contextlib import ExitStack
+
+        from issuer.register.driver import AFTER_TRANSACTION
+
         with self.engine.connect() as connection:
             connection.execution_options(issuer_write=True)
             heard: list[str] = connection.info.get(_WARNINGS, [])
-            with Session(bind=connection, expire_on_commit=False, info=self.session_info()) as session:
+            with ExitStack() as after, Session(
+                bind=connection, expire_on_commit=False, info=self.session_info()
+            ) as session:
+                session.info[AFTER_TRANSACTION] = after  # closed once the transaction has ended
                 with session.begin():
                     yield session
                     heard.clear()  # only what the COMMIT itself brings counts

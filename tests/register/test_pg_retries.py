@@ -182,3 +182,42 @@ def test_the_serialisation_failure_is_sqlstate_40001(register: Register, pg_url:
         with pytest.raises(psycopg.errors.SerializationFailure) as raised:
             first.execute("UPDATE series SET next_counter = next_counter WHERE key = 'shelf'")
         assert raised.value.sqlstate == "40001"
+
+
+def test_a_refusal_in_the_pipelined_writes_is_one_line_and_leaves_nothing(
+    register: Register, pg_url: str  # noqa: F811
+) -> None:
+    """A small issue sends its code row, the batch's id range, the log entry and COMMIT
+    without waiting (pipeline mode): a row the database refuses there still comes back as
+    the one-line refusal, and nothing of the act is left behind."""
+    from issuer.errors import DuplicateRow
+
+    first = issue_codes(register, "shelf", 1).codes[0].code
+    with register.reading() as session:
+        shape = get_series(session, "shelf")
+        from issuer.register.series import code_format
+
+        taken = code_format(shape).code_for_base(shape.range_start + 1)  # the next code to be drawn
+    with register.engine.begin() as connection:  # a row put there behind the register's back
+        connection.execute(text(
+            "INSERT INTO batch (series_id, kind, count, created_at, actor) "
+            "SELECT id, 'import', 1, now(), 'test' FROM series WHERE key = 'shelf'"
+        ))  # fmt: skip
+        connection.execute(text(
+            "INSERT INTO issued_code (series_id, code, base, status, batch_id, print_count) "
+            "SELECT s.id, :code, :base, 'issued', (SELECT max(id) FROM batch), 0 FROM series s WHERE s.key = 'shelf'"
+        ), {"code": taken, "base": shape.range_start + 1})
+    with register.engine.connect() as connection:
+        batches = connection.execute(text("SELECT count(*) FROM batch")).scalar_one()
+        entries = connection.execute(text("SELECT count(*) FROM log_entry")).scalar_one()
+    with pytest.raises(DuplicateRow) as raised:
+        issue_codes(register, "shelf", 1)
+    assert "\n" not in str(raised.value) and "refused a row" in str(raised.value)
+    with register.engine.connect() as connection:
+        assert connection.execute(text("SELECT count(*) FROM batch")).scalar_one() == batches
+        assert connection.execute(text("SELECT count(*) FROM log_entry")).scalar_one() == entries
+    assert _codes(register) == [first, taken] and _next_counter(register) == 1
+    # the same act again meets the same refusal, as one line again (the pooled connection
+    # came back clean from the aborted pipeline)
+    with pytest.raises(DuplicateRow):
+        issue_codes(register, "shelf", 1)
