@@ -233,9 +233,11 @@ def pipeline_to_commit(session: Session) -> None:
     pipeline.__enter__()
 
     def leave(exc_type: Any, exc: Any, traceback: Any) -> bool:
+        # always as if all went well: the driver then raises what is pending instead of
+        # logging it; when the act failed already, its error is the one to see
         try:
-            pipeline.__exit__(exc_type, exc, traceback)
-        except Exception:  # noqa: BLE001 - a failed act's error is the one to see
+            pipeline.__exit__(None, None, None)
+        except Exception:  # noqa: BLE001
             if exc_type is None and not raw.closed:
                 raise
         return False

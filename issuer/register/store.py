@@ -22,6 +22,7 @@ from __future__ import annotations
 import os
 import random
 import sqlite3
+import sys
 import time
 from collections.abc import Callable, Iterator
 from contextlib import contextmanager
@@ -281,7 +282,13 @@ class Register:
             ) as session:
                 session.info[AFTER_TRANSACTION] = after  # closed once the transaction has ended
                 with session.begin():
-                    yield session
+                    try:
+                        yield session
+                    except BaseException:
+                        # a pipeline still open is closed before the ROLLBACK (an aborted
+                        # pipeline refuses it)
+                        after.__exit__(*sys.exc_info())
+                        raise
                     heard.clear()  # only what the COMMIT itself brings counts
                     if steps is not None:
                         steps.append("commit")
