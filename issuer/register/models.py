@@ -26,10 +26,11 @@ from sqlalchemy import (
     false,
     func,
     select,
-    text,
 )
 from sqlalchemy.engine import Dialect
+from sqlalchemy.ext.compiler import compiles
 from sqlalchemy.orm import DeclarativeBase, Mapped, mapped_column
+from sqlalchemy.schema import CreateIndex
 
 NAMING = {
     "ix": "ix_%(table_name)s_%(column_0_N_name)s",
@@ -145,6 +146,23 @@ class Batch(Base):
     code_id_to: Mapped[int | None] = mapped_column(BigInteger, default=None)
 
 
+def _partial_index(column: str, where: str) -> Index:
+    """An index over the rows where ``where`` holds, declared once for every backend.
+
+    Not ``postgresql_where=``/``sqlite_where=``: naming a dialect's argument makes SQLAlchemy
+    import that whole dialect when the models load, so every command on a SQLite register
+    would pay for PostgreSQL's. The clause is added by :func:`_create_partial_index`."""
+    return Index(None, column, info={"where": where})
+
+
+@compiles(CreateIndex)
+def _create_partial_index(create: CreateIndex, compiler: Any, **kw: Any) -> str:
+    """CREATE INDEX, with the WHERE clause of a partial index (both backends know it)."""
+    sql: str = compiler.visit_create_index(create, **kw)
+    where = create.element.info.get("where")
+    return f"{sql} WHERE {where}" if where else sql
+
+
 class IssuedCode(Base):
     """A code the register holds. Rows are never deleted: a voided code stays here,
     so no path can issue it again."""
@@ -152,11 +170,9 @@ class IssuedCode(Base):
     __tablename__ = "issued_code"
     __table_args__ = (
         UniqueConstraint("series_id", "base"),
-        Index(None, "holder_key", sqlite_where=text("holder_key IS NOT NULL"),
-              postgresql_where=text("holder_key IS NOT NULL")),
-        Index(None, "note_key", sqlite_where=text("note_key IS NOT NULL"),
-              postgresql_where=text("note_key IS NOT NULL")),
-    )  # fmt: skip
+        _partial_index("holder_key", "holder_key IS NOT NULL"),
+        _partial_index("note_key", "note_key IS NOT NULL"),
+    )
 
     id: Mapped[int] = mapped_column(Integer, primary_key=True)
     series_id: Mapped[int] = mapped_column(ForeignKey("series.id"))
