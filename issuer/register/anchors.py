@@ -12,7 +12,7 @@ from sqlalchemy.orm import Session
 
 from issuer.errors import InvalidFormat
 from issuer.register.admin import snapshot
-from issuer.register.log import ChainReport, verify_chain
+from issuer.register.logverify import ChainReport, verify_chain
 from issuer.register.models import LogEntry
 from issuer.register.store import Register
 

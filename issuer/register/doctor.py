@@ -44,7 +44,7 @@ from issuer.register.findings import (
     Finding,
     _finding,
 )
-from issuer.register.log import verify_chain
+from issuer.register.logverify import verify_chain
 from issuer.register.models import SCATTERED
 from issuer.register.store import SCHEMA_HEAD, Register
 

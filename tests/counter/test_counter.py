@@ -135,6 +135,30 @@ def test_issue_void_replace_restore_reprint_history(desk: Any) -> None:
     asyncio.run(run())
 
 
+def test_an_act_the_register_refuses_is_one_line_on_the_screen(desk: Any) -> None:
+    from issuer.register.lifecycle import void_code
+
+    code, shown = _code(desk, 5)
+
+    async def run() -> None:
+        app = make_app(desk)
+        async with app.run_test(size=(80, 24)) as pilot:
+            assert "✓ in use" in await _scan(app, pilot, shown)
+            # another desk voids it while this screen still shows it in use
+            void_code(desk.register, code, reason="tag snapped at the other desk")
+            await pilot.press("f3", *"card reported lost", "enter")
+            await pilot.pause()
+            await pilot.press("y")
+            await _settle(app, pilot)
+            answer = str(app.query_one("#answer").render())
+            assert answer.startswith("✗ ") and len(answer.splitlines()) == 1
+            await pilot.press("ctrl+q")
+        assert app.return_code in (0, None)
+
+    asyncio.run(run())
+    assert _record(desk, code).void_reason == "tag snapped at the other desk"
+
+
 def test_two_counters_at_once_lose_nothing(desk: Any) -> None:
     from issuer.register.series import get_series
     from issuer.register.transfer import export_session_rows

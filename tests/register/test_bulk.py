@@ -21,7 +21,7 @@ from issuer.register import bulk
 from issuer.register.bulk import CodesCsv, code_texts, display_texts
 from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.issuing import BULK_FROM, codes_digest, issue_codes
-from issuer.register.log import verify_chain
+from issuer.register.logverify import verify_chain
 from issuer.register.models import IssuedCode, LogEntry
 from issuer.register.series import get_series, permutation
 from issuer.register.store import Register, open_register

@@ -11,7 +11,7 @@ from sqlalchemy import select
 
 from issuer.register.holders import clear_holder, erase_holder, purge_holders, set_holder
 from issuer.register.lifecycle import void_code
-from issuer.register.log import verify_chain
+from issuer.register.logverify import verify_chain
 from issuer.register.models import IssuedCode
 from issuer.register.suspension import reinstate_code, suspend_code
 from issuer.register.validity import renew_code

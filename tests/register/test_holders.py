@@ -25,7 +25,7 @@ from issuer.register.holders import (
 )
 from issuer.register.issuing import issue_codes
 from issuer.register.lifecycle import code_history, replace_code, void_code
-from issuer.register.log import verify_chain
+from issuer.register.logverify import verify_chain
 from issuer.register.models import IssuedCode
 from issuer.register.store import open_register
 from tests.register.pg import pg_database, pg_url, register_url  # noqa: F401

@@ -19,7 +19,7 @@ from issuer.register.lifecycle import (
     restore_code,
     void_code,
 )
-from issuer.register.log import verify_chain
+from issuer.register.logverify import verify_chain
 from issuer.register.models import IssuedCode, Series
 from issuer.register.series import get_series, open_key, series_state
 

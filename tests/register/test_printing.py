@@ -17,7 +17,7 @@ from issuer.labels.printjob import LabelOptions, label_contents, parse_lines, pr
 from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.issuing import IssueResult, issue_codes
 from issuer.register.lifecycle import code_history, void_code
-from issuer.register.log import verify_chain
+from issuer.register.logverify import verify_chain
 from issuer.register.models import IssuedCode, LogEntry
 from issuer.register.printing import (
     VOID_MARK,

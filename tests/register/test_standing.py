@@ -19,7 +19,7 @@ from issuer.register.doctor import run_doctor
 from issuer.register.fill import after_batch
 from issuer.register.issuing import issue_codes
 from issuer.register.lifecycle import code_history, replace_code, restore_code, void_code
-from issuer.register.log import verify_chain
+from issuer.register.logverify import verify_chain
 from issuer.register.printing import select_for_printing
 from issuer.register.series import get_series, series_state
 from issuer.register.suspension import reinstate_code, suspend_code

@@ -20,7 +20,8 @@ from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.importing import IMPORT_ROLES, import_codes, plan_import, rejects_rows
 from issuer.register.issuing import issue_codes
 from issuer.register.lifecycle import code_history, code_record, replace_code, void_code
-from issuer.register.log import head, verify_chain
+from issuer.register.log import head
+from issuer.register.logverify import verify_chain
 from issuer.register.models import Batch, IssuedCode, Series
 from issuer.register.series import get_series, permutation
 from issuer.register.store import Register, open_register

@@ -15,7 +15,8 @@ from issuer.register.doctor import run_doctor
 from issuer.register.holders import find_holders
 from issuer.register.issuing import issue_codes
 from issuer.register.lifecycle import void_code
-from issuer.register.log import head, verify_chain
+from issuer.register.log import head
+from issuer.register.logverify import verify_chain
 from issuer.register.migrate import alembic_config
 from issuer.register.models import Series
 from issuer.register.printing import record_prints

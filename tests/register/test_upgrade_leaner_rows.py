@@ -18,17 +18,18 @@ from pathlib import Path
 from sqlalchemy import text
 from stdnum import luhn
 
+from issuer.readers.scanfile import read_table
+from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.doctor import run_doctor
 from issuer.register.importing import IMPORT_ROLES, import_codes
 from issuer.register.issuing import issue_codes
 from issuer.register.lifecycle import code_record, find_code, replace_code, void_code
-from issuer.register.log import head, verify_chain
+from issuer.register.log import head
+from issuer.register.logverify import verify_chain
 from issuer.register.migrate import alembic_config
 from issuer.register.printing import VOID_MARK, select_for_printing
-from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.store import SCHEMA_HEAD, Register, open_register
 from issuer.register.transfer import export_codes
-from issuer.readers.scanfile import read_table
 from tests.register.pg import pg_database, pg_url, register_url  # noqa: F401
 
 

@@ -19,7 +19,7 @@ from issuer.errors import Conflict, InvalidFormat
 from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.issuing import issue_codes
 from issuer.register.lifecycle import code_history, void_code
-from issuer.register.log import verify_chain
+from issuer.register.logverify import verify_chain
 from issuer.register.places import place_codes
 from issuer.register.store import Register
 from issuer.stocktake.counts import (

@@ -25,7 +25,7 @@ from issuer.errors import InvalidFormat
 from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.issuing import issue_codes
 from issuer.register.lifecycle import code_history, replace_code, void_code
-from issuer.register.log import verify_chain
+from issuer.register.logverify import verify_chain
 from issuer.register.series import code_format
 from issuer.register.store import Register
 from issuer.stocktake.reconcile import read_scans, reconcile, record_seen
