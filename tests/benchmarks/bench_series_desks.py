@@ -34,7 +34,7 @@ DESKS = (1, 8)
 
 SETUP = """
 import sys
-from issuer.register.series import SeriesSpec, add_series
+from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.store import open_register
 register = open_register(sys.argv[1], actor="bench")
 for n in range(int(sys.argv[2])):
