@@ -60,12 +60,6 @@ def _backup_target(destination: str | Path, force: bool) -> Path:
     return target
 
 
-def _create_private(path: Path) -> None:
-    descriptor = os.open(path, os.O_CREAT | os.O_EXCL | os.O_WRONLY, 0o600)
-    os.close(descriptor)
-    os.chmod(path, 0o600)  # whatever the umask said
-
-
 def _fsync_directory(folder: Path) -> None:
     try:
         descriptor = os.open(folder, os.O_RDONLY)

@@ -101,10 +101,6 @@ class NewEntry:
     detail: Mapping[str, Any] | None = None
 
 
-#: the columns of an imported row that its import's log entry covers (later acts never change them)
-IMPORTED_COLUMNS = ("issued_at", "issued_by")  # never holder text: the log keeps no personal data
-
-
 def rows_digest(rows: Iterable[Sequence[Any]]) -> str:
     """SHA-256 over rows of plain values, one JSON line each, times as :func:`timestamp_text`:
     an import's log entry covers who holds what, with which note, since when and from whom."""
@@ -157,35 +153,19 @@ def chain_rows(
     for entry in entries:
         last_id += 1
         chain = chain_of(entry.action, entry.series_id)
-        previous = heads[chain]
-        detail = detail_text(entry.detail)
-        digest = entry_hash(
-            entry_id=last_id,
-            at=at,
-            actor=actor,
-            action=entry.action,
-            series_id=entry.series_id,
-            code=entry.code,
-            batch_id=entry.batch_id,
-            detail=detail,
-            prev_hash=previous,
-            chain=chain,
-        )
-        rows.append(
-            {
-                "id": last_id,
-                "at": at,
-                "actor": actor,
-                "action": entry.action,
-                "series_id": entry.series_id,
-                "code": entry.code,
-                "batch_id": entry.batch_id,
-                "detail": detail,
-                "prev_hash": previous,
-                "hash": digest,
-                "chain": chain,
-            }
-        )
+        row: dict[str, Any] = {
+            "at": at,
+            "actor": actor,
+            "action": entry.action,
+            "series_id": entry.series_id,
+            "code": entry.code,
+            "batch_id": entry.batch_id,
+            "detail": detail_text(entry.detail),
+            "prev_hash": heads[chain],
+            "chain": chain,
+        }
+        digest = entry_hash(entry_id=last_id, **row)
+        rows.append({"id": last_id, **row, "hash": digest})
         heads[chain] = digest
     return rows
 

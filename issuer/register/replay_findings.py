@@ -3,7 +3,6 @@ worked out from the log, code by code, batch by batch and series by series."""
 
 from __future__ import annotations
 
-import hashlib
 from collections.abc import Iterable
 from datetime import datetime
 from typing import Any
