@@ -61,7 +61,7 @@ THRESHOLD = 1e-6
 #: the second candidate counts as close when at least this share as likely as the first
 CLOSE_RATIO = 0.5
 
-_CONFUSED = frozenset(pair for a, b in SHAPE_CONFUSIONS for pair in (a + b, b + a))
+_CONFUSED = frozenset(pair for both in SHAPE_CONFUSIONS for pair in (both, both[::-1]))
 _NUMBERS = ("no", "one", "two", "three", "four", "five", "six", "seven", "eight", "nine", "ten")
 
 

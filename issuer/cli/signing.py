@@ -33,7 +33,7 @@ def signing_key_path(key: Any) -> Any:
     return path
 
 
-def read_key_file(path: Any, what: str) -> bytes:
+def read_key_file(path: Path, what: str) -> bytes:
     from issuer.errors import InvalidFormat
 
     try:

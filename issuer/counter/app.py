@@ -32,7 +32,7 @@ class CounterApp(CounterShell):
         Binding("f9", "find", "Find", priority=True),
         Binding("f10", "series", "Series", priority=True),
         Binding("ctrl+q", "quit", "Quit", priority=True),
-        Binding("escape", "back", "Back to the scan line", show=False),
+        Binding("escape", "to_scan", "Back to the scan line", show=False),
     ]
 
     # -- acts on the answered code -------------------------------------------------------
@@ -47,7 +47,7 @@ class CounterApp(CounterShell):
             return None
         return answer
 
-    def action_back(self) -> None:
+    def action_to_scan(self) -> None:
         self.query_one("#scan", Input).focus()
 
     def action_issue(self) -> None:

@@ -55,7 +55,7 @@ class CounterDesk:
 
         def read() -> tuple[Any, list[Any]]:
             with self.register.reading() as session:
-                return code_history(session, code)  # type: ignore[no-any-return]
+                return code_history(session, code)
 
         return self._again(read)
 

@@ -29,9 +29,13 @@ from __future__ import annotations
 import base64
 import hashlib
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 from issuer.errors import InvalidFormat, ProofFailed
 from issuer.proofs import merkle
+
+if TYPE_CHECKING:
+    from cryptography.hazmat.primitives.asymmetric.ed25519 import Ed25519PrivateKey
 
 CHECKPOINT_TITLE = "issuer log checkpoint v1"
 RECEIPT_TITLE = "issuer log receipt v1"
@@ -49,7 +53,7 @@ def new_private_key_pem() -> bytes:
     )
 
 
-def _private(pem: bytes):  # type: ignore[no-untyped-def]
+def _private(pem: bytes) -> Ed25519PrivateKey:
     from cryptography.hazmat.primitives import serialization
     from cryptography.hazmat.primitives.asymmetric.ed25519 import Ed25519PrivateKey
 

@@ -27,10 +27,11 @@ def driver_error(connection: Connection, sql: str, exc: Exception) -> DBAPIError
     ``connection_invalidated``, which the retry loop reads."""
     dialect = connection.dialect
     proxied = connection.connection
-    lost = bool(dialect.is_disconnect(exc, proxied.dbapi_connection, None))
+    lost = bool(dialect.is_disconnect(cast(Any, exc), proxied.dbapi_connection, None))
     if lost and not connection.invalidated:
         connection.invalidate(exc)
-    return DBAPIError.instance(sql, None, exc, dialect.loaded_dbapi.Error, connection_invalidated=lost)
+    wrapped = DBAPIError.instance(sql, None, exc, dialect.loaded_dbapi.Error, connection_invalidated=lost)
+    return cast(DBAPIError, wrapped)
 
 
 def bind_value(session: Session, column: Column[Any], value: Any) -> Any:

@@ -12,7 +12,7 @@ import json
 import tempfile
 from collections.abc import Iterator
 from pathlib import Path
-from typing import Annotated, Any
+from typing import Annotated, Any, TypeVar, cast
 
 from fastapi import APIRouter, Depends, Header, HTTPException, Query, Request
 from fastapi.responses import Response, StreamingResponse
@@ -22,6 +22,7 @@ from issuer.service.auth import caller_from_header, require
 from issuer.service.state import Caller, ServiceState
 
 router = APIRouter(prefix="/api/v1")
+_Shape = TypeVar("_Shape", dict[str, Any], list[dict[str, Any]])
 
 TEXT = 200  # the longest holder, note or reason accepted here, as in the register
 
@@ -52,8 +53,9 @@ StateDep = Annotated[ServiceState, Depends(state_of)]
 CallerDep = Annotated[Caller, Depends(caller_from_header)]
 
 
-def _jsonable(data: Any) -> Any:
-    return json.loads(json.dumps(data, default=str))
+def _jsonable(data: _Shape) -> _Shape:
+    """``data`` as JSON sends it (times and other values as text), the same lists and dicts."""
+    return cast("_Shape", json.loads(json.dumps(data, default=str)))
 
 
 # -- series ---------------------------------------------------------------------------
