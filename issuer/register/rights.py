@@ -66,8 +66,17 @@ def rights_statements(schema: str, *, clerk: str, admin: str) -> list[str]:
         rest = "".join(f", {arg}" for arg in args)
         return f"RAISE EXCEPTION {_literal(message)}{rest} USING ERRCODE = 'insufficient_privilege';"
 
+    def guard(name: str, table: str, when: str, each: str, body: str, *, constraint: bool = False) -> list[str]:
+        """A trigger function and its trigger, dropped first so that running again converges."""
+        kind = "CONSTRAINT TRIGGER" if constraint else "TRIGGER"
+        return [
+            function(name, body),
+            f"DROP TRIGGER IF EXISTS {name} ON {s}.{table};",
+            f"CREATE {kind} {name} {when} ON {s}.{table} {each} EXECUTE FUNCTION {s}.{name}();",
+        ]
+
     statements = [
-        function("issuer_code_insert", f"""
+        *guard("issuer_code_insert", "issued_code", "AFTER INSERT", "REFERENCING NEW TABLE AS added FOR EACH STATEMENT", f"""
   IF EXISTS (SELECT 1 FROM added a LEFT JOIN batch b ON b.id = a.batch_id
              WHERE b.id IS NULL OR b.xmin <> pg_current_xact_id()::xid) THEN
     {refuse('a code goes only into a batch created by the same act')}
@@ -79,10 +88,7 @@ def rights_statements(schema: str, *, clerk: str, admin: str) -> list[str]:
     {refuse('a new code is inserted as issued, never printed, seen, voided or replaced')}
   END IF;
   RETURN NULL;"""),
-        f"DROP TRIGGER IF EXISTS issuer_code_insert ON {s}.issued_code;",
-        (f"CREATE TRIGGER issuer_code_insert AFTER INSERT ON {s}.issued_code "
-        f"REFERENCING NEW TABLE AS added FOR EACH STATEMENT EXECUTE FUNCTION {s}.issuer_code_insert();"),
-        function("issuer_batch_insert", f"""
+        *guard("issuer_batch_insert", "batch", "BEFORE INSERT", "FOR EACH ROW", f"""
   IF NEW.kind NOT IN ('issue', 'replace', 'import') THEN
     {refuse('unknown batch kind %', 'NEW.kind')}
   END IF;
@@ -90,44 +96,29 @@ def rights_statements(schema: str, *, clerk: str, admin: str) -> list[str]:
     {refuse('only an admin imports codes')}
   END IF;
   RETURN NEW;"""),
-        f"DROP TRIGGER IF EXISTS issuer_batch_insert ON {s}.batch;",
-        (f"CREATE TRIGGER issuer_batch_insert BEFORE INSERT ON {s}.batch "
-        f"FOR EACH ROW EXECUTE FUNCTION {s}.issuer_batch_insert();"),
-        function("issuer_batch_logged", f"""
+        *guard("issuer_batch_logged", "batch", "AFTER INSERT", "DEFERRABLE INITIALLY DEFERRED FOR EACH ROW", f"""
   IF NOT EXISTS (SELECT 1 FROM log_entry e WHERE e.batch_id = NEW.id AND {_THIS_XACT}) THEN
     {refuse('batch % was not logged by the act that made it', 'NEW.id')}
   END IF;
-  RETURN NULL;"""),
-        f"DROP TRIGGER IF EXISTS issuer_batch_logged ON {s}.batch;",
-        (f"CREATE CONSTRAINT TRIGGER issuer_batch_logged AFTER INSERT ON {s}.batch "
-        f"DEFERRABLE INITIALLY DEFERRED FOR EACH ROW EXECUTE FUNCTION {s}.issuer_batch_logged();"),
-        function("issuer_code_change_logged", f"""
+  RETURN NULL;""", constraint=True),
+        *guard("issuer_code_change_logged", "issued_code", "AFTER UPDATE", "DEFERRABLE INITIALLY DEFERRED FOR EACH ROW", f"""
   IF NOT EXISTS (SELECT 1 FROM log_entry e WHERE e.code IN (NEW.code, OLD.code) AND {_THIS_XACT})
      AND NOT EXISTS (SELECT 1 FROM log_entry e WHERE e.batch_id = NEW.batch_id AND {_THIS_XACT})
      AND NOT EXISTS (SELECT 1 FROM log_entry e WHERE e.series_id = NEW.series_id
                      AND e.action = 'import' AND {_THIS_XACT}) THEN
     {refuse('code % changed without a log entry for it', 'OLD.code')}
   END IF;
-  RETURN NULL;"""),
-        f"DROP TRIGGER IF EXISTS issuer_code_change_logged ON {s}.issued_code;",
-        (f"CREATE CONSTRAINT TRIGGER issuer_code_change_logged AFTER UPDATE ON {s}.issued_code "
-        f"DEFERRABLE INITIALLY DEFERRED FOR EACH ROW EXECUTE FUNCTION {s}.issuer_code_change_logged();"),
-        function("issuer_series_change_logged", f"""
+  RETURN NULL;""", constraint=True),
+        *guard("issuer_series_change_logged", "series", "AFTER UPDATE", "DEFERRABLE INITIALLY DEFERRED FOR EACH ROW", f"""
   IF NOT EXISTS (SELECT 1 FROM log_entry e WHERE e.series_id = NEW.id AND {_THIS_XACT}) THEN
     {refuse('series % changed without a log entry for it', 'OLD.key')}
   END IF;
-  RETURN NULL;"""),
-        f"DROP TRIGGER IF EXISTS issuer_series_change_logged ON {s}.series;",
-        (f"CREATE CONSTRAINT TRIGGER issuer_series_change_logged AFTER UPDATE ON {s}.series "
-        f"DEFERRABLE INITIALLY DEFERRED FOR EACH ROW EXECUTE FUNCTION {s}.issuer_series_change_logged();"),
-        function("issuer_log_act_by_role", f"""
+  RETURN NULL;""", constraint=True),
+        *guard("issuer_log_act_by_role", "log_entry", "BEFORE INSERT", "FOR EACH ROW", f"""
   IF NEW.action IN ({acts}) AND {clerk_only} THEN
     {refuse('a clerk cannot log the act %', 'NEW.action')}
   END IF;
   RETURN NEW;"""),
-        f"DROP TRIGGER IF EXISTS issuer_log_act_by_role ON {s}.log_entry;",
-        (f"CREATE TRIGGER issuer_log_act_by_role BEFORE INSERT ON {s}.log_entry "
-        f"FOR EACH ROW EXECUTE FUNCTION {s}.issuer_log_act_by_role();"),
     ]
     # ALWAYS: session_replication_role = replica does not switch them off
     statements += [f"ALTER TABLE {s}.{table} ENABLE ALWAYS TRIGGER {name};" for table, name in RIGHTS_TRIGGERS]
