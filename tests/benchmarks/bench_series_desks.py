@@ -5,7 +5,12 @@ whose ``issuer`` is an older build, e.g. one with a single register-wide log cha
 
 Every measurement gets a fresh database made by that build's own migrations; each desk is
 a separate process issuing one durable code per transaction (synchronous_commit on).
-Rounds interleave builds and desk counts so both builds see the same disk; medians.
+Beside them, the raw floor of the machine: a raw insert loop (one psycopg connection per
+process, autocommit, one durable one-row INSERT per transaction into one table with a
+unique index) with one connection and with eight, in separate processes like the desks.
+Its eight-vs-one ratio is the scaling the machine itself allows (2 cores, server and
+clients sharing them): the desks cannot scale further than it does.
+Rounds interleave builds, desk counts and the raw loops so all see the same disk; medians.
 "lock waits": of the eight desks' active database sessions, sampled every 5 ms, the share
 waiting for a lock (pg_stat_activity.wait_event_type = 'Lock'): the queue itself, which a
 busy machine's CPU shortage does not hide.
@@ -58,6 +63,34 @@ print(json.dumps({"start": start, "end": time.time()}), flush=True)
 register.close()
 """
 
+RAW_SETUP = """
+import sys
+import psycopg
+with psycopg.connect(sys.argv[1], autocommit=True) as connection:
+    connection.execute("CREATE TABLE raw_issued (id bigserial PRIMARY KEY, code text NOT NULL UNIQUE)")
+"""
+
+RAW = """
+import json, sys, time
+import psycopg
+url, name, count = sys.argv[1], sys.argv[2], int(sys.argv[3])
+with psycopg.connect(url, autocommit=True) as connection:
+    connection.execute("INSERT INTO raw_issued (code) VALUES (%s)", (name + "-warm",))  # connected and warm
+    print("ready", flush=True)
+    sys.stdin.readline()
+    start = time.time()
+    for n in range(count):
+        # autocommit: each INSERT is its own durable transaction (synchronous_commit on)
+        connection.execute("INSERT INTO raw_issued (code) VALUES (%s)", (f"{name}-{n}",))
+    print(json.dumps({"start": start, "end": time.time()}), flush=True)
+"""
+
+#: the name the raw loop's rates are kept under
+RAW_LOOP = "raw loop"
+#: a raw connection writes this many rows per code a desk issues (it is that much faster:
+#: a short run would measure the processes' start more than the loop)
+RAW_ROWS_PER_CODE = 10
+
 
 class LockSampler:
     """Samples pg_stat_activity every few milliseconds: how many of the desks' sessions are
@@ -96,12 +129,17 @@ WAITS: dict[str, list[float]] = {}
 
 
 def measure(python: str, desks: int, per_desk: int, folder: Path, name: str = "") -> float:
-    """Aggregate codes per second of ``desks`` desks, each in its own series."""
+    """Aggregate codes per second of ``desks`` desks, each in its own series (or, for
+    :data:`RAW_LOOP`, rows per second of ``desks`` raw insert loops)."""
     with temporary_database("series_desks") as database:
         url = database_url(database)
-        subprocess.run([python, "-c", SETUP, url, str(desks)], check=True, cwd=folder)
+        setup, script = SETUP, DESK
+        if name == RAW_LOOP:
+            url = url.replace("postgresql+psycopg://", "postgresql://")
+            setup, script, per_desk = RAW_SETUP, RAW, per_desk * RAW_ROWS_PER_CODE
+        subprocess.run([python, "-c", setup, url, str(desks)], check=True, cwd=folder)
         procs = [
-            subprocess.Popen([python, "-c", DESK, url, f"s{n}", str(per_desk)], cwd=folder,
+            subprocess.Popen([python, "-c", script, url, f"s{n}", str(per_desk)], cwd=folder,
                              stdin=subprocess.PIPE, stdout=subprocess.PIPE, text=True)
             for n in range(desks)
         ]  # fmt: skip
@@ -138,25 +176,31 @@ def main() -> None:
     if problem is not None:
         print(f"PostgreSQL skipped: {problem}")
         return
-    rates: dict[tuple[str, int], list[float]] = {(b, d): [] for b in builds for d in DESKS}
+    runs = {RAW_LOOP: sys.executable, **builds}  # the raw loop needs only psycopg
+    rates: dict[tuple[str, int], list[float]] = {(b, d): [] for b in runs for d in DESKS}
     loads = []
     with tempfile.TemporaryDirectory() as folder:  # the desks run outside the source tree
         for _ in range(ROUNDS):
-            for name, python in builds.items():
+            for name, python in runs.items():
                 for desks in DESKS:
                     loads.append(os.getloadavg()[0])
                     rates[(name, desks)].append(measure(python, desks, per_desk, Path(folder), name))
     print(f"PostgreSQL, desks each in their own in-order series, {per_desk} codes per desk, "
           f"median of {ROUNDS} interleaved rounds; load average {min(loads):.1f}-{max(loads):.1f}")
-    print(f"{'build':>12} {'1 desk/s':>9} {'8 desks/s':>10} {'8 vs 1':>7} {'lock waits':>10}   "
-          "rounds (1 desk | 8 desks)")
+    print(f"{'build':>12} {'1 desk/s':>9} {'8 desks/s':>10} {'8 vs 1':>7} {'1 vs raw 1':>10} "
+          f"{'8 vs raw 8':>10} {'lock waits':>10}   rounds (1 desk | 8 desks)")
+    raw_one, raw_eight = (statistics.median(rates[(RAW_LOOP, d)]) for d in DESKS)
     medians = {}
-    for name in builds:
+    for name in runs:
         one, eight = statistics.median(rates[(name, 1)]), statistics.median(rates[(name, 8)])
         medians[name] = (one, eight)
-        waits = statistics.median(WAITS.get(name, [0.0]))
-        print(f"{name:>12} {one:>9.1f} {eight:>10.1f} {eight / one:>7.2f} {waits:>10.0%}   "
-              f"{' '.join(f'{r:.0f}' for r in rates[(name, 1)])} | {' '.join(f'{r:.0f}' for r in rates[(name, 8)])}")
+        waits = "" if name == RAW_LOOP else f"{statistics.median(WAITS.get(name, [0.0])):.0%}"
+        print(f"{name:>12} {one:>9.1f} {eight:>10.1f} {eight / one:>7.2f} {one / raw_one:>10.2f} "
+              f"{eight / raw_eight:>10.2f} {waits:>10}   {' '.join(f'{r:.0f}' for r in rates[(name, 1)])} | "
+              f"{' '.join(f'{r:.0f}' for r in rates[(name, 8)])}")
+    print(f"targets: 8 desks >= 4x one desk, and >= 0.3 of the raw 8-connection loop; the raw loop "
+          f"itself scales {raw_eight / raw_one:.2f}x from 1 to 8 connections on this machine "
+          f"({os.cpu_count()} cores), the ceiling for the desks' 8 vs 1")
     if len(builds) == 2:
         (b1, e1), (b2, e2) = medians["before"], medians["this build"]
         print(f"this build / before: one desk {b2 / b1:.2f}x, eight desks {e2 / e1:.2f}x")
