@@ -245,6 +245,8 @@ class Placed:
     batch_id: int
     codes: list[str]
     bases: list[int]
+    #: the end of validity the codes were given (the series' period, an explicit end, or none)
+    valid_until: datetime | None = None
 
 
 def place_codes(
@@ -289,7 +291,7 @@ def place_codes(
     )  # fmt: skip
     close_batch(connection, batch_id)
     settle_counter(connection, series, count, counter)
-    return Placed(series, batch_id, codes, bases)
+    return Placed(series, batch_id, codes, bases, until)
 
 
 __all__ = [

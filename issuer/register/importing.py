@@ -331,6 +331,8 @@ def apply_import(
                 (row.issued_at or now, row.issued_by or register.actor) for row in plan.rows
             ),
             "links": [[old, new] for old, new in links],
+            # each code's own end of validity, as its file gave it (in id order; None: no end)
+            "valid_until_sha256": rows_digest((row.valid_until,) for row in plan.rows),
         })]  # fmt: skip
         entries.extend(
             NewEntry("void", series.id, row.code, None, {

@@ -33,7 +33,7 @@ from issuer.register.bulk import CHUNK, CodeSink, IssuedChunk, store_bulk
 from issuer.register.log import NewEntry, append_entry
 from issuer.register.models import Batch, IssuedCode, Series, in_batch
 from issuer.register.series import code_format
-from issuer.register.standing import clean_text, validity_for
+from issuer.register.standing import clean_text, validity_detail, validity_for
 from issuer.register.store import Register
 
 Progress = Callable[[int], None]
@@ -223,7 +223,11 @@ def issue_codes(
 
 
 def issue_detail(
-    codes: Sequence[str], request_id: str | None, holder: str | None = None, note: str | None = None
+    codes: Sequence[str],
+    request_id: str | None,
+    holder: str | None = None,
+    note: str | None = None,
+    valid_until: datetime | None = None,
 ) -> dict[str, Any]:
     """What the log entry of a small batch says about it (never holder text: the log keeps
     no personal data)."""
@@ -232,6 +236,7 @@ def issue_detail(
         "first": codes[0],
         "last": codes[-1],
         "codes_sha256": codes_digest(codes),
+        "valid_until": validity_detail(valid_until),
     }
     if request_id is not None:
         detail["request_id"] = request_id
@@ -260,7 +265,7 @@ def _issue_few(
     append_entry(
         session,
         NewEntry("issue", series.id, codes[0] if count == 1 else None, batch_id,
-                 issue_detail(codes, request_id, holder, note)),
+                 issue_detail(codes, request_id, holder, note, placed.valid_until)),
         actor=register.actor,
         at=at,
     )  # fmt: skip
@@ -295,10 +300,10 @@ def _issue_many(
         connection, series, kind="issue", count=count, request_id=request_id, at=at, actor=register.actor
     )
     shape = code_format(series.as_series)
+    until = validity_for(series.valid_for_days, at, valid_until)
     outcome = store_bulk(
         session, series=series.as_series, batch_id=batch_id, count=count, holder=holder, note=note,
-        at=at, actor=register.actor, collect=collect, sink=sink, progress=progress,
-        valid_until=validity_for(series.valid_for_days, at, valid_until),
+        at=at, actor=register.actor, collect=collect, sink=sink, progress=progress, valid_until=until,
     )  # fmt: skip
     close_batch(connection, batch_id)
     drawn_to = series.next_counter  # drawing moves the counters on as it goes
@@ -312,6 +317,7 @@ def _issue_many(
         "first": first_code,
         "last": last_code,
         "codes_sha256": outcome.digest.hexdigest(),
+        "valid_until": validity_detail(until),
     }
     if request_id is not None:
         detail["request_id"] = request_id

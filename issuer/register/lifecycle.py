@@ -20,7 +20,7 @@ from issuer.register.allotment import place_codes
 from issuer.register.log import NewEntry, append_entry
 from issuer.register.models import ISSUED, VOIDED, Batch, IssuedCode, LogEntry, Series
 from issuer.register.series import all_series, code_format, unknown_series
-from issuer.register.standing import standing
+from issuer.register.standing import standing, validity_detail
 from issuer.register.store import Register
 
 
@@ -219,7 +219,8 @@ def replace_code(register: Register, text: str, *, reason: str) -> Replacement:
         )
         append_entry(
             session,
-            NewEntry("replace", series.id, new_code, placed.batch_id, {"reason": why, "replaces": old.code}),
+            NewEntry("replace", series.id, new_code, placed.batch_id,
+                     {"reason": why, "replaces": old.code, "valid_until": validity_detail(placed.valid_until)}),
             actor=register.actor,
             at=at,
         )

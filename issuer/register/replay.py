@@ -49,8 +49,14 @@ class CodeExpect:
     expected_where: str | None = None
     #: (since, by, reason) while suspended, None when not; UNKNOWN: as an imported file said
     suspension: Any = None
-    #: what the last renewal made it (UNKNOWN: as its batch made it; issue entries do not say)
+    #: what the last renewal made it (UNKNOWN: never renewed, as its batch made it)
     valid_until: Any = UNKNOWN
+    #: what the first renewal found (UNKNOWN: never renewed, or an older renewal not saying):
+    #: the end its batch gave it, unless it was changed behind the tool's back before
+    valid_until_first: Any = UNKNOWN
+    renewals: int = 0
+    #: renewals that found another end than the renewal before them left (log entry ids)
+    valid_until_breaks: list[int] = field(default_factory=list)
     erased_at: datetime | None = None
     last_entry: int = 0
 
@@ -67,6 +73,11 @@ class BatchExpect:
     request_id: Any = UNKNOWN
     #: whether the entry carries every particular the replay checks (False: an older entry)
     complete: bool = True
+    #: the end of validity the batch gave its codes (text or None); UNKNOWN: an entry written
+    #: before issue and replace entries logged it (the replay then judges only renewed codes)
+    valid_until: Any = UNKNOWN
+    #: an import's codes each have their own: a digest over them in id order (None: not logged)
+    valid_until_sha256: str | None = None
 
 
 @dataclass
@@ -108,6 +119,7 @@ def _batch(kind: str) -> Effect:
             kind, e.id, e.actor, e.at, e.detail.get("holder", UNKNOWN), e.detail.get("note", UNKNOWN),
             e.detail.get("rows_sha256"), e.detail.get("request_id"),
             complete=kind != "import" or "rows_sha256" in e.detail,
+            valid_until=e.detail.get("valid_until", UNKNOWN), valid_until_sha256=e.detail.get("valid_until_sha256"),
         )  # fmt: skip
         for old, new in e.detail.get("links", []):
             replay.code(new, e.id).replaces = old
@@ -190,8 +202,16 @@ def _reinstated(replay: Replay, e: Entry) -> None:
 
 
 def _renewed(replay: Replay, e: Entry) -> None:
-    if e.code is not None and "valid_until" in e.detail:
-        replay.code(e.code, e.id).valid_until = e.detail["valid_until"]
+    if e.code is None or "valid_until" not in e.detail:
+        return
+    code = replay.code(e.code, e.id)
+    previous = e.detail.get("previous", UNKNOWN)
+    if code.renewals == 0:
+        code.valid_until_first = previous
+    elif previous is not UNKNOWN and code.valid_until is not UNKNOWN and not same_time(previous, code.valid_until):
+        code.valid_until_breaks.append(e.id)  # the end was changed between two renewals
+    code.valid_until = e.detail["valid_until"]
+    code.renewals += 1
 
 
 def _placed(replay: Replay, e: Entry) -> None:
@@ -291,12 +311,7 @@ def stored_time(value: Any) -> datetime | None:
 
 
 def same_time(one: Any, other: Any) -> bool:
+    """Whether two stored or logged times (datetime or text, None for none) are one moment."""
     if one is None or other is None:
         return one is other
-    if not isinstance(one, datetime):
-        one = datetime.fromisoformat(str(one))
-    if one.tzinfo is None:
-        from datetime import UTC
-
-        one = one.replace(tzinfo=UTC)
-    return bool(one == other)
+    return stored_time(one) == stored_time(other)

@@ -3,6 +3,7 @@ worked out from the log, code by code, batch by batch and series by series."""
 
 from __future__ import annotations
 
+from collections import Counter
 from collections.abc import Iterable
 from datetime import datetime
 from typing import Any
@@ -47,6 +48,12 @@ def _code_problems(replay: Replay, row: Any, expect: CodeExpect) -> list[str]:
     if expect.voided_at is not UNKNOWN and not same_time(row[9], expect.voided_at):
         problems.append(f"{code}: voided at {row[9]}, the log's acts imply {expect.voided_at}{where}")
     problems += _standing_problems(row, expect, code, where)
+    problems += [f"{code}: renewed by log entry #{entry} from an end the renewal before did not leave"
+                 for entry in expect.valid_until_breaks]  # fmt: skip
+    if (batch is not None and batch.valid_until is not UNKNOWN and expect.valid_until_first is not UNKNOWN
+            and not same_time(expect.valid_until_first, batch.valid_until)):
+        problems.append(f"{code}: its first renewal found it valid until {expect.valid_until_first}, "
+                        f"its batch gave {batch.valid_until}{where}")  # fmt: skip
     if batch is None or batch.complete:
         held_seen = timestamp_text(row[10]) if isinstance(row[10], datetime) else row[10]
         if held_seen != expect.seen_at or row[11] != expect.seen_where:
@@ -116,6 +123,7 @@ def replay_problems(session: Session) -> tuple[list[str], list[str], int]:
     problems: list[str] = []
     named = sorted(replay.codes)
     found: set[str] = set()
+    renewed: Counter[tuple[int, Any]] = Counter()  # (batch, end of validity now) -> renewed codes
     for chunk in _chunks(named):
         marks = ", ".join(f":c{i}" for i in range(len(chunk)))
         params = {f"c{i}": code for i, code in enumerate(chunk)}
@@ -123,7 +131,10 @@ def replay_problems(session: Session) -> tuple[list[str], list[str], int]:
             found.add(row[0])
             fixed = list(row)
             fixed[9], fixed[10] = _moment(row[9]), _moment(row[10])
-            problems += _code_problems(replay, fixed, replay.codes[row[0]])
+            expect = replay.codes[row[0]]
+            problems += _code_problems(replay, fixed, expect)
+            if expect.valid_until is not UNKNOWN:
+                renewed[(row[7], _moment(row[18]))] += 1
     problems += [f"{code}: named by log entry #{replay.codes[code].last_entry} but not in the register"
                  for code in named if code not in found]  # fmt: skip
     # codes no act names: as their batch made them
@@ -145,6 +156,7 @@ def replay_problems(session: Session) -> tuple[list[str], list[str], int]:
             changed = ", ".join(f"{k} {v!r}" for k, v in what.items() if v not in (None, 0, ISSUED))
             problems.append(f"{row[0]}: {changed}, but no act in the log names this code")
     problems += _batch_problems(session, replay)
+    problems += _validity_problems(session, replay, renewed)
     problems += _series_problems(session, replay)
     problems += _text_problems(session)
     problems += _search_key_problems(session)
@@ -204,6 +216,46 @@ def _batch_problems(session: Session, replay: Replay) -> list[str]:
             ), {"b": batch_id}):
                 problems.append(f"{code}: says issued by {origin_by} at {origin_at}, batch {batch_id} "
                                 f"was made by {actor} at {created}")  # fmt: skip
+    return problems
+
+
+def _validity_problems(session: Session, replay: Replay, renewed: Counter[tuple[int, Any]]) -> list[str]:
+    """Every code never renewed is valid until what its batch's entry gave it. One grouped
+    read of the register: a batch whose codes hold another end than its entry logged is
+    looked at code by code only when renewed codes do not account for the difference."""
+    problems: list[str] = []
+    for batch_id, held, count in session.execute(text(
+        "SELECT batch_id, valid_until, count(*) FROM issued_code GROUP BY batch_id, valid_until"
+    )):  # fmt: skip
+        expect = replay.batches.get(batch_id)
+        if expect is None or expect.valid_until is UNKNOWN or same_time(held, expect.valid_until):
+            continue
+        if renewed[(batch_id, _moment(held))] == count:
+            continue
+        which = "valid_until IS NULL" if held is None else "valid_until = :v"
+        for (code,) in session.execute(text(
+            f"SELECT code FROM issued_code WHERE {batch_range_sql()} AND {which} ORDER BY id LIMIT 50"
+        ), {"b": batch_id, "v": held}):  # fmt: skip
+            if code not in replay.codes or replay.codes[code].valid_until is UNKNOWN:
+                problems.append(f"{code}: valid until {_moment(held)}, log entry #{expect.entry} "
+                                f"gave its batch {expect.valid_until} and no renewal names it")  # fmt: skip
+    for batch_id, expect in replay.batches.items():
+        if expect.valid_until_sha256 is None:
+            continue
+        # each code's end when the batch was made: before its first renewal, else as it is now
+        ends = []
+        for code, held in session.execute(text(
+            f"SELECT code, valid_until FROM issued_code WHERE {batch_range_sql()} ORDER BY id"
+        ), {"b": batch_id}):  # fmt: skip
+            named = replay.codes.get(code)
+            first = named.valid_until_first if named is not None and named.renewals else _moment(held)
+            if first is UNKNOWN:
+                break
+            ends.append((stored_time(first),))
+        else:
+            if rows_digest(ends) != expect.valid_until_sha256:
+                problems.append(f"batch {batch_id}: its codes' ends of validity differ from those "
+                                f"logged by entry #{expect.entry}")  # fmt: skip
     return problems
 
 

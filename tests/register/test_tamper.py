@@ -44,11 +44,10 @@ from tests.register.sidestep import as_replica, sidestep
 NOW = datetime(2026, 5, 4, 10, 0, tzinfo=UTC)
 
 #: columns whose single edits the replay cannot always judge, and why:
-#: * valid_until of a code never renewed: issue entries do not log it (a renewal's is replayed);
 #: * holder and note text: the log keeps no personal data. An edit of the text alone is caught
 #:   through its search key (``holder_key`` must be what the text makes), but an edit of text
 #:   and key together is not: no digest of the texts is chained yet.
-NOT_YET_REPLAYED = frozenset(("valid_until", "holder", "holder_key", "note", "note_key"))
+NOT_YET_REPLAYED = frozenset(("holder", "holder_key", "note", "note_key"))
 
 
 @dataclass
@@ -307,7 +306,7 @@ def _report(scene: Scene, outcomes: list[Outcome], how: str) -> list[str]:
           f"{sum(o.result != 'missed' for o in answering)}/{len(answering)} of those that change a check answer; "
           f"missed: {[o.edit.name for o in missed]}")  # fmt: skip
     pending = [o.edit.name for o in answering if o.result == "missed" and o.edit.kind.split()[-1] in NOT_YET_REPLAYED]
-    print(f"not replayed (valid_until before a renewal; holder and note text): {pending}")
+    print(f"not replayed (holder and note text): {pending}")
     return [o.edit.name for o in answering if o.result == "missed" and o.edit.name not in pending]
 
 
