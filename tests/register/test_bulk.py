@@ -68,7 +68,7 @@ def test_in_order_bulk_batch_stores_every_row_and_one_log_entry(anywhere: Regist
         entry = session.scalars(select(LogEntry).where(LogEntry.batch_id == result.batch)).one()
         detail = json.loads(entry.detail)
         assert detail == {"count": 1_000, "first": rows[0][0], "last": rows[-1][0],
-                          "codes_sha256": codes_digest([row[0] for row in rows])}
+                          "codes_sha256": codes_digest([row[0] for row in rows]), "valid_until": None}
         assert verify_chain(session).intact
         series = get_series(session, "tools")
         assert (series.next_counter, series.code_count) == (1_003, 1_003)
