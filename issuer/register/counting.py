@@ -9,6 +9,7 @@ the register happens above (:mod:`issuer.stocktake.counts`), from the rows kept 
 
 from __future__ import annotations
 
+import hashlib
 import json
 from collections.abc import Callable
 from dataclasses import dataclass, field
@@ -176,6 +177,10 @@ def open_count(register: Register, name: str, key: str, scope: CountScope, *, zo
         detail = {"count": name, "scope": scope.kind, "zone": zone}
         if text is not None and scope.kind != "holder":  # a holder's name stays out of the log
             detail["scope_text"] = text
+        if first is not None:  # a range's numbers, a batch's id
+            detail["scope_first"] = first
+        if last is not None:
+            detail["scope_last"] = last
         append_entry(session, NewEntry("count_open", series.id, None, None, detail), actor=register.actor, at=now)
         return _info(session, count, series.key)
 
@@ -206,12 +211,18 @@ def close_count(
             record(session, series, now)
         count.state, count.closed_at, count.closed_by = COUNT_CLOSED, now, register.actor
         count.result = json.dumps(result, separators=(",", ":"), default=str)
-        detail = {"count": count.name, **result.get("counts", {})}
+        # the frozen result's digest: the doctor compares the stored result with it
+        detail = {"count": count.name, **result.get("counts", {}), "result_sha256": result_digest(count.result)}
         append_entries(session, [NewEntry("count_close", series.id, None, None, detail)], actor=register.actor, at=now)
         session.flush()
         return _info(session, count, series.key)
 
     return register.write(work)
+
+
+def result_digest(result: str) -> str:
+    """SHA-256 (hex) of a count's stored result text, as its close entry logs it."""
+    return hashlib.sha256(result.encode("utf-8")).hexdigest()
 
 
 def scope_query_filter(count: StockCount | CountInfo) -> tuple[str, tuple[Any, ...]]:
@@ -237,5 +248,6 @@ __all__ = [
     "get_count",
     "list_counts",
     "open_count",
+    "result_digest",
     "scope_query_filter",
 ]

@@ -14,7 +14,9 @@ not wrong) or ``problem`` (the register disagrees with itself). The checks:
 * voids logged, replacement links pointing both ways;
 * the log replayed against the register (:mod:`issuer.register.replay`): each code's
   status, void reason, links, holder, print count and last sighting, each batch's kind
-  and author, each series' shape, as the logged acts imply;
+  and author, each series' shape, as the logged acts imply; each access token, stock
+  count (its files and scanned lines) and batch id range as its acts left it
+  (:mod:`issuer.register.replay_rows`);
 * SQLite: the file and its folder owner-only, temporaries of output files left behind by
   a stopped process reported (``--fix`` removes them); PostgreSQL: the log's append-only triggers, the append
   function and the counter guard in force (missing or disabled is a problem), and the
@@ -194,6 +196,9 @@ def check_batches(session: Session) -> Finding:
             "OR c.id < b.code_id_from OR c.id > b.code_id_to ORDER BY c.id LIMIT 50"
         ))
     ]
+    from issuer.register.replay_rows import batch_range_problems
+
+    problems += batch_range_problems(session)
     total = session.execute(text("SELECT count(*) FROM batch")).scalar_one()
     return _finding("batches", problems, f"{total} batch(es), each whole", "{n} batch problem(s)")
 
@@ -285,6 +290,24 @@ def check_replay(session: Session) -> Finding:
     return Finding("replay", OK, f"the register is what its log's acts imply ({named:,} codes and batches named)")
 
 
+def check_tokens(session: Session) -> Finding:
+    from issuer.register.replay_rows import may_read_tokens, token_problems
+
+    if not may_read_tokens(session):
+        return Finding("tokens", SKIPPED, "this login may not read the service's tokens (the owner's doctor compares them)")
+    problems, held = token_problems(session)
+    return _finding("tokens", problems, f"{held} access token(s), each as its logged acts left it",
+                    "{n} difference(s) between the access tokens and the log's token acts")  # fmt: skip
+
+
+def check_counts(session: Session) -> Finding:
+    from issuer.register.replay_rows import count_problems
+
+    problems, held = count_problems(session)
+    return _finding("stock counts", problems, f"{held} stock count(s), their files and scans as logged",
+                    "{n} difference(s) between the stock counts and the log's count acts")  # fmt: skip
+
+
 def check_guard(register: Register, session: Session) -> Finding:
     if register.backend == "sqlite":
         path = sqlite_path(register)
@@ -350,6 +373,8 @@ def run_doctor(register: Register, stage: Stage | None = None, *, fix: bool = Fa
             run("states", lambda: check_states(session, register.clock()), session)
             run("fill", lambda: check_fill(session), session)
             run("replay", lambda: check_replay(session), session)
+            run("tokens", lambda: check_tokens(session), session)
+            run("stock counts", lambda: check_counts(session), session)
         run("access", lambda: check_guard(register, session), session)
     path = sqlite_path(register)
     findings.append(Finding("folder", *check_folder(path)))

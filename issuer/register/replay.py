@@ -270,7 +270,8 @@ ACTS: dict[str, Effect] = {
     "renew": _renewed,  # validity moves on; the status stays what it was
     "placed": _placed,
     "stocktake": _nothing,
-    # stock counts keep their own tables; access tokens theirs: no code, batch or series changes
+    # stock counts keep their own tables, access tokens theirs (replay_rows compares them): no code,
+    # batch or series changes
     "count_open": _nothing,
     "count_add": _nothing,
     "count_close": _nothing,

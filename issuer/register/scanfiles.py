@@ -5,9 +5,10 @@ line order for :mod:`issuer.stocktake.counts`. The count itself is
 
 from __future__ import annotations
 
-from collections.abc import Callable, Sequence
+import hashlib
+from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass
-from datetime import datetime
+from datetime import UTC, datetime
 from typing import Any
 
 from sqlalchemy import select
@@ -107,7 +108,10 @@ def add_scan_file(
             ])  # fmt: skip
             if progress is not None:
                 progress(len(part))
-        detail = {"count": count.name, "file": record.name, "digest": record.digest, "scans": record.scans}
+        detail = {"count": count.name, "file": record.name, "digest": record.digest, "scans": record.scans,
+                  "zone": record.zone, "blank_lines": record.blank_lines, "comment_lines": record.comment_lines,
+                  "scans_sha256": scans_digest((row.line, row.scanned[:SCANNED_WIDTH], row.at, row.where)
+                                               for row in sorted(rows, key=_line_of))}  # fmt: skip
         if record.scanner:
             detail["scanner"] = record.scanner
         append_entry(session, NewEntry("count_add", count.series_id, None, None, detail), actor=register.actor, at=now)
@@ -118,6 +122,46 @@ def add_scan_file(
     except DuplicateRow:
         # another desk added the same file at the same moment; its digest is taken now
         raise Conflict(f"{scan_file.name} was added to count {name!r} already (same contents)") from None
+
+
+def _line_of(row: ScanRow) -> int:
+    return row.line
+
+
+def scans_digest(rows: Iterable[tuple[int, str, Any, str | None]]) -> str:
+    """SHA-256 (hex) over a file's scanned lines as stored (line, text, time, place) in line
+    order: its add entry logs it, and the doctor recomputes it from the rows (an edited
+    scan changes what the count answers). Times count as UTC instants, whatever their
+    stored form (a naive time means UTC, as the register stores it); each text is
+    preceded by its length, so no two rows read alike."""
+    digest = hashlib.sha256()
+    for line, scanned, at, where in rows:
+        digest.update(scan_line_text(line, scanned, at, where))
+    return digest.hexdigest()
+
+
+def scan_line_text(line: int, scanned: str, at: Any, where: str | None) -> bytes:
+    """One scanned line as :func:`scans_digest` hashes it (its time as the ISO text of the
+    UTC instant, without a zone: cheap to make from either backend's stored form)."""
+    if at is None:
+        moment = ""
+    else:
+        if isinstance(at, str):  # SQLite's stored text
+            at = datetime.fromisoformat(at)
+        if at.tzinfo is not None:
+            at = at.astimezone(UTC).replace(tzinfo=None)
+        moment = at.isoformat()
+    place = "" if where is None else f"{len(where)}:{where}"
+    return f"{line}\t{len(scanned)}:{scanned}\t{moment}\t{place}\n".encode("utf-8", "surrogatepass")
+
+
+def _utc(moment: Any) -> datetime:
+    """A time as given or stored (text on SQLite, naive meaning UTC) as an aware UTC datetime."""
+    if isinstance(moment, str):
+        moment = datetime.fromisoformat(moment)
+    if moment.tzinfo is None:
+        return moment.replace(tzinfo=UTC)  # type: ignore[no-any-return]
+    return moment.astimezone(UTC)  # type: ignore[no-any-return]
 
 
 def _refuse_twice(session: Session, count: StockCount, scan_file: ScanFile) -> None:
@@ -188,13 +232,7 @@ def count_scans(session: Session, count: StockCount) -> CountScans:
 
 def _moment_text(moment: Any) -> str:
     """A stored time as the driver gives it (text on SQLite, a datetime elsewhere) as UTC ISO text."""
-    from datetime import UTC
-
-    if isinstance(moment, str):
-        moment = datetime.fromisoformat(moment)
-    if moment.tzinfo is None:
-        moment = moment.replace(tzinfo=UTC)
-    return str(moment.astimezone(UTC).isoformat())
+    return str(_utc(moment).isoformat())
 
 
 __all__ = [
@@ -206,4 +244,6 @@ __all__ = [
     "add_scan_file",
     "count_files",
     "count_scans",
+    "scan_line_text",
+    "scans_digest",
 ]

@@ -81,6 +81,12 @@ def _hash(secret: str, salt: bytes) -> bytes:
     return hashlib.scrypt(secret.encode("ascii"), salt=salt, **_SCRYPT)
 
 
+def credential_digest(lookup: str, salt: bytes, digest: bytes) -> str:
+    """SHA-256 (hex) over a token's lookup, salt and secret's hash: what its add entry logs,
+    so a row whose credential was swapped behind the tool's back shows (never the secret)."""
+    return hashlib.sha256(f"{lookup}\n{bytes(salt).hex()}\n{bytes(digest).hex()}".encode("ascii")).hexdigest()
+
+
 def check_token_name(name: str) -> str:
     if not _NAME.match(name):
         raise InvalidFormat(
@@ -109,8 +115,9 @@ def add_token(register: Register, name: str, role: str) -> tuple[TokenInfo, str]
         )  # fmt: skip
         session.add(row)
         session.flush()
-        append_entry(session, NewEntry("token-add", detail={"token": name, "role": role}),
-                     actor=register.actor, at=at)  # fmt: skip
+        detail = {"token": name, "role": role, "lookup": lookup,
+                  "credential_sha256": credential_digest(lookup, salt, digest)}  # fmt: skip
+        append_entry(session, NewEntry("token-add", detail=detail), actor=register.actor, at=at)
         return _info(row)
 
     info = register.write(work)

@@ -211,6 +211,11 @@ def test_the_command_line_says_no_in_one_line(guarded: Guarded) -> None:
     # the clerk can still check the register's health (reading is all it needs)
     health = runner.invoke(app, ["doctor", "--db", guarded.clerk, "--json"])
     assert health.exit_code == 0, health.output
+    import json
+
+    # the service's tokens are the owner's alone: the clerk's doctor says it skipped them
+    tokens = next(f for f in json.loads(health.stdout)["findings"] if f["check"] == "tokens")
+    assert tokens["status"] == "skipped" and "may not read" in tokens["summary"]
 
 
 def test_db_roles_prints_the_policy(guarded: Guarded, groups: Groups) -> None:

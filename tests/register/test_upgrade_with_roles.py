@@ -54,14 +54,19 @@ def _tables_and_triggers(url: str) -> tuple[set[str], set[str]]:
 
 
 def _old_acts(url: str) -> None:
-    """Acts as the older release logged them, through that revision's append function."""
+    """A token made as the older release made it (its entry names no lookup), logged through
+    that revision's append function."""
     engine = create_engine(engine_url(url))
     try:
         with engine.begin() as connection:
             payload = [{"action": "token-add", "series": None, "code": None, "batch": None,
                         "detail": json.dumps({"role": "clerk", "token": "side-desk"}, sort_keys=True)}]  # fmt: skip
-            connection.execute(text("SELECT issuer_log_append(:at, 'owner', :e)"),
-                               {"at": datetime(2026, 4, 7, 9, 0, tzinfo=UTC), "e": json.dumps(payload)})  # fmt: skip
+            at = datetime(2026, 4, 7, 9, 0, tzinfo=UTC)
+            connection.execute(text(
+                "INSERT INTO access_token (name, lookup, role, salt, digest, created_at, created_by) "
+                "VALUES ('side-desk', '00112233aabbccdd', 'clerk', :s, :d, :at, 'owner')"
+            ), {"s": b"\x01" * 16, "d": b"\x02" * 32, "at": at})  # fmt: skip
+            connection.execute(text("SELECT issuer_log_append(:at, 'owner', :e)"), {"at": at, "e": json.dumps(payload)})
     finally:
         engine.dispose()
 

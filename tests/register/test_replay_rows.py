@@ -1,0 +1,238 @@
+"""The doctor replays the rows outside the codes against the log (issue 10): the service's
+access tokens, stock counts with their files and scanned lines, and each batch's id range.
+Each edit made behind the tool's back is reported by the check that owns the row, naming
+it; a register as its acts left it is healthy, and entries an older release wrote (without
+the particulars logged now) are compared only on what they say."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+import pytest
+from sqlalchemy import create_engine, text
+
+from issuer.register.counting import CountScope
+from issuer.register.defining import SeriesSpec, add_series
+from issuer.register.doctor import run_doctor
+from issuer.register.issuing import issue_codes
+from issuer.register.log import NewEntry, append_entry
+from issuer.register.models import AccessToken
+from issuer.register.store import database_url, open_register
+from issuer.register.tokens import add_token, revoke_token, verify_token
+from issuer.stocktake.counts import add_files, count_status, finish_count, start_count
+from tests.register.pg import pg_database, pg_url, register_url  # noqa: F401
+from tests.register.sidestep import sql_behind_the_back
+
+
+@dataclass
+class Scene:
+    url: str
+    codes: list[str]
+    token: str  # the full text of the active token
+
+
+def _scene(url: str, folder: Path) -> Scene:
+    register = open_register(url, actor="quartermaster")
+    add_series(register, SeriesSpec(key="tools", scheme="luhn", length=6, prefix="T"))
+    codes = [i.code for i in issue_codes(register, "tools", 6).codes]
+    codes += [i.code for i in issue_codes(register, "tools", 2).codes]
+    _info, token = add_token(register, "front-desk", "clerk")
+    add_token(register, "night-desk", "admin")
+    revoke_token(register, "night-desk")
+    # a closed count of a range, and an open count of the second batch
+    start_count(register, "spring", "tools", CountScope("range", first=codes[0], last=codes[3]), tz="UTC")
+    shelf = folder / "shelf-a.csv"
+    shelf.write_text(f"code,seen,place\n{codes[0]},,\n{codes[1]},2026-05-04T10:00:00Z,aisle 3\n{codes[2]},,\n",
+                     encoding="utf-8")  # fmt: skip
+    add_files(register, "spring", [shelf], scanner="wand 2", column="code", time_column="seen", where_column="place")
+    finish_count(register, "spring")
+    with register.reading() as session:
+        second = session.execute(text("SELECT max(id) FROM batch")).scalar_one()
+    start_count(register, "autumn", "tools", CountScope("batch", batch=int(second)), tz="UTC")
+    bench = folder / "bench.txt"
+    bench.write_text(f"{codes[6]}\n{codes[7]}\n", encoding="utf-8")
+    add_files(register, "autumn", [bench])
+    register.close()
+    return Scene(url, codes, token)
+
+
+@pytest.fixture
+def scene(register_url: str, tmp_path: Path) -> Scene:  # noqa: F811
+    return _scene(register_url, tmp_path)
+
+
+def doctor(url: str) -> dict[str, Any]:
+    register = open_register(url, actor="doctor", upgrade=False)
+    try:
+        return {f.check: f for f in run_doctor(register).findings}
+    finally:
+        register.close()
+
+
+def test_a_register_as_its_acts_left_it_is_whole(scene: Scene) -> None:
+    found = doctor(scene.url)
+    assert {name: f.status for name, f in found.items() if f.status == "problem"} == {}
+    assert found["tokens"].status == found["stock counts"].status == found["batches"].status == "ok"
+    assert "2 access token(s)" in found["tokens"].summary and "2 stock count(s)" in found["stock counts"].summary
+
+
+TOKEN_EDITS = {
+    "role raised": ("UPDATE access_token SET role = 'admin' WHERE name = 'front-desk'", "front-desk: role 'admin'"),
+    "un-revoked": ("UPDATE access_token SET revoked_at = NULL, revoked_by = NULL WHERE name = 'night-desk'",
+                   "night-desk: revoked at None"),
+    "revoked unlogged": ("UPDATE access_token SET revoked_at = created_at, revoked_by = 'x' WHERE name = 'front-desk'",
+                         "front-desk: revoked at"),
+    "renamed": ("UPDATE access_token SET name = 'back-door' WHERE name = 'front-desk'", "back-door: no logged act"),
+    "salt": ("UPDATE access_token SET salt = digest WHERE name = 'front-desk'", "front-desk: its salt or secret"),
+    "lookup": ("UPDATE access_token SET lookup = '0123456789abcdef' WHERE name = 'front-desk'", "front-desk: lookup"),
+    "maker": ("UPDATE access_token SET created_by = 'someone' WHERE name = 'front-desk'", "front-desk: made by someone"),
+    "inserted": ("INSERT INTO access_token (name, lookup, role, salt, digest, created_at, created_by) "
+                 "SELECT 'side-door', 'fedcba9876543210', 'admin', salt, digest, created_at, created_by "
+                 "FROM access_token WHERE name = 'front-desk'", "side-door: no logged act made it"),
+    "deleted": ("DELETE FROM access_token WHERE name = 'night-desk'", "night-desk: made by log entry"),
+}  # fmt: skip
+
+
+@pytest.mark.parametrize("case", sorted(TOKEN_EDITS))
+def test_a_token_edited_behind_the_logs_back_is_named(scene: Scene, case: str) -> None:
+    statement, words = TOKEN_EDITS[case]
+    sql_behind_the_back(scene.url, statement)
+    found = doctor(scene.url)["tokens"]
+    assert found.status == "problem" and any(f"token {words}" in line for line in found.details), found.details
+
+
+def test_the_token_checks_do_not_slow_or_block_the_service(scene: Scene) -> None:
+    """The service still takes the token the doctor compared (the add entry holds no secret)."""
+    register = open_register(scene.url, actor="service")
+    try:
+        assert verify_token(register, scene.token) is not None
+        with register.reading() as session:
+            logged = session.execute(text("SELECT detail FROM log_entry WHERE action = 'token-add'")).scalars().all()
+    finally:
+        register.close()
+    secret = scene.token.rsplit("_", 1)[-1]
+    assert logged and all(secret not in detail for detail in logged)
+    assert all('"lookup"' in detail and '"credential_sha256"' in detail for detail in logged)
+
+
+def test_an_older_token_entry_is_compared_on_what_it_says(register_url: str) -> None:  # noqa: F811
+    """A token-add entry of an older release logged the name and role, not the lookup or
+    credential: those are unknown, the role is still compared."""
+    from datetime import UTC, datetime
+
+    register = open_register(register_url, actor="quartermaster")
+    at = datetime(2026, 4, 7, 9, 0, tzinfo=UTC)
+
+    def older_add(session: Any) -> None:
+        session.add(AccessToken(name="side-desk", lookup="00112233aabbccdd", role="clerk", salt=b"\x01" * 16,
+                                digest=b"\x02" * 32, created_at=at, created_by="quartermaster"))  # fmt: skip
+        append_entry(session, NewEntry("token-add", detail={"token": "side-desk", "role": "clerk"}),
+                     actor="quartermaster", at=at)  # fmt: skip
+
+    register.write(older_add)
+    register.close()
+    assert doctor(register_url)["tokens"].status == "ok"
+    sql_behind_the_back(register_url, "UPDATE access_token SET salt = digest, lookup = 'ffffffffffffffff'")
+    assert doctor(register_url)["tokens"].status == "ok"  # unknown to that entry
+    sql_behind_the_back(register_url, "UPDATE access_token SET role = 'admin'")
+    assert doctor(register_url)["tokens"].status == "problem"
+
+
+def _first_scan(scene: Scene) -> int:
+    engine = create_engine(database_url(scene.url))
+    try:
+        with engine.connect() as connection:
+            return int(connection.execute(text("SELECT min(id) FROM stock_count_scan")).scalar_one())
+    finally:
+        engine.dispose()
+
+
+COUNT_EDITS = {
+    "reopened": ("UPDATE stock_count SET state = 'open', closed_at = NULL, closed_by = NULL, result = NULL "
+                 "WHERE name = 'spring'", "count spring: open, closed by log entry"),
+    "result": ("UPDATE stock_count SET result = replace(result, '\"found\"', '\"fund\"') WHERE name = 'spring'",
+               "count spring: its frozen result"),
+    "closed unlogged": ("UPDATE stock_count SET state = 'closed' WHERE name = 'autumn'",
+                        "count autumn: closed, closed at None"),
+    "range narrowed": ("UPDATE stock_count SET scope_last = scope_last - 1 WHERE name = 'spring'",
+                       "count spring: scope_last"),
+    "batch moved": ("UPDATE stock_count SET scope_first = scope_first - 1 WHERE name = 'autumn'",
+                    "count autumn: scope_first"),
+    "scope": ("UPDATE stock_count SET scope = 'all' WHERE name = 'autumn'", "count autumn: scope is 'all'"),
+    "zone": ("UPDATE stock_count SET zone = 'Europe/Paris' WHERE name = 'autumn'", "count autumn: zone"),
+    "renamed": ("UPDATE stock_count SET name = 'winter' WHERE name = 'autumn'", "count winter: no logged act"),
+    "file scans": ("UPDATE stock_count_file SET scans = scans + 1 WHERE name = 'bench.txt'",
+                   "count autumn, file bench.txt: scans is 3"),
+    "file digest": ("UPDATE stock_count_file SET digest = CASE WHEN substr(digest, 1, 1) = 'a' THEN 'b' ELSE 'a' END || substr(digest, 2) WHERE name = 'bench.txt'",
+                    "count autumn, file bench.txt: no logged act added"),
+    "file scanner": ("UPDATE stock_count_file SET scanner = NULL WHERE name = 'shelf-a.csv'",
+                     "count spring, file shelf-a.csv: scanner None"),
+    "file maker": ("UPDATE stock_count_file SET added_by = 'x' WHERE name = 'bench.txt'",
+                   "count autumn, file bench.txt: added by x"),
+    "scan text": ("UPDATE stock_count_scan SET scanned = 'T999999' WHERE id = :first",
+                  "count spring, file shelf-a.csv: its scanned lines"),
+    "scan time": ("UPDATE stock_count_scan SET seen_at = NULL WHERE seen_at IS NOT NULL",
+                  "count spring, file shelf-a.csv: its scanned lines"),
+    "scan place": ("UPDATE stock_count_scan SET seen_where = 'aisle 4' WHERE seen_where IS NOT NULL",
+                   "count spring, file shelf-a.csv: its scanned lines"),
+    "scan deleted": ("DELETE FROM stock_count_scan WHERE id = :first", "count spring, file shelf-a.csv: holds 2"),
+    "scan inserted": ("INSERT INTO stock_count_scan (count_id, file_id, line, scanned) "
+                      "SELECT count_id, file_id, 9, scanned FROM stock_count_scan WHERE id = :first",
+                      "count spring, file shelf-a.csv: holds 4"),
+}  # fmt: skip
+
+
+@pytest.mark.parametrize("case", sorted(COUNT_EDITS))
+def test_a_stock_count_edited_behind_the_logs_back_is_named(scene: Scene, case: str) -> None:
+    statement, words = COUNT_EDITS[case]
+    sql_behind_the_back(scene.url, statement, **({"first": _first_scan(scene)} if ":first" in statement else {}))
+    found = doctor(scene.url)["stock counts"]
+    assert found.status == "problem" and any(line.startswith(words) for line in found.details), found.details
+
+
+def test_an_edited_scan_changes_the_counts_answer_and_is_caught(scene: Scene) -> None:
+    """Why the scanned lines are digested: the open count answers from them."""
+    register = open_register(scene.url, actor="desk")
+    try:
+        before = count_status(register, "autumn").found
+        sql_behind_the_back(scene.url, "UPDATE stock_count_scan SET scanned = :c WHERE scanned = :d",
+                            c=scene.codes[0], d=scene.codes[7])  # fmt: skip
+        assert count_status(register, "autumn").found != before
+    finally:
+        register.close()
+    assert doctor(scene.url)["stock counts"].status == "problem"
+
+
+def test_a_widened_batch_range_is_named(scene: Scene) -> None:
+    engine = create_engine(database_url(scene.url))
+    with engine.connect() as connection:
+        first, second = [int(b) for (b,) in connection.execute(text("SELECT id FROM batch ORDER BY id"))]
+        backend = connection.dialect.name
+    engine.dispose()
+    # its range reaching into the next batch's codes (written after its act)
+    sql_behind_the_back(scene.url, "UPDATE batch SET code_id_to = code_id_to + 1 WHERE id = :b", b=first)
+    found = doctor(scene.url)["batches"]
+    assert found.status == "problem" and any(line.startswith(f"batch {first}: ") for line in found.details), found.details
+    sql_behind_the_back(scene.url, "UPDATE batch SET code_id_to = code_id_to - 1 WHERE id = :b", b=first)
+    assert doctor(scene.url)["batches"].status == "ok"
+    if backend == "sqlite":  # one writer: a range is exactly its batch's codes, so a lower start shows too
+        sql_behind_the_back(scene.url, "UPDATE batch SET code_id_from = code_id_from - 1 WHERE id = :b", b=second)
+        found = doctor(scene.url)["batches"]
+        assert found.status == "problem" and any(line.startswith(f"batch {second}: ") for line in found.details)
+
+
+def test_a_batch_moved_to_another_series_is_named(register_url: str) -> None:  # noqa: F811
+    register = open_register(register_url, actor="quartermaster")
+    add_series(register, SeriesSpec(key="tools", scheme="luhn", length=6, prefix="T"))
+    add_series(register, SeriesSpec(key="passes", scheme="luhn", length=5, prefix="D"))
+    issue_codes(register, "tools", 2)
+    register.close()
+    # the batch and its codes moved together: each code still sits in a batch of its own series
+    sql_behind_the_back(register_url, "UPDATE batch SET series_id = (SELECT id FROM series WHERE key = 'passes') "
+                        "WHERE id = (SELECT min(id) FROM batch)")  # fmt: skip
+    sql_behind_the_back(register_url, "UPDATE issued_code SET series_id = (SELECT id FROM series WHERE key = 'passes') "
+                        "WHERE batch_id = (SELECT min(id) FROM batch)")  # fmt: skip
+    found = doctor(register_url)["batches"]
+    assert found.status == "problem" and any("made it in series" in line for line in found.details), found.details
