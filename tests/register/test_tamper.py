@@ -3,8 +3,9 @@ back with the triggers side-stepped (as the table's owner can), on SQLite and Po
 
 Each edit is either refused by the database even so (a key or constraint), caught by
 ``issuer doctor``, or missed. A missed edit must not change what ``issuer check`` answers
-for any code of the register (status, void reason, holder, replacement, series, display):
-those are the promises a desk relies on. The figures (caught / total, and caught / total
+for any code of the register (status, void reason, holder, replacement, series, display),
+what ``stocktake status`` answers for a count (an open one reads its scans), nor the
+service's list of tokens (role, active): those are the promises a desk relies on. The figures (caught / total, and caught / total
 among the edits that change an answer) are printed with ``-s`` and asserted.
 
 Each edit is undone after it is judged (the original row put back), so one register
@@ -100,12 +101,18 @@ def build(url: str, folder: Path) -> Scene:
     from issuer.register.counting import CountScope, open_count
     from issuer.register.scanfiles import add_scan_file
     from issuer.register.tokens import add_token
-    from issuer.stocktake.counts import read_scan_file
+    from issuer.stocktake.counts import finish_count, read_scan_file
 
     open_count(register, "spring", "tools", CountScope(), zone="UTC")
     scans = folder / "shelf-b.txt"
     scans.write_text(f"{tools[3]}\n{tools[4]}\n")
     add_scan_file(register, "spring", read_scan_file(scans, zone="UTC", scanner="wand 2"))
+    # a second count, of a range, closed with its frozen result
+    open_count(register, "winter", "tools", CountScope("range", first=tools[3], last=tools[5]), zone="UTC")
+    bench = folder / "bench.txt"
+    bench.write_text(f"{tools[5]}\n{tools[4]}\n")
+    add_scan_file(register, "winter", read_scan_file(bench, zone="UTC"))
+    finish_count(register, "winter")
     add_token(register, "front-desk", "clerk")
     register.close()
     codes = {"voided": tools[0], "replaced": tools[1], "replacement": new, "restored": tools[2],
@@ -115,9 +122,16 @@ def build(url: str, folder: Path) -> Scene:
     return Scene(url, codes, [*codes.values(), never, never[:-1] + ("0" if never[-1] != "0" else "1")])
 
 
-def answers(scene: Scene) -> list[dict[str, Any]]:
-    with scene.desk().reading() as session:
-        return [a.as_dict() for a in check_codes(session, scene.inputs)]
+def answers(scene: Scene) -> list[Any]:
+    """What a desk is told: each code's check, each count's status, the service's tokens."""
+    from issuer.register.tokens import list_tokens
+    from issuer.stocktake.counts import count_status
+
+    register = scene.desk()
+    with register.reading() as session:
+        checked: list[Any] = [a.as_dict() for a in check_codes(session, scene.inputs)]
+    counts = [count_status(register, name).as_dict() for name in ("spring", "winter")]
+    return checked + counts + [token.as_dict() for token in list_tokens(register)]
 
 
 def healthy(scene: Scene) -> tuple[bool, list[str]]:
@@ -195,8 +209,8 @@ def _rows(connection: Connection, scene: Scene) -> dict[str, list[tuple[str, dic
                       if LONG or c != 0],
         "log_leaf": [(f"leaf {p}", {"position": p}) for p in leaves if LONG or p in (leaves[len(leaves) // 2], leaves[-1])],
         "log_tree": [("tree", {"id": 1})],
-        "stock_count": [("spring", {"id": _first(connection, "stock_count")})],
-        "stock_count_file": [("shelf-b.txt", {"id": _first(connection, "stock_count_file")})],
+        "stock_count": [(name, {"id": i}) for name, i in connection.execute(text("SELECT name, id FROM stock_count"))],
+        "stock_count_file": [(name, {"id": i}) for name, i in connection.execute(text("SELECT name, id FROM stock_count_file"))],
         "stock_count_scan": [("line 1", {"id": _first(connection, "stock_count_scan")})],
         "access_token": [("front-desk", {"id": _first(connection, "access_token")})],
         "alembic_version": [("version", {"version_num": connection.execute(
@@ -303,7 +317,7 @@ def _report(scene: Scene, outcomes: list[Outcome], how: str) -> list[str]:
     missed = [o for o in outcomes if o.result == "missed"]
     backend = scene.url.split(":", 1)[0] if "://" in scene.url else "sqlite"
     print(f"\ntamper suite ({backend}, {how}): {caught}/{total} single-row edits refused or caught by doctor; "
-          f"{sum(o.result != 'missed' for o in answering)}/{len(answering)} of those that change a check answer; "
+          f"{sum(o.result != 'missed' for o in answering)}/{len(answering)} of those that change an answer; "
           f"missed: {[o.edit.name for o in missed]}")  # fmt: skip
     pending = [o.edit.name for o in answering if o.result == "missed" and o.edit.kind.split()[-1] in NOT_YET_REPLAYED]
     print(f"not replayed (holder and note text): {pending}")
