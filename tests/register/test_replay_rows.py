@@ -236,3 +236,31 @@ def test_a_batch_moved_to_another_series_is_named(register_url: str) -> None:  #
                         "WHERE batch_id = (SELECT min(id) FROM batch)")  # fmt: skip
     found = doctor(register_url)["batches"]
     assert found.status == "problem" and any("made it in series" in line for line in found.details), found.details
+
+
+def test_a_holders_count_stays_whole_when_the_holder_is_erased(register_url: str, tmp_path: Path) -> None:  # noqa: F811
+    """Erasure rewrites the holder's name in the count's frozen result (the log keeps no
+    name, so no digest of what it becomes): the result's counts are still held to the log."""
+    from issuer.register.holders import erase_holder
+
+    register = open_register(register_url, actor="quartermaster")
+    add_series(register, SeriesSpec(key="members", scheme="luhn", length=6, prefix="M"))
+    codes = [i.code for i in issue_codes(register, "members", 3, holder="Ada Quill").codes]
+    start_count(register, "ada", "members", CountScope("holder", text="Ada Quill"), tz="UTC")
+    scans = tmp_path / "ada.txt"
+    scans.write_text(f"{codes[0]}\n{codes[1]}\n", encoding="utf-8")
+    add_files(register, "ada", [scans])
+    finish_count(register, "ada")
+    with register.reading() as session:
+        before = session.execute(text("SELECT result FROM stock_count")).scalar_one()
+    erase_holder(register, codes[0], reason="left the co-op")
+    with register.reading() as session:
+        after = session.execute(text("SELECT result FROM stock_count")).scalar_one()
+    register.close()
+    assert "Ada Quill" in before and "Ada Quill" not in after  # the erasure rewrote it
+    assert doctor(register_url)["stock counts"].status == "ok"
+    assert '"missing":1' in after
+    sql_behind_the_back(register_url, "UPDATE stock_count SET result = replace(result, :a, :b)",
+                        a='"missing":1', b='"missing":0')  # fmt: skip
+    found = doctor(register_url)["stock counts"]
+    assert found.status == "problem" and any("counts are not the ones logged" in line for line in found.details)
