@@ -264,3 +264,50 @@ def test_a_holders_count_stays_whole_when_the_holder_is_erased(register_url: str
                         a='"missing":1', b='"missing":0')  # fmt: skip
     found = doctor(register_url)["stock counts"]
     assert found.status == "problem" and any("counts are not the ones logged" in line for line in found.details)
+
+
+def test_interleaved_batches_on_postgresql_are_whole(pg_url: str) -> None:  # noqa: F811
+    """Two acts on two series at once: one act's code waits (on a row another transaction
+    holds) while the other issues and commits, so the first batch's range ends at the
+    other's code, committed before its act was logged. The doctor takes that as made."""
+    import threading
+    import time
+
+    register = open_register(pg_url, actor="quartermaster")
+    add_series(register, SeriesSpec(key="tools", scheme="luhn", length=6, prefix="T"))
+    add_series(register, SeriesSpec(key="passes", scheme="luhn", length=5, prefix="D"))
+    issue_codes(register, "tools", 1)
+    engine = create_engine(database_url(pg_url))
+    holder = engine.connect()
+    holding = holder.begin()
+    # an uncommitted row holding the number the next tools code will take: that code waits
+    holder.execute(text(
+        "INSERT INTO issued_code (series_id, code, base, status, batch_id, print_count) "
+        "SELECT series_id, 'HOLD' || code, base + 1, status, batch_id, 0 FROM issued_code"
+    ))  # fmt: skip
+    issued: list[str] = []
+    waiting = threading.Thread(target=lambda: issued.extend(c.code for c in issue_codes(register, "tools", 1).codes))
+    waiting.start()
+    with engine.connect() as watch:
+        for _ in range(200):  # until the tools code waits on the held row
+            if watch.execute(text("SELECT count(*) FROM pg_locks WHERE NOT granted")).scalar_one():
+                break
+            time.sleep(0.05)
+        else:
+            pytest.fail("the tools code never waited")
+    other = open_register(pg_url, actor="quartermaster")
+    passes = issue_codes(other, "passes", 2).codes  # issued and committed meanwhile
+    other.close()
+    holding.rollback()
+    holder.close()
+    waiting.join(timeout=30)
+    register.close()
+    assert len(issued) == 1
+    with engine.connect() as connection:
+        to_code = connection.execute(text(
+            "SELECT c.code FROM batch b JOIN issued_code c ON c.id = b.code_id_to WHERE b.id = "
+            "(SELECT batch_id FROM issued_code WHERE code = :c)"), {"c": issued[0]}).scalar_one()  # fmt: skip
+    engine.dispose()
+    assert to_code == passes[-1].code  # the range reaches the other act's code
+    found = doctor(pg_url)
+    assert {name: f.details for name, f in found.items() if f.status == "problem"} == {}
