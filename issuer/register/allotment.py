@@ -26,7 +26,7 @@ from sqlalchemy.orm import Session
 
 from issuer.errors import Exhausted, InvalidFormat, NotFound
 from issuer.register.bulk import ISSUE_COLUMNS, check_room
-from issuer.register.driver import Prepared, bind_value, insert_many, pipeline_to_commit
+from issuer.register.driver import Prepared, bind_value, insert_many, leave_pipeline, pipeline_to_commit
 from issuer.register.models import ISSUED, SCATTERED, Batch, IssuedCode, Series
 from issuer.register.sealing import keyring_of
 from issuer.register.series import capacity, code_format, permutation, scatter_protected, unknown_series
@@ -133,6 +133,7 @@ def claim_series(
     else:
         row = _CLAIM_BY_ID.one(connection, {"series_id": series_id, "count": count})
     if row is None:
+        leave_pipeline(session)  # the refusal reads the series' names through the ORM
         if key is not None:
             raise unknown_series(session, key)
         raise NotFound(f"no series #{series_id} in this register")
@@ -267,9 +268,18 @@ def place_codes(
     last_writes: bool = False,
 ) -> Placed:
     """Claim, open the batch and write ``count`` codes (fewer than :data:`BULK_FROM`);
-    the caller logs the act. Four statements when no imported number is in the way."""
+    the caller logs the act. Four statements when no imported number is in the way.
+
+    With ``last_writes`` (the caller only logs the act next) the statements go out in a
+    pipeline on PostgreSQL (:func:`~issuer.register.driver.pipeline_to_commit`): the
+    transaction's BEGIN with the claim, the batch row on its own (its id is needed), the
+    code rows with the log entry and the COMMIT: three round trips."""
     connection = session.connection()
+    if last_writes:
+        pipeline_to_commit(session)
     series = claim_series(session, count, key=key, series_id=series_id)
+    if series.imported_count:
+        leave_pipeline(session)  # looking past imported numbers reads through the ORM
     bases, counter = plan_allocation(session, series, count)
     batch_id = open_batch(
         connection, series, kind=kind, count=count, request_id=request_id, at=at, actor=actor
@@ -281,7 +291,7 @@ def place_codes(
     bound_until = None if until is None else bind_value(session, _CODE.c.valid_until, until)
     holder_key, note_key = search_key(holder), search_key(note)
     if last_writes:  # the caller only logs the act next: send the rest without waiting
-        pipeline_to_commit(session)
+        pipeline_to_commit(session)  # (again, if the claim had to leave it)
     # when and by whom: the batch row says it once (the code rows leave origin_at/_by empty)
     insert_many(
         session, "issued_code", ISSUE_COLUMNS,

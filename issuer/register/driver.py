@@ -217,12 +217,19 @@ class Prepared:
 AFTER_TRANSACTION = "issuer_after_transaction"
 
 
+#: ``Session.info`` key: the pipeline the transaction's statements are going out in, while open
+PIPELINE = "issuer_pipeline"
+
+
 def pipeline_to_commit(session: Session) -> None:
     """From here to the end of the writing transaction, send statements without waiting
     for each one's answer (psycopg 3's pipeline mode on PostgreSQL; elsewhere nothing
     changes): the writes that end an act and its COMMIT go out together, one round trip
-    instead of one each. Only :class:`Prepared` statements, :func:`insert_many` and the
-    COMMIT may follow (Core and the ORM read a result's shape before it has come back)."""
+    instead of one each (:func:`commit_pipeline`); a statement that returns rows waits
+    for its answer, and for nothing else (a pipeline opened before a transaction's first
+    statement sends its BEGIN with it). Only :class:`Prepared` statements,
+    :func:`insert_many` and the COMMIT may follow, until :func:`leave_pipeline` (Core and
+    the ORM read a result's shape before it has come back)."""
     connection = session.connection()
     after = session.info.get(AFTER_TRANSACTION)
     if connection.dialect.name != "postgresql" or after is None:
@@ -232,8 +239,12 @@ def pipeline_to_commit(session: Session) -> None:
         return
     pipeline = raw.pipeline()
     pipeline.__enter__()
+    session.info[PIPELINE] = pipeline
 
     def leave(exc_type: Any, exc: Any, traceback: Any) -> bool:
+        if session.info.get(PIPELINE) is not pipeline:
+            return False  # left or committed already
+        del session.info[PIPELINE]
         # always as if all went well: the driver then raises what is pending instead of
         # logging it; when the act failed already, its error is the one to see
         try:
@@ -246,4 +257,42 @@ def pipeline_to_commit(session: Session) -> None:
     after.push(leave)
 
 
-__all__ = ["AFTER_TRANSACTION", "Prepared", "bind_value", "driver_error", "pipeline_to_commit", "driver_rows", "execute_many", "insert_many", "stream_rows"]
+def leave_pipeline(session: Session) -> None:
+    """Wait for every statement sent so far and go back to one statement at a time, so
+    that Core and the ORM may run again (an act that found it needs them after all)."""
+    pipeline = session.info.pop(PIPELINE, None)
+    if pipeline is None:
+        return
+    connection = session.connection()
+    try:
+        pipeline.__exit__(None, None, None)
+    except connection.dialect.loaded_dbapi.Error as exc:
+        raise driver_error(connection, "(the statements sent in a pipeline)", exc) from None
+
+
+def commit_pipeline(session: Session) -> None:
+    """Commit a transaction whose statements are going out in a pipeline: COMMIT is sent
+    in it and the pipeline is closed, so the last writes, the COMMIT and the pipeline's
+    end go out in one round trip (the driver's own commit would end the pipeline with a
+    second one). An error of any statement still pending, or of the COMMIT, comes back as
+    SQLAlchemy's wrapped error; the caller's rollback follows. Without a pipeline (or with
+    ORM changes still to flush) nothing happens here and the usual COMMIT follows."""
+    pipeline = session.info.get(PIPELINE)
+    if pipeline is None:
+        return
+    if session.new or session.dirty or session.deleted:
+        leave_pipeline(session)  # the flush goes before the COMMIT, one statement at a time
+        return
+    del session.info[PIPELINE]
+    connection = session.connection()
+    cursor = connection.connection.dbapi_connection.cursor()  # type: ignore[union-attr]
+    try:
+        cursor.execute("COMMIT", prepare=False)
+        pipeline.__exit__(None, None, None)
+    except connection.dialect.loaded_dbapi.Error as exc:
+        raise driver_error(connection, "COMMIT", exc) from None
+    finally:
+        cursor.close()
+
+
+__all__ = ["AFTER_TRANSACTION", "PIPELINE", "Prepared", "bind_value", "commit_pipeline", "driver_error", "leave_pipeline", "pipeline_to_commit", "driver_rows", "execute_many", "insert_many", "stream_rows"]

@@ -38,6 +38,12 @@ from issuer.register.models import LogChain, LogEntry, LogLeaf, LogTree, UTCDate
 GENESIS = "0" * 64
 
 
+#: made once (``json.dumps`` with options makes an encoder per call): the hashed text and
+#: a detail's text, exactly as ``json.dumps`` with these options writes them
+_CANONICAL = json.JSONEncoder(sort_keys=True, separators=(",", ":"), ensure_ascii=False)
+_DETAIL = json.JSONEncoder(sort_keys=True, ensure_ascii=False, default=str)
+
+
 def timestamp_text(at: datetime) -> str:
     """The one textual form of a time that goes into a hash."""
     return at.strftime("%Y-%m-%dT%H:%M:%S.%fZ")
@@ -73,7 +79,7 @@ def entry_text(
         content["login"] = login
     if chain:  # a series' chain; the register's chain (0) hashes as the single chain always did
         content["chain"] = chain
-    return json.dumps(content, sort_keys=True, separators=(",", ":"), ensure_ascii=False)
+    return _CANONICAL.encode(content)
 
 
 def entry_hash(**fields: Any) -> str:
@@ -112,7 +118,7 @@ def rows_digest(rows: Iterable[Sequence[Any]]) -> str:
 
 
 def detail_text(detail: Mapping[str, Any] | None) -> str:
-    return json.dumps(dict(detail or {}), sort_keys=True, ensure_ascii=False, default=str)
+    return _DETAIL.encode(dict(detail or {}))
 
 
 #: acts logged on the register's chain although they name a series (the series' own
@@ -131,11 +137,13 @@ _ENTRY_COLUMNS = (
     "id", "at", "actor", "action", "series_id", "code", "batch_id", "detail", "prev_hash", "hash", "chain",
 )  # fmt: skip
 # built and compiled once: appending runs on every act, so it stays lean
+_NEWEST_ID = select(func.coalesce(func.max(_ENTRY.c.id), 0)).scalar_subquery()
+#: a chain's head, and the newest entry id of any chain (the next entry's id follows it)
 _LOCK_CHAIN = Prepared(
-    select(_CHAIN.c.last_id, _CHAIN.c.last_hash).where(_CHAIN.c.chain == bindparam("chain")).with_for_update()
+    select(_CHAIN.c.last_hash, _NEWEST_ID).where(_CHAIN.c.chain == bindparam("chain")).with_for_update()
 )
 _NEW_CHAIN = Prepared(insert(_CHAIN).values(chain=bindparam("chain"), last_id=0, last_hash=GENESIS))
-_LAST_ID = Prepared(select(func.coalesce(func.max(_ENTRY.c.id), 0)))
+_LAST_ID = Prepared(select(_NEWEST_ID))
 _INSERT_ENTRY = Prepared(insert(_ENTRY).values({name: bindparam(name) for name in _ENTRY_COLUMNS}))
 _MOVE_CHAIN = Prepared(
     update(_CHAIN)
@@ -205,14 +213,17 @@ def append_entries(
         _APPEND_FUNCTION.send(connection, {"at": at, "actor": actor, "entries": json.dumps(payload)})
         return len(payload)
     heads: dict[int, str] = {}
+    last_id = None
     for chain in sorted({chain_of(e.action, e.series_id) for e in entries}):  # one order: no deadlock
         found = _LOCK_CHAIN.one(connection, {"chain": chain})
         if found is None:
             _NEW_CHAIN.rows(connection, {"chain": chain})
-            found = (0, GENESIS)
-        heads[chain] = str(found[1])
-    last = _LAST_ID.one(connection)
-    rows = chain_rows(entries, actor=actor, at=at, last_id=int(last[0]) if last else 0, heads=heads)
+            found = (GENESIS, None)
+        heads[chain], last_id = str(found[0]), found[1]
+    if last_id is None:  # (the newest chain read is new: no head row to read it with)
+        last = _LAST_ID.one(connection)
+        last_id = last[0] if last else 0
+    rows = chain_rows(entries, actor=actor, at=at, last_id=int(last_id), heads=heads)
     if len(rows) == 1:
         _INSERT_ENTRY.rows(connection, rows[0])
     else:

@@ -272,7 +272,7 @@ class Register:
         ``"commit"`` once the work is done and the COMMIT is about to be sent."""
         from contextlib import ExitStack
 
-        from issuer.register.driver import AFTER_TRANSACTION
+        from issuer.register.driver import AFTER_TRANSACTION, commit_pipeline
 
         with self.engine.connect() as connection:
             connection.execution_options(issuer_write=True)
@@ -292,6 +292,8 @@ class Register:
                     heard.clear()  # only what the COMMIT itself brings counts
                     if steps is not None:
                         steps.append("commit")
+                    # an act whose last writes are in a pipeline commits in it (one round trip)
+                    commit_pipeline(session)
             if heard:
                 # committed on this server, but the wait for its synchronous standby was
                 # cut short (a cancel): the standby may not have the act

@@ -20,7 +20,7 @@ import pytest
 from sqlalchemy import event, text
 
 from issuer.errors import ConnectionLost
-from issuer.register import store
+from issuer.register import driver, store
 from issuer.register.anchors import verify_log
 from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.issuing import issue_codes
@@ -95,23 +95,34 @@ def test_a_connection_closed_between_acts_is_replaced_and_the_act_applied_once(
 
 
 def test_a_connection_lost_during_commit_says_the_outcome_is_unknown(
-    register: Register, pg_database: str  # noqa: F811
+    register: Register, pg_database: str, monkeypatch: pytest.MonkeyPatch  # noqa: F811
 ) -> None:
     issue_codes(register, "shelf", 1)
     fired: list[bool] = []
 
     def drop_before_commit(connection: Any) -> None:
-        # the act's statements have all run; the server ends the session as COMMIT goes out
+        # the act's statements have all gone out; the server ends the session as COMMIT goes out
         if not fired:
             fired.append(True)
             _terminate_others(pg_database)
 
+    # an issue sends its COMMIT in the pipeline of its last writes (driver.commit_pipeline);
+    # an act without one commits through SQLAlchemy (its "commit" event): both are covered
+    pipelined = driver.commit_pipeline
+
+    def commit_pipeline(session: Any) -> None:
+        drop_before_commit(None)
+        pipelined(session)
+
+    monkeypatch.setattr(driver, "commit_pipeline", commit_pipeline)
     event.listen(register.engine, "commit", drop_before_commit)
     try:
         with pytest.raises(ConnectionLost) as raised:
             issue_codes(register, "shelf", 1)
     finally:
         event.remove(register.engine, "commit", drop_before_commit)
+        monkeypatch.undo()
+    assert fired
     line = str(raised.value)
     assert "\n" not in line and "outcome is unknown" in line
     # here the server had not committed (it ended the session first): the register is whole
