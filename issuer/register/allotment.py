@@ -75,6 +75,18 @@ _INSERT_BATCH = Prepared(
     .values({**{name: bindparam(name) for name in BATCH_COLUMNS}, "code_id_from": NEXT_CODE_ID})
     .returning(_BATCH.c.id)
 )
+#: the same batch row, its series found by key: it goes out with the claim (one round trip
+#: in a pipeline), and writes nothing when the key names no series
+_INSERT_BATCH_BY_KEY = Prepared(
+    insert(_BATCH)
+    .from_select(
+        [*BATCH_COLUMNS, "code_id_from"],
+        select(
+            _SERIES.c.id, *(bindparam(name, type_=_BATCH.c[name].type) for name in BATCH_COLUMNS[1:]), NEXT_CODE_ID
+        ).where(_SERIES.c.key == bindparam("series_key")),
+    )
+    .returning(_BATCH.c.id)
+)
 #: where its codes end, once they are written: the highest code id this transaction sees
 _CLOSE_BATCH = Prepared(
     update(_BATCH)
@@ -125,13 +137,24 @@ def claim_series(
 ) -> ClaimedSeries:
     """Lock a series and move its counters by ``count`` in one statement; refuse (the
     transaction then rolls back) when fewer than ``count`` numbers are left."""
-    if count < 1:
-        raise InvalidFormat("the count must be at least 1")
+    _check_count(count)
     connection = session.connection()
     if key is not None:
         row = _CLAIM_BY_KEY.one(connection, {"series_key": key, "count": count})
     else:
         row = _CLAIM_BY_ID.one(connection, {"series_id": series_id, "count": count})
+    return _claimed(session, row, count, key=key, series_id=series_id)
+
+
+def _check_count(count: int) -> None:
+    if count < 1:
+        raise InvalidFormat("the count must be at least 1")
+
+
+def _claimed(
+    session: Session, row: Any, count: int, *, key: str | None, series_id: int | None
+) -> ClaimedSeries:
+    """The claimed series from the claim's row (None: no such series)."""
     if row is None:
         leave_pipeline(session)  # the refusal reads the series' names through the ORM
         if key is not None:
@@ -277,13 +300,34 @@ def place_codes(
     connection = session.connection()
     if last_writes:
         pipeline_to_commit(session)
-    series = claim_series(session, count, key=key, series_id=series_id)
+    if key is not None:  # the batch row goes out with the claim: it finds its series by key
+        _check_count(count)
+        claim = _CLAIM_BY_KEY.start(connection, {"series_key": key, "count": count})
+        try:
+            opening = _INSERT_BATCH_BY_KEY.start(
+                connection,
+                {"series_key": key, "kind": kind, "request_id": request_id, "count": count,
+                 "created_at": at, "actor": actor},
+            )  # fmt: skip
+        except BaseException:
+            claim.close()
+            raise
+        try:
+            claimed = claim.rows()  # (an error the batch row met comes here, in a pipeline)
+        except BaseException:
+            opening.close()
+            raise
+        opened = opening.rows()
+        series = _claimed(session, claimed[0] if claimed else None, count, key=key, series_id=None)
+        batch_id = int(opened[0][0])
+    else:
+        series = claim_series(session, count, series_id=series_id)
+        batch_id = open_batch(
+            connection, series, kind=kind, count=count, request_id=request_id, at=at, actor=actor
+        )
     if series.imported_count:
         leave_pipeline(session)  # looking past imported numbers reads through the ORM
     bases, counter = plan_allocation(session, series, count)
-    batch_id = open_batch(
-        connection, series, kind=kind, count=count, request_id=request_id, at=at, actor=actor
-    )
     shape = code_format(series.as_series)
     codes = [shape.code_for_base(base) for base in bases]
     # a replacement keeps its predecessor's end (keep_until); a new code gets the series' period

@@ -194,6 +194,22 @@ class Prepared:
         found = self.rows(connection, values)
         return found[0] if found else None
 
+    def start(self, connection: Connection, values: Mapping[str, Any] | None = None) -> Started:
+        """Run once and read its rows later (:meth:`Started.rows`): in pipeline mode the
+        statements started after it go out before its answer has come back, and the first
+        read waits for all of them (one round trip)."""
+        form = self._form(connection.dialect)
+        cursor = connection.connection.cursor()
+        try:
+            cursor.execute(form.sql, form.parameters(values or {}))
+        except connection.dialect.loaded_dbapi.Error as exc:
+            cursor.close()
+            raise driver_error(connection, form.sql, exc) from None
+        except BaseException:
+            cursor.close()
+            raise
+        return Started(connection, form.sql, cursor)
+
     def send(self, connection: Connection, values: Mapping[str, Any] | None = None) -> None:
         """Run once and read nothing back: in pipeline mode (:func:`pipeline_to_commit`) it
         goes out without waiting, and an error it meets comes with the COMMIT's answer."""
@@ -210,6 +226,26 @@ class Prepared:
             cursor.executemany(form.sql, [form.parameters(each) for each in values])
 
         self._run(connection, call)
+
+
+class Started:
+    """A statement sent by :meth:`Prepared.start`, its rows still to read."""
+
+    def __init__(self, connection: Connection, sql: str, cursor: Any) -> None:
+        self.connection, self.sql, self.cursor = connection, sql, cursor
+
+    def rows(self) -> list[tuple[Any, ...]]:
+        """Its rows (waiting for them if they have not come back yet); an error it met
+        (or, in pipeline mode, one a statement sent with it met) is raised here."""
+        try:
+            return list(self.cursor.fetchall())
+        except self.connection.dialect.loaded_dbapi.Error as exc:
+            raise driver_error(self.connection, self.sql, exc) from None
+        finally:
+            self.cursor.close()
+
+    def close(self) -> None:
+        self.cursor.close()
 
 
 #: ``Session.info`` key: an ``ExitStack`` that :meth:`issuer.register.store.Register.writing`
@@ -295,4 +331,4 @@ def commit_pipeline(session: Session) -> None:
         cursor.close()
 
 
-__all__ = ["AFTER_TRANSACTION", "PIPELINE", "Prepared", "bind_value", "commit_pipeline", "driver_error", "leave_pipeline", "pipeline_to_commit", "driver_rows", "execute_many", "insert_many", "stream_rows"]
+__all__ = ["AFTER_TRANSACTION", "PIPELINE", "Prepared", "Started", "bind_value", "commit_pipeline", "driver_error", "leave_pipeline", "pipeline_to_commit", "driver_rows", "execute_many", "insert_many", "stream_rows"]
