@@ -293,10 +293,11 @@ def place_codes(
     """Claim, open the batch and write ``count`` codes (fewer than :data:`BULK_FROM`);
     the caller logs the act. Four statements when no imported number is in the way.
 
-    With ``last_writes`` (the caller only logs the act next) the statements go out in a
-    pipeline on PostgreSQL (:func:`~issuer.register.driver.pipeline_to_commit`): the
-    transaction's BEGIN with the claim, the batch row on its own (its id is needed), the
-    code rows with the log entry and the COMMIT: three round trips."""
+    With ``key``, the batch row goes out with the claim (it finds its series by key). With
+    ``last_writes`` (the caller only logs the act next) the statements go out in a pipeline
+    on PostgreSQL (:func:`~issuer.register.driver.pipeline_to_commit`): the claim with the
+    batch row, then the code rows with the log entry and the COMMIT; with the BEGIN that
+    psycopg sends alone, three round trips."""
     connection = session.connection()
     if last_writes:
         pipeline_to_commit(session)

@@ -266,10 +266,10 @@ def pipeline_to_commit(session: Session) -> None:
     statement sends its BEGIN with it). Only :class:`Prepared` statements,
     :func:`insert_many` and the COMMIT may follow, until :func:`leave_pipeline` (Core and
     the ORM read a result's shape before it has come back)."""
-    connection = session.connection()
     after = session.info.get(AFTER_TRANSACTION)
-    if connection.dialect.name != "postgresql" or after is None:
+    if after is None or session.get_bind().dialect.name != "postgresql":
         return
+    connection = session.connection()
     raw = connection.connection.dbapi_connection
     if raw is None or getattr(raw, "_pipeline", None) is not None:
         return
