@@ -313,3 +313,55 @@ def test_interleaved_batches_on_postgresql_are_whole(pg_url: str) -> None:  # no
     assert to_code == passes[-1].code  # the range reaches the other act's code
     found = doctor(pg_url)
     assert {name: f.details for name, f in found.items() if f.status == "problem"} == {}
+
+
+def test_older_count_entries_are_compared_on_what_they_say(register_url: str, tmp_path: Path) -> None:  # noqa: F811
+    """Count entries as an earlier issuer wrote them: no range numbers at the opening, no
+    zone, line counts or digest of the lines at an adding, no digest of the result at the
+    close. What they say is still compared; what they do not, is not."""
+    import json
+    from datetime import UTC, datetime
+
+    from issuer.register.models import StockCount, StockCountFile, StockCountScan
+
+    register = open_register(register_url, actor="quartermaster")
+    add_series(register, SeriesSpec(key="tools", scheme="luhn", length=6, prefix="T"))
+    issue_codes(register, "tools", 3)
+    at = datetime(2026, 4, 7, 9, 0, tzinfo=UTC)
+    counts = {"issued": 1, "missing": 1}
+
+    def older_count(session: Any) -> None:
+        series_id = session.execute(text("SELECT id FROM series")).scalar_one()
+        count = StockCount(name="april", series_id=series_id, scope="range", scope_first=1, scope_last=2, zone="UTC",
+                           state="closed", opened_at=at, opened_by="quartermaster", closed_at=at,
+                           closed_by="quartermaster", result=json.dumps({"counts": counts}))  # fmt: skip
+        session.add(count)
+        session.flush()
+        file = StockCountFile(count_id=count.id, digest="d" * 64, name="april.txt", zone="UTC", scans=1,
+                              added_at=at, added_by="quartermaster")  # fmt: skip
+        session.add(file)
+        session.flush()
+        session.add(StockCountScan(count_id=count.id, file_id=file.id, line=1, scanned="T0000"))
+        for action, detail in (("count_open", {"count": "april", "scope": "range", "zone": "UTC"}),
+                               ("count_add", {"count": "april", "file": "april.txt", "digest": "d" * 64, "scans": 1}),
+                               ("count_close", {"count": "april", **counts})):  # fmt: skip
+            append_entry(session, NewEntry(action, series_id, None, None, detail), actor="quartermaster", at=at)
+
+    register.write(older_count)
+    register.close()
+    assert doctor(register_url)["stock counts"].status == "ok"
+    # unknown to those entries: a range's numbers, a file's zone, the scanned text
+    sql_behind_the_back(register_url, "UPDATE stock_count SET scope_last = 3")
+    sql_behind_the_back(register_url, "UPDATE stock_count_file SET zone = 'Europe/Paris'")
+    sql_behind_the_back(register_url, "UPDATE stock_count_scan SET scanned = 'T9999'")
+    assert doctor(register_url)["stock counts"].status == "ok"
+    # what they say: the scope, the number of lines, the result's counts
+    edits = [("UPDATE stock_count SET scope = 'all'", "UPDATE stock_count SET scope = 'range'"),
+             ("UPDATE stock_count_file SET scans = 2", "UPDATE stock_count_file SET scans = 1"),
+             ("UPDATE stock_count SET result = :r", "UPDATE stock_count SET result = :o")]  # fmt: skip
+    results = {"r": json.dumps({"counts": {"issued": 2, "missing": 0}}), "o": json.dumps({"counts": counts})}
+    for statement, undo in edits:
+        sql_behind_the_back(register_url, statement, **({"r": results["r"]} if ":r" in statement else {}))
+        assert doctor(register_url)["stock counts"].status == "problem", statement
+        sql_behind_the_back(register_url, undo, **({"o": results["o"]} if ":o" in undo else {}))
+        assert doctor(register_url)["stock counts"].status == "ok", undo
