@@ -188,7 +188,7 @@ def _scope_expected(detail: dict[str, Any]) -> dict[str, Any]:
     return {
         "scope": scope,
         "zone": detail.get("zone", UNKNOWN),
-        # a holder's name stays out of the log; a place is logged
+        # a holder's name stays out of the log (a closed count's result names it); a place is logged
         "scope_text": UNKNOWN if scope in ("holder", UNKNOWN) else detail.get("scope_text"),
         # older entries did not log a range's numbers or a batch's id
         "scope_first": detail.get("scope_first", UNKNOWN if numbered else None),
@@ -230,6 +230,9 @@ def _count_row_problems(row: Any, expect: CountExpect, last_erasure: Callable[[]
     if logged is not None and not erased:
         if row.result is None or result_digest(str(row.result)) != logged:
             problems.append(f"count {name}: its frozen result is not the one logged{where}")
+        elif row.scope == "holder" and _detail(row.result).get("scope") != f"holder {row.scope_text}":
+            # the log keeps no holder's name, but the result it vouches for names it
+            problems.append(f"count {name}: its holder is not the one its frozen result names{where}")
     else:  # an older entry logged the result's counts only
         counts = {k: v for k, v in closed.detail.items() if k not in ("count", "result_sha256")}
         stored = _detail(row.result).get("counts") if row.result is not None else None
