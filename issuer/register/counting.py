@@ -174,7 +174,7 @@ def open_count(register: Register, name: str, key: str, scope: CountScope, *, zo
         )  # fmt: skip
         session.add(count)
         session.flush()
-        detail = {"count": name, "scope": scope.kind, "zone": zone}
+        detail: dict[str, Any] = {"count": name, "scope": scope.kind, "zone": zone}
         if text is not None and scope.kind != "holder":  # a holder's name stays out of the log
             detail["scope_text"] = text
         if first is not None:  # a range's numbers, a batch's id

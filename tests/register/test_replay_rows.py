@@ -88,9 +88,9 @@ TOKEN_EDITS = {
     "salt": ("UPDATE access_token SET salt = digest WHERE name = 'front-desk'", "front-desk: its salt or secret"),
     "lookup": ("UPDATE access_token SET lookup = '0123456789abcdef' WHERE name = 'front-desk'", "front-desk: lookup"),
     "maker": ("UPDATE access_token SET created_by = 'someone' WHERE name = 'front-desk'", "front-desk: made by someone"),
-    "inserted": ("INSERT INTO access_token (name, lookup, role, salt, digest, created_at, created_by) "
-                 "SELECT 'side-door', 'fedcba9876543210', 'admin', salt, digest, created_at, created_by "
-                 "FROM access_token WHERE name = 'front-desk'", "side-door: no logged act made it"),
+    "inserted": (("INSERT INTO access_token (name, lookup, role, salt, digest, created_at, created_by) "
+                  "SELECT 'side-door', 'fedcba9876543210', 'admin', salt, digest, created_at, created_by "
+                  "FROM access_token WHERE name = 'front-desk'"), "side-door: no logged act made it"),
     "deleted": ("DELETE FROM access_token WHERE name = 'night-desk'", "night-desk: made by log entry"),
 }  # fmt: skip
 
@@ -152,8 +152,8 @@ def _first_scan(scene: Scene) -> int:
 
 
 COUNT_EDITS = {
-    "reopened": ("UPDATE stock_count SET state = 'open', closed_at = NULL, closed_by = NULL, result = NULL "
-                 "WHERE name = 'spring'", "count spring: open, closed by log entry"),
+    "reopened": (("UPDATE stock_count SET state = 'open', closed_at = NULL, closed_by = NULL, result = NULL "
+                  "WHERE name = 'spring'"), "count spring: open, closed by log entry"),
     "result": ("UPDATE stock_count SET result = replace(result, '\"found\"', '\"fund\"') WHERE name = 'spring'",
                "count spring: its frozen result"),
     "closed unlogged": ("UPDATE stock_count SET state = 'closed' WHERE name = 'autumn'",
@@ -180,8 +180,8 @@ COUNT_EDITS = {
     "scan place": ("UPDATE stock_count_scan SET seen_where = 'aisle 4' WHERE seen_where IS NOT NULL",
                    "count spring, file shelf-a.csv: its scanned lines"),
     "scan deleted": ("DELETE FROM stock_count_scan WHERE id = :first", "count spring, file shelf-a.csv: holds 2"),
-    "scan inserted": ("INSERT INTO stock_count_scan (count_id, file_id, line, scanned) "
-                      "SELECT count_id, file_id, 9, scanned FROM stock_count_scan WHERE id = :first",
+    "scan inserted": (("INSERT INTO stock_count_scan (count_id, file_id, line, scanned) "
+                       "SELECT count_id, file_id, 9, scanned FROM stock_count_scan WHERE id = :first"),
                       "count spring, file shelf-a.csv: holds 4"),
 }  # fmt: skip
 

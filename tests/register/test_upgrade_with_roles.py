@@ -19,7 +19,6 @@ import pytest
 from sqlalchemy import create_engine, text
 
 from issuer.errors import PermissionDenied
-
 from issuer.register.admin import apply_statements, roles_script
 from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.doctor import run_doctor
