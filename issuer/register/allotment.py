@@ -25,9 +25,10 @@ from sqlalchemy import Connection, Table, bindparam, func, insert, select, updat
 from sqlalchemy.orm import Session
 
 from issuer.errors import Exhausted, InvalidFormat, NotFound
-from issuer.register.bulk import ISSUE_COLUMNS, check_room
-from issuer.register.driver import Prepared, bind_value, insert_many, leave_pipeline, pipeline_to_commit
-from issuer.register.models import ISSUED, SCATTERED, Batch, IssuedCode, Series
+from issuer.register.bulk import check_room
+from issuer.register.coderows import write_codes
+from issuer.register.driver import Prepared, leave_pipeline, pipeline_to_commit
+from issuer.register.models import SCATTERED, Batch, IssuedCode, Series
 from issuer.register.sealing import keyring_of
 from issuer.register.series import capacity, code_format, permutation, scatter_protected, unknown_series
 from issuer.register.standing import search_key, validity_for
@@ -333,16 +334,12 @@ def place_codes(
     codes = [shape.code_for_base(base) for base in bases]
     # a replacement keeps its predecessor's end (keep_until); a new code gets the series' period
     until = valid_until if keep_until else validity_for(series.valid_for_days, at, valid_until)
-    bound_until = None if until is None else bind_value(session, _CODE.c.valid_until, until)
-    holder_key, note_key = search_key(holder), search_key(note)
     if last_writes:  # the caller only logs the act next: send the rest without waiting
         pipeline_to_commit(session)  # (again, if the claim had to leave it)
-    # when and by whom: the batch row says it once (the code rows leave origin_at/_by empty)
-    insert_many(
-        session, "issued_code", ISSUE_COLUMNS,
-        [(series.id, code, base, ISSUED, batch_id, holder, note, replaces_id, 0,
-          holder_key, note_key, bound_until)
-         for code, base in zip(codes, bases)],
+    write_codes(
+        connection, series_id=series.id, batch_id=batch_id, codes=codes, bases=bases, holder=holder,
+        note=note, holder_key=search_key(holder), note_key=search_key(note), replaces_id=replaces_id,
+        valid_until=until,
     )  # fmt: skip
     close_batch(connection, batch_id)
     settle_counter(connection, series, count, counter)

@@ -4,12 +4,13 @@ A million codes go through no ORM object and no per-row Python work: counters ar
 mapped to base numbers a chunk at a time (the scattered permutation's FF1 rounds run
 across the whole chunk; a scattered batch is then put in number order so that the
 unique indexes are filled in order rather than at random), check characters are computed column-wise by the scheme's
-bulk method, the code texts are assembled as one byte matrix, and the rows reach the
-driver's ``executemany`` as an iterator of tuples inside the caller's transaction.
+bulk method, the code texts are assembled as one byte matrix, and each chunk's codes and
+numbers reach the database as two values of one statement inside the caller's transaction.
 Nothing holds the whole batch: each chunk is inserted, handed to an optional sink
 (a CSV file, say) and dropped.
 
-The rows (and the statement) are those of :func:`issuer.register.allotment.place_codes`.
+The rows (and the statement) are those of :func:`issuer.register.allotment.place_codes`:
+:func:`issuer.register.coderows.write_codes`, once per chunk.
 """
 
 from __future__ import annotations
@@ -29,8 +30,8 @@ from sqlalchemy.orm import Session
 
 from issuer.checking.codes import CodeFormat
 from issuer.errors import Exhausted, RegisterError
-from issuer.register.driver import bind_value, insert_many
-from issuer.register.models import ISSUED, SCATTERED, Batch, IssuedCode, Series, in_batch
+from issuer.register.coderows import write_codes
+from issuer.register.models import SCATTERED, Batch, IssuedCode, Series, in_batch
 from issuer.register.series import capacity, code_format, permutation
 from issuer.register.standing import search_key
 
@@ -40,14 +41,6 @@ if TYPE_CHECKING:
 
 #: counters mapped, checked, inserted and handed on per round
 CHUNK = 50_000
-
-#: the columns a newly issued row fills, in the order of the tuples handed to the driver
-#: (when and by whom is the batch row's to say: ``origin_at``/``origin_by`` stay empty)
-ISSUE_COLUMNS = (
-    "series_id", "code", "base", "status", "batch_id", "holder", "note",
-    "replaces_id", "print_count", "holder_key", "note_key", "valid_until",
-)  # fmt: skip
-
 
 # --- texts in bulk -----------------------------------------------------------------------
 
@@ -376,18 +369,17 @@ def store_bulk(
     as claimed; its counters move on as chunks are drawn)."""
     shape = code_format(series)
     previous_cache = _roomy_cache(session, count)
-    until = None if valid_until is None else bind_value(session, IssuedCode.__table__.c.valid_until, valid_until)  # type: ignore[arg-type]
     holder_key, note_key = search_key(holder), search_key(note)
+    connection = session.connection()
     outcome = BulkOutcome()
     try:
         for bases_array in allocate_chunks(session, series, count):
             codes = code_texts(shape, bases_array)
             bases = bases_array.tolist()
-            rows = zip(
-                repeat(series.id), codes, bases, repeat(ISSUED), repeat(batch_id), repeat(holder),
-                repeat(note), repeat(None), repeat(0), repeat(holder_key), repeat(note_key), repeat(until),
+            write_codes(
+                connection, series_id=series.id, batch_id=batch_id, codes=codes, bases=bases, holder=holder,
+                note=note, holder_key=holder_key, note_key=note_key, valid_until=valid_until,
             )  # fmt: skip
-            insert_many(session, "issued_code", ISSUE_COLUMNS, rows)
             outcome.digest.update(("\n".join(codes) + "\n").encode("ascii"))
             if outcome.first is None:
                 outcome.first = (codes[0], bases[0])
