@@ -6,9 +6,11 @@ from __future__ import annotations
 from importlib import resources
 from typing import TYPE_CHECKING
 
+from issuer.errors import RegisterError
+
 if TYPE_CHECKING:
     from alembic.config import Config
-    from sqlalchemy.engine import Engine
+    from sqlalchemy.engine import Connection, Engine
 
     from issuer.register.sealing import Keyring
 
@@ -47,8 +49,43 @@ def upgrade_to_head(engine: Engine, keyring: Keyring | None = None) -> None:
     config = alembic_config()
     with engine.connect() as connection:
         connection.execution_options(issuer_write=True)
-        config.attributes["connection"] = connection
-        sealing_attributes(config, keyring)
-        keyring.ensure(connection)
-        command.upgrade(config, "head")
-        connection.commit()
+        sqlite = connection.dialect.name == "sqlite"
+        if sqlite:
+            # SQLite alters a table by copying it, and dropping the old copy trips the rows
+            # that refer to it while foreign keys are enforced: they are off while the
+            # migrations run (set outside the transaction, the only place SQLite takes it)
+            # and every link is checked before the COMMIT
+            _foreign_keys(connection, on=False)
+        try:
+            config.attributes["connection"] = connection
+            sealing_attributes(config, keyring)
+            keyring.ensure(connection)
+            command.upgrade(config, "head")
+            if sqlite:
+                broken = connection.exec_driver_sql("PRAGMA foreign_key_check").fetchall()
+                if broken:
+                    table, _row, parent, _key = broken[0]
+                    raise RegisterError(
+                        f"upgrading the register would leave {len(broken)} row(s) of {table} pointing "
+                        f"at no row of {parent}; nothing was changed"
+                    )
+            connection.commit()
+        except BaseException:
+            connection.rollback()
+            raise
+        finally:
+            if sqlite:
+                _foreign_keys(connection, on=True)
+
+
+def _foreign_keys(connection: Connection, *, on: bool) -> None:
+    """Turn SQLite's foreign key enforcement on or off for this connection (outside a
+    transaction); a connection that stays off is dropped rather than pooled."""
+    raw = connection.connection.dbapi_connection
+    assert raw is not None
+    raw.execute(f"PRAGMA foreign_keys = {'ON' if on else 'OFF'}")
+    if bool(raw.execute("PRAGMA foreign_keys").fetchone()[0]) != on:
+        if on:
+            connection.invalidate()
+            return
+        raise RegisterError("the register could not be prepared for upgrading (a transaction was open)")

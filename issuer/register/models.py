@@ -82,6 +82,23 @@ class UTCDateTime(TypeDecorator[datetime]):
 SEARCH_KEY = String(200).with_variant(String(200, collation="C"), "postgresql")
 
 
+def _partial_index(column: str, where: str, *, unique: bool = False) -> Index:
+    """An index over the rows where ``where`` holds, declared once for every backend.
+
+    Not ``postgresql_where=``/``sqlite_where=``: naming a dialect's argument makes SQLAlchemy
+    import that whole dialect when the models load, so every command on a SQLite register
+    would pay for PostgreSQL's. The clause is added by :func:`_create_partial_index`."""
+    return Index(None, column, unique=unique, info={"where": where})
+
+
+@compiles(CreateIndex)
+def _create_partial_index(create: CreateIndex, compiler: Any, **kw: Any) -> str:
+    """CREATE INDEX, with the WHERE clause of a partial index (both backends know it)."""
+    sql: str = compiler.visit_create_index(create, **kw)
+    where = create.element.info.get("where")
+    return f"{sql} WHERE {where}" if where else sql
+
+
 class Base(DeclarativeBase):
     metadata = MetaData(naming_convention=NAMING)
 
@@ -128,11 +145,13 @@ class Batch(Base):
     """One act of issuance (or import): its codes commit together or not at all."""
 
     __tablename__ = "batch"
+    #: unique where given; most batches have none, and those cost no index entry
+    __table_args__ = (_partial_index("request_id", "request_id IS NOT NULL", unique=True),)
 
     id: Mapped[int] = mapped_column(Integer, primary_key=True)
     series_id: Mapped[int] = mapped_column(ForeignKey("series.id"), index=True)
     kind: Mapped[str] = mapped_column(String(16))  # issue | replace | import
-    request_id: Mapped[str | None] = mapped_column(String(200), unique=True, default=None)
+    request_id: Mapped[str | None] = mapped_column(String(200), default=None)
     count: Mapped[int] = mapped_column(Integer)
     #: when and by whom its codes were issued (a code row repeats neither; see
     #: :func:`code_issued_at`): the batch's constants live here once
@@ -144,23 +163,6 @@ class Batch(Base):
     #: inside it, so a reader also asks for ``batch_id`` (:func:`in_batch`). None: no codes.
     code_id_from: Mapped[int | None] = mapped_column(BigInteger, default=None)
     code_id_to: Mapped[int | None] = mapped_column(BigInteger, default=None)
-
-
-def _partial_index(column: str, where: str) -> Index:
-    """An index over the rows where ``where`` holds, declared once for every backend.
-
-    Not ``postgresql_where=``/``sqlite_where=``: naming a dialect's argument makes SQLAlchemy
-    import that whole dialect when the models load, so every command on a SQLite register
-    would pay for PostgreSQL's. The clause is added by :func:`_create_partial_index`."""
-    return Index(None, column, info={"where": where})
-
-
-@compiles(CreateIndex)
-def _create_partial_index(create: CreateIndex, compiler: Any, **kw: Any) -> str:
-    """CREATE INDEX, with the WHERE clause of a partial index (both backends know it)."""
-    sql: str = compiler.visit_create_index(create, **kw)
-    where = create.element.info.get("where")
-    return f"{sql} WHERE {where}" if where else sql
 
 
 class IssuedCode(Base):
