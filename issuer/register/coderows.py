@@ -8,8 +8,11 @@ itself, so no per-row tuple is built in Python and the driver binds two paramete
 chunk instead of a dozen per row (with ``executemany``, binding was most of the cost
 of a bulk batch on SQLite):
 
-* PostgreSQL: ``unnest`` of a text array and a bigint array, ``WITH ORDINALITY`` and
-  ordered by it, so ids follow the order the codes were handed in;
+* PostgreSQL: the codes and the numbers each as one text, split on spaces
+  (``string_to_array``; a canonical code holds no separator) and ``unnest``-ed together
+  ``WITH ORDINALITY``, ordered by it so ids follow the order the codes were handed in.
+  Two texts rather than two arrays: the driver dumps a Python list item by item, which
+  cost a one-code issue more than the rest of its statement;
 * SQLite (no arrays): the numbers as a JSON array read by ``json_each``, and the codes
   as one ASCII byte string cut by position (``substr`` on a BLOB is by byte, so each
   row costs the same) and cast back to text. A batch's codes all have their series'
@@ -34,8 +37,10 @@ from sqlalchemy import (
     Integer,
     String,
     Table,
+    Text,
     bindparam,
     insert,
+    literal_column,
     select,
 )
 from sqlalchemy import cast as sql_cast
@@ -45,6 +50,8 @@ from issuer.register.driver import Prepared
 from issuer.register.models import ISSUED, IssuedCode
 
 _CODE = cast(Table, IssuedCode.__table__)
+#: what separates the codes and numbers handed to PostgreSQL (a separator: never in a code)
+SPACE = " "
 
 #: the columns a newly issued row fills besides ``code`` and ``base`` (when and by whom is
 #: the batch row's to say: ``origin_at``/``origin_by`` stay empty)
@@ -69,11 +76,11 @@ def _writing(source: Any, code: Any, base: Any, order: Any = None) -> Prepared:
 
 
 def _postgresql() -> Prepared:
+    def split(name: str) -> Any:
+        return sql_func.string_to_array(bindparam(name, type_=Text()), literal_column(f"'{SPACE}'"))
+
     pairs = (
-        sql_func.unnest(
-            sql_cast(bindparam("codes"), ARRAY(String())),
-            sql_cast(bindparam("bases"), ARRAY(BigInteger())),
-        )
+        sql_func.unnest(split("codes"), sql_cast(split("bases"), ARRAY(BigInteger())))
         .table_valued("code", "base", with_ordinality="at")
         .render_derived(name="given")
     )
@@ -91,15 +98,18 @@ _WRITE = {"postgresql": _postgresql(), "sqlite": _sqlite()}
 
 
 def _unpacked(dialect: str, codes: Sequence[str], bases: Sequence[int]) -> dict[str, Any]:
-    """The codes and numbers as the dialect's statement takes them."""
-    widths = set(map(len, codes))
-    if len(widths) != 1:  # one rule on every backend, though only SQLite's form needs it
+    """The codes and numbers as the dialect's statement takes them; the same rules on
+    every backend, though each form needs only one of them."""
+    if len(set(map(len, codes))) != 1:
         raise ValueError("the codes of one batch must all have the same width")
+    joined = "".join(codes)
+    if SPACE in joined:  # a canonical code never holds one
+        raise ValueError("a code to write holds a space")
     if dialect != "sqlite":
-        return {"codes": list(codes), "bases": list(bases)}
+        return {"codes": SPACE.join(codes), "bases": SPACE.join(map(str, bases))}
     return {
-        "codes": "".join(codes).encode("ascii"),
-        "width": widths.pop(),
+        "codes": joined.encode("ascii"),
+        "width": len(codes[0]),
         "bases": json.dumps(list(bases)),
     }
 

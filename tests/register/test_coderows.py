@@ -111,3 +111,17 @@ def test_a_code_issued_twice_is_refused_by_the_database_on_this_path(anywhere: R
         anywhere.write(again)
     with anywhere.reading() as session:
         assert session.scalars(select(IssuedCode.code)).all() == [first.code]
+
+
+def test_a_code_holding_a_space_is_refused_before_the_database_sees_it(anywhere: Register) -> None:
+    def work(session: Any) -> None:
+        series = claim_series(session, 2, key="tools")
+        batch = open_batch(session.connection(), series, kind="issue", count=2, request_id=None,
+                           at=datetime(2030, 1, 2, tzinfo=UTC), actor="workshop-desk")  # fmt: skip
+        write_codes(session.connection(), series_id=series.id, batch_id=batch,
+                    codes=["QTL 0000011", "QTL00000022"], bases=[1, 2])  # fmt: skip
+
+    with pytest.raises(ValueError, match="space"):
+        anywhere.write(work)
+    with anywhere.reading() as session:
+        assert session.scalars(select(IssuedCode.id)).all() == []
