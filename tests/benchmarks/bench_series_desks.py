@@ -11,6 +11,8 @@ unique index) with one connection and with eight, in separate processes like the
 Its eight-vs-one ratio is the scaling the machine itself allows (2 cores, server and
 clients sharing them): the desks cannot scale further than it does.
 Rounds interleave builds, desk counts and the raw loops so all see the same disk; medians.
+Each process also reports its CPU time and its server process's (from /proc): CPU per code
+against the cores gives the most any number of desks could reach, whatever the disk does.
 "lock waits": of the eight desks' active database sessions, sampled every 5 ms, the share
 waiting for a lock (pg_stat_activity.wait_event_type = 'Lock'): the queue itself, which a
 busy machine's CPU shortage does not hide.
@@ -47,19 +49,31 @@ for n in range(int(sys.argv[2])):
 register.close()
 """
 
-DESK = """
+#: CPU seconds of a process (user + system) from /proc: the desk reads its server's too
+PROCESS_CPU = """
+import os
+def process_cpu(pid):
+    fields = open(f"/proc/{pid}/stat").read().rsplit(")", 1)[1].split()
+    return (int(fields[11]) + int(fields[12])) / os.sysconf("SC_CLK_TCK")
+"""
+
+DESK = PROCESS_CPU + """
 import json, sys, time
+from sqlalchemy import text
 from issuer.register.issuing import issue_codes
 from issuer.register.store import open_register
 url, key, count = sys.argv[1], sys.argv[2], int(sys.argv[3])
 register = open_register(url, actor="desk-" + key)
 issue_codes(register, key, 1)  # connected and warm
+with register.engine.connect() as connection:  # the pool's one connection: the desk's server process
+    server = connection.execute(text("SELECT pg_backend_pid()")).scalar()
 print("ready", flush=True)
 sys.stdin.readline()
-start = time.time()
+start, client, served = time.time(), time.process_time(), process_cpu(server)
 for _ in range(count):
     issue_codes(register, key, 1)
-print(json.dumps({"start": start, "end": time.time()}), flush=True)
+print(json.dumps({"start": start, "end": time.time(), "client": time.process_time() - client,
+                  "server": process_cpu(server) - served}), flush=True)
 register.close()
 """
 
@@ -70,19 +84,21 @@ with psycopg.connect(sys.argv[1], autocommit=True) as connection:
     connection.execute("CREATE TABLE raw_issued (id bigserial PRIMARY KEY, code text NOT NULL UNIQUE)")
 """
 
-RAW = """
+RAW = PROCESS_CPU + """
 import json, sys, time
 import psycopg
 url, name, count = sys.argv[1], sys.argv[2], int(sys.argv[3])
 with psycopg.connect(url, autocommit=True) as connection:
     connection.execute("INSERT INTO raw_issued (code) VALUES (%s)", (name + "-warm",))  # connected and warm
+    server = connection.execute("SELECT pg_backend_pid()").fetchone()[0]
     print("ready", flush=True)
     sys.stdin.readline()
-    start = time.time()
+    start, client, served = time.time(), time.process_time(), process_cpu(server)
     for n in range(count):
         # autocommit: each INSERT is its own durable transaction (synchronous_commit on)
         connection.execute("INSERT INTO raw_issued (code) VALUES (%s)", (f"{name}-{n}",))
-    print(json.dumps({"start": start, "end": time.time()}), flush=True)
+    print(json.dumps({"start": start, "end": time.time(), "client": time.process_time() - client,
+                      "server": process_cpu(server) - served}), flush=True)
 """
 
 #: the name the raw loop's rates are kept under
@@ -126,6 +142,8 @@ class LockSampler:
 
 
 WAITS: dict[str, list[float]] = {}
+#: CPU seconds per row, (client, server), of each measurement
+CPU: dict[tuple[str, int], list[tuple[float, float]]] = {}
 
 
 def measure(python: str, desks: int, per_desk: int, folder: Path, name: str = "") -> float:
@@ -157,7 +175,11 @@ def measure(python: str, desks: int, per_desk: int, folder: Path, name: str = ""
             proc.wait(timeout=600)
         if sampler is not None:
             WAITS.setdefault(name, []).append(sampler.share())
-        return desks * per_desk / (max(t["end"] for t in times) - min(t["start"] for t in times))
+        rows = desks * per_desk
+        CPU.setdefault((name, desks), []).append(
+            (sum(t["client"] for t in times) / rows, sum(t["server"] for t in times) / rows)
+        )
+        return rows / (max(t["end"] for t in times) - min(t["start"] for t in times))
 
 
 def main() -> None:
@@ -201,6 +223,16 @@ def main() -> None:
     print(f"targets: 8 desks >= 4x one desk, and >= 0.3 of the raw 8-connection loop; the raw loop "
           f"itself scales {raw_eight / raw_one:.2f}x from 1 to 8 connections on this machine "
           f"({os.cpu_count()} cores), the ceiling for the desks' 8 vs 1")
+    # CPU per row (medians; the disk's moods do not move it): what the cores allow at most
+    cores = os.cpu_count() or 1
+    print(f"CPU per code, one desk (client + its server process), median; the {cores} cores' ceiling "
+          f"for any number of desks = {cores} / CPU per code:")
+    for name in runs:
+        client = statistics.median(c for c, _ in CPU[(name, 1)])
+        server = statistics.median(s for _, s in CPU[(name, 1)])
+        ceiling = cores / (client + server)
+        print(f"{name:>12} {client * 1e6:5.0f} us + {server * 1e6:4.0f} us = {(client + server) * 1e6:5.0f} us; "
+              f"ceiling {ceiling:,.0f}/s = {ceiling / medians[name][0]:.1f}x its one-desk rate")
     if len(builds) == 2:
         (b1, e1), (b2, e2) = medians["before"], medians["this build"]
         print(f"this build / before: one desk {b2 / b1:.2f}x, eight desks {e2 / e1:.2f}x")
