@@ -30,7 +30,13 @@ from issuer.register.coderows import write_codes
 from issuer.register.driver import Prepared, leave_pipeline, pipeline_to_commit
 from issuer.register.models import SCATTERED, Batch, IssuedCode, Series
 from issuer.register.sealing import keyring_of
-from issuer.register.series import capacity, code_format, permutation, scatter_protected, unknown_series
+from issuer.register.series import (
+    capacity,
+    code_format,
+    permutation,
+    scatter_protected,
+    unknown_series,
+)
 from issuer.register.standing import search_key, validity_for
 
 #: batches at least this large make their numbers with numpy, chunk by chunk

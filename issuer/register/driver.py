@@ -273,19 +273,19 @@ def pipeline_to_commit(session: Session) -> None:
     raw = connection.connection.dbapi_connection
     if raw is None or getattr(raw, "_pipeline", None) is not None:
         return
-    pipeline = raw.pipeline()
+    pipeline: Any = raw.pipeline()  # psycopg's
     pipeline.__enter__()
     session.info[PIPELINE] = pipeline
 
     def leave(exc_type: Any, exc: Any, traceback: Any) -> bool:
-        if session.info.get(PIPELINE) is not pipeline:
+        if PIPELINE not in session.info or session.info[PIPELINE] is not pipeline:
             return False  # left or committed already
         del session.info[PIPELINE]
         # always as if all went well: the driver then raises what is pending instead of
         # logging it; when the act failed already, its error is the one to see
         try:
             pipeline.__exit__(None, None, None)
-        except Exception:  # noqa: BLE001
+        except Exception:
             if exc_type is None and not raw.closed:
                 raise
         return False
@@ -321,9 +321,9 @@ def commit_pipeline(session: Session) -> None:
         return
     del session.info[PIPELINE]
     connection = session.connection()
-    cursor = connection.connection.dbapi_connection.cursor()  # type: ignore[union-attr]
+    cursor: Any = connection.connection.dbapi_connection.cursor()  # type: ignore[union-attr]
     try:
-        cursor.execute("COMMIT", prepare=False)
+        cursor.execute("COMMIT", prepare=False)  # (psycopg's cursor: not worth preparing)
         pipeline.__exit__(None, None, None)
     except connection.dialect.loaded_dbapi.Error as exc:
         raise driver_error(connection, "COMMIT", exc) from None
@@ -331,4 +331,4 @@ def commit_pipeline(session: Session) -> None:
         cursor.close()
 
 
-__all__ = ["AFTER_TRANSACTION", "PIPELINE", "Prepared", "Started", "bind_value", "commit_pipeline", "driver_error", "leave_pipeline", "pipeline_to_commit", "driver_rows", "execute_many", "insert_many", "stream_rows"]
+__all__ = ["AFTER_TRANSACTION", "PIPELINE", "Prepared", "Started", "bind_value", "commit_pipeline", "driver_error", "driver_rows", "execute_many", "insert_many", "leave_pipeline", "pipeline_to_commit", "stream_rows"]
