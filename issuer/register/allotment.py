@@ -37,7 +37,7 @@ from issuer.register.series import (
     scatter_protected,
     unknown_series,
 )
-from issuer.register.standing import search_key, validity_for
+from issuer.register.standing import BatchTexts, search_key, validity_for
 
 #: batches at least this large make their numbers with numpy, chunk by chunk
 BULK_FROM = 64
@@ -278,6 +278,8 @@ class Placed:
     bases: list[int]
     #: the end of validity the codes were given (the series' period, an explicit end, or none)
     valid_until: datetime | None = None
+    #: what the log records of the holder and note texts they were given (BatchTexts.detail)
+    texts: dict[str, Any] | None = None
 
 
 def place_codes(
@@ -340,16 +342,17 @@ def place_codes(
     codes = [shape.code_for_base(base) for base in bases]
     # a replacement keeps its predecessor's end (keep_until); a new code gets the series' period
     until = valid_until if keep_until else validity_for(series.valid_for_days, at, valid_until)
+    texts = BatchTexts()
     if last_writes:  # the caller only logs the act next: send the rest without waiting
         pipeline_to_commit(session)  # (again, if the claim had to leave it)
     write_codes(
         connection, series_id=series.id, batch_id=batch_id, codes=codes, bases=bases, holder=holder,
         note=note, holder_key=search_key(holder), note_key=search_key(note), replaces_id=replaces_id,
-        valid_until=until,
+        valid_until=until, salts=texts.salted(len(codes), holder, note),
     )  # fmt: skip
     close_batch(connection, batch_id)
     settle_counter(connection, series, count, counter)
-    return Placed(series, batch_id, codes, bases, until)
+    return Placed(series, batch_id, codes, bases, until, texts.detail())
 
 
 __all__ = [

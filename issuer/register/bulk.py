@@ -32,7 +32,7 @@ from issuer.errors import Exhausted, RegisterError
 from issuer.register.coderows import write_codes
 from issuer.register.models import SCATTERED, Batch, IssuedCode, Series, in_batch
 from issuer.register.series import capacity, code_format, permutation
-from issuer.register.standing import search_key
+from issuer.register.standing import BatchTexts, search_key
 
 if TYPE_CHECKING:
     import numpy as np
@@ -312,6 +312,7 @@ class BulkOutcome:
     last: tuple[str, int] | None = None
     digest: Any = field(default_factory=hashlib.sha256)
     collected: list[tuple[str, str, int]] = field(default_factory=list)
+    texts: BatchTexts = field(default_factory=BatchTexts)
 
 
 def store_bulk(
@@ -343,6 +344,7 @@ def store_bulk(
         write_codes(
             connection, series_id=series.id, batch_id=batch_id, codes=codes, bases=bases, holder=holder,
             note=note, holder_key=holder_key, note_key=note_key, valid_until=valid_until,
+            salts=outcome.texts.salted(len(codes), holder, note),  # None (no text): no work
         )  # fmt: skip
         outcome.digest.update(("\n".join(codes) + "\n").encode("ascii"))
         if outcome.first is None:

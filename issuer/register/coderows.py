@@ -19,7 +19,12 @@ of a bulk batch on SQLite):
   width. ``json_each`` yields the array in order; the statement has no ``ORDER BY``
   because SQLite would sort the rows again for it (it cannot tell they are in order).
 
-The two statements are compiled once each (:class:`~issuer.register.driver.Prepared`);
+Codes given holder or note text each get their own salt (``text_salt``): a third value
+that travels the same way (on PostgreSQL a text of hex salts split on spaces, on SQLite a
+blob of 16-byte pieces). A batch without text runs the same statement built without that
+column, so it costs nothing.
+
+The statements are compiled once each (:class:`~issuer.register.driver.Prepared`);
 they name the same columns and fill them from the same values.
 """
 
@@ -48,6 +53,7 @@ from sqlalchemy import func as sql_func
 
 from issuer.register.driver import Prepared
 from issuer.register.models import ISSUED, IssuedCode
+from issuer.register.standing import SALT_BYTES
 
 _CODE = cast(Table, IssuedCode.__table__)
 #: what separates the codes and numbers handed to PostgreSQL (a separator: never in a code)
@@ -67,50 +73,61 @@ def _same_for_every_row() -> list[Any]:
     return [bindparam(name, type_=_CODE.c[name].type) for name in BATCH_VALUES]
 
 
-def _writing(source: Any, code: Any, base: Any, order: Any = None) -> Prepared:
-    chosen = select(*_same_for_every_row(), code, base).select_from(source)
+def _writing(source: Any, code: Any, base: Any, salt: Any = None, order: Any = None) -> Prepared:
+    """The statement; ``salt`` None: without the salt column (a batch without text)."""
+    salted = () if salt is None else (salt,)
+    chosen = select(*_same_for_every_row(), code, base, *salted).select_from(source)
     if order is not None:
         chosen = chosen.order_by(order)
-    columns = [*BATCH_VALUES, "code", "base"]
+    columns = [*BATCH_VALUES, "code", "base", *("text_salt" for _ in salted)]
     return Prepared(insert(_CODE).from_select(columns, chosen))
 
 
-def _postgresql() -> Prepared:
+def _postgresql(salted: bool) -> Prepared:
     def split(name: str) -> Any:
         return sql_func.string_to_array(bindparam(name, type_=Text()), literal_column(f"'{SPACE}'"))
 
+    given = [split("codes"), sql_cast(split("bases"), ARRAY(BigInteger())), *([split("salts")] if salted else [])]
     pairs = (
-        sql_func.unnest(split("codes"), sql_cast(split("bases"), ARRAY(BigInteger())))
-        .table_valued("code", "base", with_ordinality="at")
+        sql_func.unnest(*given)
+        .table_valued("code", "base", *(["salt"] if salted else []), with_ordinality="at")
         .render_derived(name="given")
     )
-    return _writing(pairs, pairs.c.code, pairs.c.base, order=pairs.c.at)
+    salt = sql_func.decode(pairs.c.salt, literal_column("'hex'")) if salted else None
+    return _writing(pairs, pairs.c.code, pairs.c.base, salt, order=pairs.c.at)
 
 
-def _sqlite() -> Prepared:
+def _sqlite(salted: bool) -> Prepared:
     numbers = sql_func.json_each(bindparam("bases")).table_valued("key", "value").alias("given")
     width = bindparam("width", type_=Integer())
     piece = sql_func.substr(bindparam("codes"), numbers.c.key * width + 1, width)
-    return _writing(numbers, sql_cast(piece, String()), numbers.c.value)
+    salt = sql_func.substr(bindparam("salts"), numbers.c.key * SALT_BYTES + 1, SALT_BYTES) if salted else None
+    return _writing(numbers, sql_cast(piece, String()), numbers.c.value, salt)
 
 
-_WRITE = {"postgresql": _postgresql(), "sqlite": _sqlite()}
+#: (dialect, whether the codes get salts) -> the statement
+_WRITE = {(dialect, salted): make(salted) for dialect, make in (("postgresql", _postgresql), ("sqlite", _sqlite))
+          for salted in (False, True)}  # fmt: skip
 
 
-def _unpacked(dialect: str, codes: Sequence[str], bases: Sequence[int]) -> dict[str, Any]:
-    """The codes and numbers as the dialect's statement takes them; the same rules on
-    every backend, though each form needs only one of them."""
+def _unpacked(
+    dialect: str, codes: Sequence[str], bases: Sequence[int], salts: Sequence[bytes] | None
+) -> dict[str, Any]:
+    """The codes, numbers and salts as the dialect's statement takes them; the same rules
+    on every backend, though each form needs only one of them."""
     if len(set(map(len, codes))) != 1:
         raise ValueError("the codes of one batch must all have the same width")
     joined = "".join(codes)
     if SPACE in joined:  # a canonical code never holds one
         raise ValueError("a code to write holds a space")
     if dialect != "sqlite":
-        return {"codes": SPACE.join(codes), "bases": SPACE.join(map(str, bases))}
+        return {"codes": SPACE.join(codes), "bases": SPACE.join(map(str, bases)),
+                "salts": None if salts is None else SPACE.join(salt.hex() for salt in salts)}  # fmt: skip
     return {
         "codes": joined.encode("ascii"),
         "width": len(codes[0]),
         "bases": json.dumps(list(bases)),
+        "salts": None if salts is None else b"".join(salts),
     }
 
 
@@ -127,20 +144,22 @@ def write_codes(
     note_key: str | None = None,
     replaces_id: int | None = None,
     valid_until: datetime | None = None,
+    salts: Sequence[bytes] | None = None,
 ) -> None:
     """Insert the rows of ``codes`` (with their ``bases``, in issue order: their ids follow
-    it) for batch ``batch_id``; every row gets the same holder, note and validity. Nothing
-    is read back, so in a pipeline (:func:`~issuer.register.driver.pipeline_to_commit`)
-    the statement goes out without a wait."""
-    if len(codes) != len(bases):
-        raise ValueError("one base number per code")
+    it) for batch ``batch_id``; every row gets the same holder, note and validity, and its
+    own text salt from ``salts`` (None: no text, no salt). Nothing is read back, so in a
+    pipeline (:func:`~issuer.register.driver.pipeline_to_commit`) the statement goes out
+    without a wait."""
+    if len(codes) != len(bases) or (salts is not None and len(salts) != len(codes)):
+        raise ValueError("one base number per code, and one salt per code if any")
     if not codes:
         return
-    statement = _WRITE[connection.dialect.name]
+    statement = _WRITE[(connection.dialect.name, salts is not None)]
     values = {
         "series_id": series_id, "status": ISSUED, "batch_id": batch_id, "holder": holder, "note": note,
         "replaces_id": replaces_id, "print_count": 0, "holder_key": holder_key, "note_key": note_key,
-        "valid_until": valid_until, **_unpacked(connection.dialect.name, codes, bases),
+        "valid_until": valid_until, **_unpacked(connection.dialect.name, codes, bases, salts),
     }  # fmt: skip
     statement.send(connection, values)
 

@@ -2,8 +2,12 @@
 
 The holder and note are personal data. Every change is logged as an act on the code
 (who, when, which code) but the log never carries the texts themselves, so erasing
-them leaves the hash chain whole. A replacement carries its predecessor's holder and
-note, so erasure follows the replacement links and clears every copy.
+them leaves the hash chain whole. What it carries is a digest of the code's texts
+before and after the act, salted with 16 random bytes of the code's own
+(:func:`~issuer.register.standing.text_digest`): the replay holds the row to it, and
+erasure clears the salt with the texts, so the digests left in the log can no longer be
+tied to any text. A replacement carries its predecessor's holder and note, so erasure
+follows the replacement links and clears every copy.
 """
 
 from __future__ import annotations
@@ -24,9 +28,11 @@ from issuer.register.models import VOIDED, IssuedCode, Series, StockCount
 from issuer.register.series import code_format, get_series
 from issuer.register.standing import (
     clean_text,
+    new_salts,
     prefix_range,
     search_key,
     standing,
+    text_digest,
 )
 from issuer.register.store import Register
 
@@ -62,6 +68,23 @@ def _change(session: Session, row: IssuedCode, action: str) -> HolderChange:
 _KEEP = object()
 
 
+def _text_before(row: IssuedCode) -> dict[str, Any]:
+    """The digest of what a code holds, for the entry of an act about to change it; nothing
+    when it holds text without a salt (given before salts existed: the log never knew it)."""
+    try:
+        return {"text_before": text_digest(row.text_salt, row.holder, row.note)}
+    except ValueError:
+        return {}
+
+
+def _text_after(row: IssuedCode) -> dict[str, Any]:
+    """A fresh salt for the texts a code now holds (none when it holds none: the old
+    digests are then beyond linking), and their digest for the act's entry."""
+    has_text = row.holder is not None or row.note is not None
+    row.text_salt = next(new_salts(1)) if has_text else None
+    return {"text_after": text_digest(row.text_salt, row.holder, row.note)}
+
+
 def set_holder(register: Register, text: str, holder: str | None, *, note: Any = _KEEP) -> HolderChange:
     """Give a code a holder (and, when ``note`` is passed, a note; ``None`` clears it).
     A voided code keeps what it had: its holder can only be erased."""
@@ -84,13 +107,14 @@ def _write_holder(register: Register, text: str, holder: str | None, note: Any, 
         if row.status == VOIDED:
             raise Conflict(f"{shown_code(session, row)} is voided: its holder can no longer change (erase it if it must go)")
         # the log says what changed, never to what: the texts stay out of the chain
-        detail: dict[str, Any] = {"holder": "set" if holder is not None else "cleared"}
+        detail: dict[str, Any] = {"holder": "set" if holder is not None else "cleared", **_text_before(row)}
         if holder is not None and row.holder is not None:
             detail["holder"] = "changed"
         row.holder, row.holder_key = holder, search_key(holder)
         if note is not _KEEP:
             detail["note"] = "set" if new_note is not None else "cleared"
             row.note, row.note_key = new_note, search_key(new_note)
+        detail.update(_text_after(row))
         append_entry(session, NewEntry(action, row.series_id, row.code, None, detail),
                      actor=register.actor, at=register.clock())  # fmt: skip
         session.flush()
@@ -211,12 +235,16 @@ def _secure_sqlite(session: Session) -> None:
         session.connection().exec_driver_sql("PRAGMA secure_delete = ON")
 
 
-def _erase_rows(session: Session, rows: Sequence[IssuedCode], at: datetime) -> None:
+def _erase_rows(session: Session, rows: Sequence[IssuedCode], at: datetime) -> dict[int, dict[str, Any]]:
+    """Clear texts, keys and salt; per code id, the digests its entry logs (after: none)."""
     holders = {row.holder for row in rows if row.holder}
+    logged = {}
     for row in rows:
-        row.holder = row.note = row.holder_key = row.note_key = None
+        logged[row.id] = {**_text_before(row), "text_after": None}
+        row.holder = row.note = row.holder_key = row.note_key = row.text_salt = None
         row.erased_at = at
     _erase_count_scopes(session, holders)
+    return logged
 
 
 def _erase_count_scopes(session: Session, holders: set[str]) -> None:
@@ -262,11 +290,12 @@ def erase_holder(register: Register, text: str, *, reason: str) -> Erasure:
         if not texts:
             raise Conflict(f"{shown_code(session, row)} holds no holder or note to erase")
         at = register.clock()
-        _erase_rows(session, rows, at)
+        logged = _erase_rows(session, rows, at)
         append_entries(
             session,
             [NewEntry("holder.erase", r.series_id, r.code, None,
-                      {"reason": why} if r is row else {"reason": why, "copy_of": row.code})
+                      {"reason": why, **logged[r.id]} if r is row
+                      else {"reason": why, "copy_of": row.code, **logged[r.id]})
              for r in rows],
             actor=register.actor, at=at,
         )  # fmt: skip
@@ -336,9 +365,9 @@ def purge_holders(
                 .with_for_update(key_share=True)
             ))  # fmt: skip
             at = register.clock()
-            _erase_rows(session, locked, at)
-            append_entries(session, [NewEntry("holder.erase", r.series_id, r.code, None, detail) for r in locked],
-                           actor=register.actor, at=at)  # fmt: skip
+            logged = _erase_rows(session, locked, at)
+            append_entries(session, [NewEntry("holder.erase", r.series_id, r.code, None, {**detail, **logged[r.id]})
+                                     for r in locked], actor=register.actor, at=at)  # fmt: skip
             return len(locked)
 
         done += register.write(work)

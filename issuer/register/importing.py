@@ -34,7 +34,7 @@ from issuer.register.driver import bind_value, execute_many, insert_many
 from issuer.register.log import NewEntry, append_entries, rows_digest, timestamp_text
 from issuer.register.models import EXPIRED, ISSUED, SUSPENDED, VOIDED, Batch, IssuedCode
 from issuer.register.series import all_series, code_format, get_series
-from issuer.register.standing import search_key
+from issuer.register.standing import BatchTexts, new_salts, search_key, text_digest
 from issuer.register.stocktake import series_codes
 from issuer.register.store import Register
 
@@ -69,7 +69,7 @@ NAMED_IN_REFUSAL = 10
 ROW_COLUMNS = (
     "series_id", "code", "base", "status", "batch_id", "holder", "note", "origin_at", "origin_by",
     "void_reason", "voided_at", "voided_by", "print_count", "last_seen_at", "last_seen_where", "expected_where",
-    "holder_key", "note_key", "valid_until", "suspended_at", "suspended_by", "suspend_reason",
+    "holder_key", "note_key", "valid_until", "suspended_at", "suspended_by", "suspend_reason", "text_salt",
 )  # fmt: skip
 
 
@@ -297,6 +297,17 @@ def apply_import(
         def bind(column: str, value: Any) -> Any:
             return None if value is None else bind_value(session, table[column], value)  # type: ignore[arg-type]
 
+        # a salt for each code the file gives a holder or note, its digest into the batch's
+        salts = new_salts(sum(row.holder is not None or row.note is not None for row in plan.rows))
+        texts = BatchTexts()
+
+        def salt_for(row: ImportRow) -> bytes | None:
+            if row.holder is None and row.note is None:
+                return None
+            salt = next(salts)
+            texts.add(text_digest(salt, row.holder, row.note))
+            return salt
+
         for at in range(0, len(plan.rows), 10_000):
             chunk = plan.rows[at: at + 10_000]
             insert_many(session, "issued_code", ROW_COLUMNS, [
@@ -307,7 +318,7 @@ def apply_import(
                  bind("last_seen_at", row.last_seen_at), row.last_seen_where, row.expected_where,
                  search_key(row.holder), search_key(row.note), bind("valid_until", row.valid_until),
                  bind("suspended_at", row.suspended_at), register.actor if row.status == SUSPENDED else None,
-                 row.suspend_reason)
+                 row.suspend_reason, salt_for(row))
                 for row in chunk
             ])  # fmt: skip
             if progress is not None:
@@ -333,6 +344,7 @@ def apply_import(
             "links": [[old, new] for old, new in links],
             # each code's own end of validity, as its file gave it (in id order; None: no end)
             "valid_until_sha256": rows_digest((row.valid_until,) for row in plan.rows),
+            "texts": texts.detail(),
         })]  # fmt: skip
         entries.extend(
             NewEntry("void", series.id, row.code, None, {

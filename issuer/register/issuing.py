@@ -228,6 +228,7 @@ def issue_detail(
     holder: str | None = None,
     note: str | None = None,
     valid_until: datetime | None = None,
+    texts: dict[str, Any] | None = None,
 ) -> dict[str, Any]:
     """What the log entry of a small batch says about it (never holder text: the log keeps
     no personal data)."""
@@ -237,6 +238,7 @@ def issue_detail(
         "last": codes[-1],
         "codes_sha256": codes_digest(codes),
         "valid_until": validity_detail(valid_until),
+        "texts": texts,
     }
     if request_id is not None:
         detail["request_id"] = request_id
@@ -265,7 +267,7 @@ def _issue_few(
     append_entry(
         session,
         NewEntry("issue", series.id, codes[0] if count == 1 else None, batch_id,
-                 issue_detail(codes, request_id, holder, note, placed.valid_until)),
+                 issue_detail(codes, request_id, holder, note, placed.valid_until, placed.texts)),
         actor=register.actor,
         at=at,
     )  # fmt: skip
@@ -318,6 +320,7 @@ def _issue_many(
         "last": last_code,
         "codes_sha256": outcome.digest.hexdigest(),
         "valid_until": validity_detail(until),
+        "texts": outcome.texts.detail(),
     }
     if request_id is not None:
         detail["request_id"] = request_id

@@ -220,7 +220,8 @@ def replace_code(register: Register, text: str, *, reason: str) -> Replacement:
         append_entry(
             session,
             NewEntry("replace", series.id, new_code, placed.batch_id,
-                     {"reason": why, "replaces": old.code, "valid_until": validity_detail(placed.valid_until)}),
+                     {"reason": why, "replaces": old.code, "valid_until": validity_detail(placed.valid_until),
+                      "texts": placed.texts}),
             actor=register.actor,
             at=at,
         )

@@ -216,6 +216,9 @@ class IssuedCode(Base):
     suspend_reason: Mapped[str | None] = mapped_column(Text, default=None)
     #: when holder and note were last erased (the texts are gone; the act is logged)
     erased_at: Mapped[datetime | None] = mapped_column(UTCDateTime(), default=None)
+    #: 16 random bytes while the code holds holder or note text: the log records
+    #: SHA-256(salt + texts), never the texts; erasure clears it with them (see standing.text_digest)
+    text_salt: Mapped[bytes | None] = mapped_column(LargeBinary(16), default=None)
 
 
 def code_issued_at() -> Any:

@@ -59,6 +59,9 @@ class CodeExpect:
     valid_until_breaks: list[int] = field(default_factory=list)
     erased_at: datetime | None = None
     last_entry: int = 0
+    #: the holder and note acts that name it: (entry, digest before, digest after), each
+    #: UNKNOWN where the entry does not say (written before the log carried digests)
+    text_acts: list[tuple[int, Any, Any]] = field(default_factory=list)
 
 
 @dataclass
@@ -78,6 +81,8 @@ class BatchExpect:
     valid_until: Any = UNKNOWN
     #: an import's codes each have their own: a digest over them in id order (None: not logged)
     valid_until_sha256: str | None = None
+    #: {"count", "sha256"}: the codes given holder or note text and their digests (BatchTexts)
+    texts: Any = UNKNOWN
 
 
 @dataclass
@@ -120,6 +125,7 @@ def _batch(kind: str) -> Effect:
             e.detail.get("rows_sha256"), e.detail.get("request_id"),
             complete=kind != "import" or "rows_sha256" in e.detail,
             valid_until=e.detail.get("valid_until", UNKNOWN), valid_until_sha256=e.detail.get("valid_until_sha256"),
+            texts=texts if isinstance(texts := e.detail.get("texts"), dict) else UNKNOWN,
         )  # fmt: skip
         for old, new in e.detail.get("links", []):
             replay.code(new, e.id).replaces = old
@@ -171,12 +177,17 @@ def _seen(replay: Replay, e: Entry) -> None:
         code.seen_at, code.seen_where = e.detail["seen_at"], e.detail.get("where")
 
 
+def _text_act(code: CodeExpect, e: Entry) -> None:
+    code.text_acts.append((e.id, e.detail.get("text_before", UNKNOWN), e.detail.get("text_after", UNKNOWN)))
+
+
 def _holder(replay: Replay, e: Entry) -> None:
-    """Holder set or cleared: the log carries no holder text, so from here on the holder
-    and note are whatever the register holds (their search keys must still match them)."""
+    """Holder set or cleared: the log carries no holder text, only the digests of the
+    code's texts before and after (their salt is the code's own)."""
     if e.code is not None:
         code = replay.code(e.code, e.id)
         code.holder = code.note = UNKNOWN
+        _text_act(code, e)
 
 
 def _erased(replay: Replay, e: Entry) -> None:
@@ -185,6 +196,7 @@ def _erased(replay: Replay, e: Entry) -> None:
         code = replay.code(e.code, e.id)
         code.holder = code.note = None
         code.erased_at = e.at
+        _text_act(code, e)
 
 
 def _suspended(replay: Replay, e: Entry) -> None:

@@ -3,6 +3,7 @@ worked out from the log, code by code, batch by batch and series by series."""
 
 from __future__ import annotations
 
+import heapq
 from collections import Counter
 from collections.abc import Iterable
 from datetime import datetime
@@ -99,21 +100,87 @@ def _standing_problems(row: Any, expect: CodeExpect, code: str, where: str) -> l
     return problems
 
 
-def _search_key_problems(session: Session) -> list[str]:
-    """Each holder's and note's search key is the one their text makes (a key edited
-    alone would make ``find`` answer for a holder the code does not have)."""
-    from issuer.register.standing import search_key
+#: a code holding holder or note text without a salt: its texts have no digest
+_UNSALTED: Any = object()
+_TEXT_COLUMNS = "id, code, batch_id, holder, holder_key, note, note_key, text_salt"
+_HOLDS_TEXT = ("holder IS NOT NULL OR holder_key IS NOT NULL OR note IS NOT NULL OR note_key IS NOT NULL "
+               "OR text_salt IS NOT NULL")  # fmt: skip
 
-    problems = []
-    rows = session.execute(text(
-        "SELECT code, holder, holder_key, note, note_key FROM issued_code WHERE holder IS NOT NULL "
-        "OR holder_key IS NOT NULL OR note IS NOT NULL OR note_key IS NOT NULL ORDER BY id"
-    ), execution_options={"yield_per": 50_000})  # fmt: skip
-    for code, holder, holder_key, note, note_key in rows:
+
+def _first(row: Any) -> Any:
+    return row[0]
+
+
+def _held_digest(salt: Any, holder: str | None, note: str | None) -> Any:
+    from issuer.register.standing import text_digest
+
+    try:
+        return text_digest(salt, holder, note)
+    except ValueError:
+        return _UNSALTED
+
+
+def _holder_problems(session: Session, replay: Replay) -> list[str]:
+    """Holder and note, code by code where a code holds some (none: no work). Each search
+    key is the one its text makes (a key edited alone would make ``find`` answer for a
+    holder the code does not have); the texts are what the log's digests say: as the last
+    holder act left them, and each batch's as its entry counted them (a code's share is the
+    ``text_before`` of its first later act, else its row as it is). Codes given their text
+    before digests were logged, by an act no later act followed, are not judged."""
+    from issuer.register.standing import BatchTexts, search_key
+
+    problems: list[str] = []
+    batches: dict[int, BatchTexts | None] = {}  # None: a code's share cannot be told
+    touched = sorted(code for code, expect in replay.codes.items() if expect.text_acts)
+    # codes a holder act named that hold nothing now (erased, cleared), beside those that hold
+    # text: both in id order, so each batch's digests are taken in the order they were made
+    emptied = []
+    for chunk in _chunks(touched):
+        marks = ", ".join(f":c{i}" for i in range(len(chunk)))
+        emptied += session.execute(text(
+            f"SELECT {_TEXT_COLUMNS} FROM issued_code WHERE code IN ({marks}) AND NOT ({_HOLDS_TEXT})"
+        ), {f"c{i}": code for i, code in enumerate(chunk)}).all()  # fmt: skip
+    emptied.sort(key=_first)
+    holding = session.execute(
+        text(f"SELECT {_TEXT_COLUMNS} FROM issued_code WHERE {_HOLDS_TEXT} ORDER BY id"),
+        execution_options={"yield_per": 50_000},
+    )
+    for _id, code, batch_id, holder, holder_key, note, note_key, salt in heapq.merge(emptied, holding, key=_first):
         if holder_key != search_key(holder):
             problems.append(f"{code}: its holder's search key is not the one its holder makes")
         if note_key != search_key(note):
             problems.append(f"{code}: its note's search key is not the one its note makes")
+        now = _held_digest(salt, holder, note)
+        if now is None and salt is not None:
+            problems.append(f"{code}: holds a text salt but no holder or note")
+        expect = replay.codes.get(code)
+        acts = expect.text_acts if expect is not None else []
+        for (one, _b, left), (other, found, _a) in zip(acts, acts[1:]):
+            if left is not UNKNOWN and found is not UNKNOWN and left != found:
+                problems.append(f"{code}: log entry #{other} found holder and note other than "
+                                f"entry #{one} left them")  # fmt: skip
+        batch = replay.batches.get(batch_id)
+        known = batch is not None and batch.texts is not UNKNOWN
+        if acts and acts[-1][2] is not UNKNOWN and now != acts[-1][2]:
+            problems.append(f"{code}: holder or note differ from what log entry #{acts[-1][0]} left"
+                            + (" (text without a salt)" if now is _UNSALTED else ""))  # fmt: skip
+        elif not acts and known and now is _UNSALTED:
+            problems.append(f"{code}: holds holder or note text without a salt")
+        if known:
+            share = acts[0][1] if acts else now
+            texts = batches.setdefault(batch_id, BatchTexts())
+            if share is UNKNOWN or share is _UNSALTED:
+                batches[batch_id] = None
+            elif texts is not None:
+                texts.add(share)
+    for batch_id, batch in sorted(replay.batches.items()):
+        if batch.texts is UNKNOWN:
+            continue
+        texts = batches.get(batch_id, BatchTexts())
+        logged = {"count": batch.texts.get("count"), "sha256": batch.texts.get("sha256")}
+        if texts is None or texts.detail() != logged:
+            problems.append(f"batch {batch_id}: its codes' holders and notes differ from those "
+                            f"logged by entry #{batch.entry}")  # fmt: skip
     return problems
 
 
@@ -159,7 +226,7 @@ def replay_problems(session: Session) -> tuple[list[str], list[str], int]:
     problems += _validity_problems(session, replay, renewed)
     problems += _series_problems(session, replay)
     problems += _text_problems(session)
-    problems += _search_key_problems(session)
+    problems += _holder_problems(session, replay)
     trees = session.execute(text("SELECT count(*) FROM log_tree")).scalar_one()
     if trees != 1:
         problems.append(f"log_tree holds {trees} rows; the sealed tree has one")

@@ -82,7 +82,7 @@ CLERK_POLICY: dict[str, TableGrants] = {
         insert=True,
         update=(
             "print_count", "last_seen_at", "last_seen_where", "expected_where",
-            "holder", "holder_key", "note", "note_key", "valid_until",  # holder set/clear, renew
+            "holder", "holder_key", "note", "note_key", "text_salt", "valid_until",  # holder set/clear, renew
         ),
     ),
     # the log is written only through issuer_log_append (SECURITY DEFINER)
@@ -112,7 +112,7 @@ ADMIN_POLICY: dict[str, TableGrants] = {
             "status", "holder", "note", "void_reason", "voided_at", "voided_by",
             "replaces_id", "replaced_by_id", "print_count", "last_seen_at", "last_seen_where",
             "expected_where",
-            "holder_key", "note_key", "valid_until", "erased_at",
+            "holder_key", "note_key", "text_salt", "valid_until", "erased_at",
             "suspended_at", "suspended_by", "suspend_reason",
         ),
     ),

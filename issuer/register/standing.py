@@ -6,9 +6,14 @@ Nothing here reads the clock: callers pass ``now`` (the register's clock).
 
 from __future__ import annotations
 
+import hashlib
+import json
+import os
 import re
 import unicodedata
+from collections.abc import Iterator
 from datetime import UTC, date, datetime, time, timedelta
+from typing import Any
 
 from issuer import limits
 from issuer.errors import InvalidFormat
@@ -51,6 +56,71 @@ def clean_text(value: str | None, *, what: str) -> str | None:
     if value is None or not value.strip():
         return None
     return limits.text(what, value)
+
+
+# --- the texts' digests: what the log keeps of a holder and note ------------------------
+
+#: bytes of a code's text salt (128 bits: never guessed, never repeated)
+SALT_BYTES = 16
+
+
+def text_payload(holder: str | None, note: str | None) -> bytes | None:
+    """A code's holder and note as one unambiguous byte string (a JSON pair: a text holding
+    the separator, or none against an empty one, cannot pass for another); None: no text."""
+    if holder is None and note is None:
+        return None
+    return json.dumps([holder, note], ensure_ascii=False, separators=(",", ":")).encode("utf-8")
+
+
+def text_digest(salt: bytes | None, holder: str | None, note: str | None) -> str | None:
+    """SHA-256 of a code's salt and texts, in hex: what the log records of them (the full
+    64 characters: whoever edits a row may also pick its salt, so only a second preimage of
+    the whole digest would let an edit pass). None: no text. A code with text and no salt
+    (given it before salts existed) has no digest: :class:`ValueError`."""
+    payload = text_payload(holder, note)
+    if payload is None:
+        return None
+    if salt is None:
+        raise ValueError("text without a salt")
+    return hashlib.sha256(bytes(salt) + payload).hexdigest()
+
+
+def new_salts(count: int) -> Iterator[bytes]:
+    """``count`` fresh salts, from one read of the system's random source."""
+    pool = os.urandom(SALT_BYTES * count)
+    return (pool[at: at + SALT_BYTES] for at in range(0, len(pool), SALT_BYTES))
+
+
+class BatchTexts:
+    """What an act that gives many codes text at once logs: how many codes got text, and
+    SHA-256 over their digests (32 bytes each) in the order of their ids. The replay
+    recomputes it from each code's digest at the time (the ``text_before`` of its first
+    later act, else its row as it is)."""
+
+    def __init__(self) -> None:
+        self.count = 0
+        self.hash = hashlib.sha256()
+
+    def salted(self, count: int, holder: str | None, note: str | None) -> list[bytes] | None:
+        """Salts for ``count`` codes given these texts, each code's digest taken into the
+        batch's (None, and no work, when there is no text)."""
+        payload = text_payload(holder, note)
+        if payload is None:
+            return None
+        salts = list(new_salts(count))
+        sha256, update = hashlib.sha256, self.hash.update
+        for salt in salts:
+            update(sha256(salt + payload).digest())
+        self.count += count
+        return salts
+
+    def add(self, digest: str | None) -> None:
+        if digest is not None:
+            self.hash.update(bytes.fromhex(digest))
+            self.count += 1
+
+    def detail(self) -> dict[str, Any]:
+        return {"count": self.count, "sha256": self.hash.hexdigest()}
 
 
 def parse_period(text: str) -> int:
@@ -111,6 +181,8 @@ def standing(status: str, valid_until: datetime | None, now: datetime | None) ->
 
 
 __all__ = [
+    "SALT_BYTES",
+    "BatchTexts",
     "HOLDER_WIDTH",
     "NOTE_WIDTH",
     "REASON_WIDTH",
@@ -120,7 +192,10 @@ __all__ = [
     "period_text",
     "prefix_range",
     "search_key",
+    "new_salts",
     "standing",
+    "text_digest",
+    "text_payload",
     "validity_detail",
     "validity_for",
 ]
