@@ -7,6 +7,8 @@ import heapq
 from collections import Counter
 from collections.abc import Iterable
 from datetime import datetime
+from functools import lru_cache
+from itertools import chain, pairwise
 from typing import Any
 
 from sqlalchemy import text
@@ -111,11 +113,11 @@ def _first(row: Any) -> Any:
     return row[0]
 
 
-def _held_digest(salt: Any, holder: str | None, note: str | None) -> Any:
-    from issuer.register.standing import text_digest
+def _held_digest(salt: Any, payload: bytes | None) -> Any:
+    from issuer.register.standing import payload_digest
 
     try:
-        return text_digest(salt, holder, note)
+        return payload_digest(salt, payload)
     except ValueError:
         return _UNSALTED
 
@@ -127,35 +129,36 @@ def _holder_problems(session: Session, replay: Replay) -> list[str]:
     holder act left them, and each batch's as its entry counted them (a code's share is the
     ``text_before`` of its first later act, else its row as it is). Codes given their text
     before digests were logged, by an act no later act followed, are not judged."""
-    from issuer.register.standing import BatchTexts, search_key
+    from issuer.register.standing import BatchTexts, search_key, text_payload
 
+    # a batch's codes often share their texts: each text is folded and encoded once
+    key_of, payload_of = lru_cache(maxsize=65_536)(search_key), lru_cache(maxsize=65_536)(text_payload)
     problems: list[str] = []
     batches: dict[int, BatchTexts | None] = {}  # None: a code's share cannot be told
     touched = sorted(code for code, expect in replay.codes.items() if expect.text_acts)
     # codes a holder act named that hold nothing now (erased, cleared), beside those that hold
     # text: both in id order, so each batch's digests are taken in the order they were made
-    emptied = []
+    emptied: list[Any] = []
     for chunk in _chunks(touched):
         marks = ", ".join(f":c{i}" for i in range(len(chunk)))
         emptied += session.execute(text(
             f"SELECT {_TEXT_COLUMNS} FROM issued_code WHERE code IN ({marks}) AND NOT ({_HOLDS_TEXT})"
         ), {f"c{i}": code for i, code in enumerate(chunk)}).all()  # fmt: skip
     emptied.sort(key=_first)
-    holding = session.execute(
-        text(f"SELECT {_TEXT_COLUMNS} FROM issued_code WHERE {_HOLDS_TEXT} ORDER BY id"),
-        execution_options={"yield_per": 50_000},
-    )
-    for _id, code, batch_id, holder, holder_key, note, note_key, salt in heapq.merge(emptied, holding, key=_first):
-        if holder_key != search_key(holder):
+    holding = session.execute(text(f"SELECT {_TEXT_COLUMNS} FROM issued_code WHERE {_HOLDS_TEXT} ORDER BY id"),
+                              execution_options={"yield_per": 50_000})  # fmt: skip
+    rows = heapq.merge(emptied, chain.from_iterable(holding.partitions(50_000)), key=_first)
+    for _id, code, batch_id, holder, holder_key, note, note_key, salt in rows:
+        if holder_key != key_of(holder):
             problems.append(f"{code}: its holder's search key is not the one its holder makes")
-        if note_key != search_key(note):
+        if note_key != key_of(note):
             problems.append(f"{code}: its note's search key is not the one its note makes")
-        now = _held_digest(salt, holder, note)
+        now = _held_digest(salt, payload_of(holder, note))
         if now is None and salt is not None:
             problems.append(f"{code}: holds a text salt but no holder or note")
         expect = replay.codes.get(code)
         acts = expect.text_acts if expect is not None else []
-        for (one, _b, left), (other, found, _a) in zip(acts, acts[1:]):
+        for (one, _b, left), (other, found, _a) in pairwise(acts):
             if left is not UNKNOWN and found is not UNKNOWN and left != found:
                 problems.append(f"{code}: log entry #{other} found holder and note other than "
                                 f"entry #{one} left them")  # fmt: skip
@@ -340,7 +343,7 @@ def _text_problems(session: Session) -> list[str]:
             text("SELECT code, base FROM issued_code WHERE series_id = :s ORDER BY id"), {"s": series.id},
             execution_options={"yield_per": 50_000},
         )
-        for part in rows.partitions():
+        for part in rows.partitions(50_000):
             codes = [str(r[0]) for r in part]
             bases = np.asarray([int(r[1]) for r in part], dtype=np.int64)
             try:

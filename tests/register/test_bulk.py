@@ -5,6 +5,7 @@ CSV written whole or not at all; on SQLite and PostgreSQL."""
 from __future__ import annotations
 
 import csv
+import hashlib
 import json
 from pathlib import Path
 from typing import Any
@@ -68,7 +69,8 @@ def test_in_order_bulk_batch_stores_every_row_and_one_log_entry(anywhere: Regist
         entry = session.scalars(select(LogEntry).where(LogEntry.batch_id == result.batch)).one()
         detail = json.loads(entry.detail)
         assert detail == {"count": 1_000, "first": rows[0][0], "last": rows[-1][0],
-                          "codes_sha256": codes_digest([row[0] for row in rows]), "valid_until": None}
+                          "codes_sha256": codes_digest([row[0] for row in rows]), "valid_until": None,
+                          "texts": {"count": 0, "sha256": hashlib.sha256(b"").hexdigest()}}
         assert verify_chain(session).intact
         series = get_series(session, "tools")
         assert (series.next_counter, series.code_count) == (1_003, 1_003)

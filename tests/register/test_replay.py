@@ -187,7 +187,7 @@ def test_entries_written_before_ends_were_logged_judge_renewed_codes_only(regist
     _drop_detail_key(register_url, "valid_until", ("issue", "replace"))
     _drop_detail_key(register_url, "valid_until_sha256", ("import",))
     sql_behind_the_back(register_url, "UPDATE issued_code SET valid_until = NULL WHERE code = :c", c=codes["plain"])
-    healthy, details = replay_details(register_url)
+    _healthy, details = replay_details(register_url)
     assert not any("valid" in line for line in details), details
 
 
