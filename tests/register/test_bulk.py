@@ -5,7 +5,6 @@ CSV written whole or not at all; on SQLite and PostgreSQL."""
 from __future__ import annotations
 
 import csv
-import hashlib
 import json
 from pathlib import Path
 from typing import Any
@@ -25,6 +24,7 @@ from issuer.register.issuing import BULK_FROM, codes_digest, issue_codes
 from issuer.register.logverify import verify_chain
 from issuer.register.models import IssuedCode, LogEntry
 from issuer.register.series import get_series, permutation
+from issuer.register.standing import BatchTexts, text_digest
 from issuer.register.store import Register, open_register
 from tests.register.pg import pg_database, pg_url, register_url  # noqa: F401
 
@@ -68,9 +68,16 @@ def test_in_order_bulk_batch_stores_every_row_and_one_log_entry(anywhere: Regist
     with anywhere.reading() as session:
         entry = session.scalars(select(LogEntry).where(LogEntry.batch_id == result.batch)).one()
         detail = json.loads(entry.detail)
+        # every code its own salt; the entry counts them and digests their texts' digests in order
+        salts = [bytes(salt) for salt in session.scalars(
+            select(IssuedCode.text_salt).where(IssuedCode.batch_id == result.batch).order_by(IssuedCode.id))]
+        assert len(set(salts)) == 1_000 and {len(salt) for salt in salts} == {16}
+        texts = BatchTexts()
+        for salt in salts:
+            texts.add(text_digest(salt, "Quillmere workshop", "new site"))
         assert detail == {"count": 1_000, "first": rows[0][0], "last": rows[-1][0],
                           "codes_sha256": codes_digest([row[0] for row in rows]), "valid_until": None,
-                          "texts": {"count": 0, "sha256": hashlib.sha256(b"").hexdigest()}}
+                          "texts": texts.detail()}
         assert verify_chain(session).intact
         series = get_series(session, "tools")
         assert (series.next_counter, series.code_count) == (1_003, 1_003)

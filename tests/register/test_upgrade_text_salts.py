@@ -59,8 +59,9 @@ def _downgrade(register: Register) -> None:
         connection.rollback()
 
 
-def _no_digests(patch: pytest.MonkeyPatch) -> None:
-    """Entries as the previous release wrote them: no digest of any text."""
+def without_text_digests(patch: pytest.MonkeyPatch) -> None:
+    """Entries as a release before text salts wrote them: no digest of any text (for a test
+    that makes a register with this release's acts and takes it down to an older revision)."""
     patch.setattr(BatchTexts, "detail", lambda self: None)  # an entry's "texts" null: not known
     patch.setattr(holders, "_text_before", lambda row: {})
     patch.setattr(holders, "_text_after", lambda row: {})
@@ -75,7 +76,7 @@ def test_codes_given_text_before_salts_stay_healthy_and_are_judged_once_touched(
 ) -> None:
     register = open_register(register_url, actor="membership desk")
     with monkeypatch.context() as patch:
-        _no_digests(patch)
+        without_text_digests(patch)
         add_series(register, SeriesSpec(key="members", scheme="luhn", length=7, prefix="M", mode="scattered"))
         old = [i.code for i in issue_codes(register, "members", 70, holder="Ada Quill", note="family plan").codes]
         set_holder(register, old[1], "Bea Loom")
