@@ -121,12 +121,21 @@ class _Form:
     processors: Mapping[str, Callable[[Any], Any]]
     returns_rows: bool = False  # a SELECT or a write with RETURNING
 
+    def __post_init__(self) -> None:
+        # looked up once, as binding runs on every statement of every act: each parameter's
+        # name and the value written into the statement (or none: the caller gives it), and
+        # where a processor applies
+        plan = tuple((name, name not in self.defaults, self.defaults.get(name)) for name in self.names)
+        processed = tuple((at, self.processors[name]) for at, name in enumerate(self.names) if name in self.processors)
+        object.__setattr__(self, "_plan", plan)
+        object.__setattr__(self, "_processed", processed)
+
     def parameters(self, values: Mapping[str, Any]) -> Sequence[Any] | dict[str, Any]:
-        out = []
-        for name in self.names:
-            value = values[name] if name in values else self.defaults[name]
-            processor = self.processors.get(name)
-            out.append(processor(value) if processor is not None and value is not None else value)
+        plan: tuple[tuple[str, bool, Any], ...] = self._plan  # type: ignore[attr-defined]
+        out = [values[name] if given else values.get(name, default) for name, given, default in plan]
+        for at, processor in self._processed:  # type: ignore[attr-defined]
+            if out[at] is not None:
+                out[at] = processor(out[at])
         return out if self.positional else dict(zip(self.names, out))
 
 
@@ -169,7 +178,7 @@ class Prepared:
     def _run(self, connection: Connection, call: Callable[[Any, _Form], Any]) -> Any:
         dialect = connection.dialect
         form = self._form(dialect)
-        cursor = connection.connection.cursor()
+        cursor = connection.connection.dbapi_connection.cursor()  # type: ignore[union-attr]
         try:
             return call(cursor, form)
         except dialect.loaded_dbapi.Error as exc:
@@ -199,7 +208,7 @@ class Prepared:
         statements started after it go out before its answer has come back, and the first
         read waits for all of them (one round trip)."""
         form = self._form(connection.dialect)
-        cursor = connection.connection.cursor()
+        cursor = connection.connection.dbapi_connection.cursor()  # type: ignore[union-attr]
         try:
             cursor.execute(form.sql, form.parameters(values or {}))
         except connection.dialect.loaded_dbapi.Error as exc:
