@@ -5,6 +5,7 @@ a replacement); an erased code stays healthy and keeps no salt."""
 
 from __future__ import annotations
 
+from datetime import timedelta
 from pathlib import Path
 
 import pytest
@@ -12,10 +13,10 @@ from sqlalchemy import create_engine, text
 
 from issuer.readers.scanfile import read_table
 from issuer.register.defining import SeriesSpec, add_series
-from issuer.register.holders import erase_holder, set_holder
+from issuer.register.holders import erase_holder, purge_holders, set_holder
 from issuer.register.importing import IMPORT_ROLES, import_codes
 from issuer.register.issuing import issue_codes
-from issuer.register.lifecycle import replace_code
+from issuer.register.lifecycle import replace_code, void_code
 from issuer.register.series import code_format, get_series
 from issuer.register.standing import search_key, text_digest
 from issuer.register.store import database_url, open_register
@@ -123,3 +124,14 @@ def test_an_edit_before_a_holder_act_shows_in_what_the_act_found(register_url: s
     register.close()
     healthy, details = replay_details(register_url)
     assert not healthy and any("holders and notes differ" in line for line in details), details
+
+
+def test_a_purge_by_age_leaves_the_register_healthy(register_url: str, tmp_path: Path) -> None:  # noqa: F811
+    """Each purged code's entry carries the digest it held; its salt goes with its texts."""
+    codes = _setup(register_url, tmp_path)
+    register = open_register(register_url, actor="membership desk")
+    void_code(register, codes["issued"], reason="member left the co-op")
+    purged = purge_holders(register, voided_before=register.clock() + timedelta(hours=1))
+    register.close()
+    assert purged.count >= 1 and _row(register_url, codes["issued"]) == (None, None, None)
+    assert replay_details(register_url) == (True, [])
