@@ -142,8 +142,8 @@ class LockSampler:
 
 
 WAITS: dict[str, list[float]] = {}
-#: CPU seconds per row, (client, server), of each measurement
-CPU: dict[tuple[str, int], list[tuple[float, float]]] = {}
+#: CPU seconds (client, server) and rows of each measurement
+CPU: dict[tuple[str, int], list[tuple[float, float, int]]] = {}
 
 
 def measure(python: str, desks: int, per_desk: int, folder: Path, name: str = "") -> float:
@@ -177,7 +177,7 @@ def measure(python: str, desks: int, per_desk: int, folder: Path, name: str = ""
             WAITS.setdefault(name, []).append(sampler.share())
         rows = desks * per_desk
         CPU.setdefault((name, desks), []).append(
-            (sum(t["client"] for t in times) / rows, sum(t["server"] for t in times) / rows)
+            (sum(t["client"] for t in times), sum(t["server"] for t in times), rows)
         )
         return rows / (max(t["end"] for t in times) - min(t["start"] for t in times))
 
@@ -223,13 +223,15 @@ def main() -> None:
     print(f"targets: 8 desks >= 4x one desk, and >= 0.3 of the raw 8-connection loop; the raw loop "
           f"itself scales {raw_eight / raw_one:.2f}x from 1 to 8 connections on this machine "
           f"({os.cpu_count()} cores), the ceiling for the desks' 8 vs 1")
-    # CPU per row (medians; the disk's moods do not move it): what the cores allow at most
+    # CPU per row (the disk's moods do not move it): what the cores allow at most; over all
+    # rounds, as /proc counts in clock ticks (10 ms: 150 codes alone would be +-67 us a code)
     cores = os.cpu_count() or 1
-    print(f"CPU per code, one desk (client + its server process), median; the {cores} cores' ceiling "
-          f"for any number of desks = {cores} / CPU per code:")
+    print(f"CPU per code, one desk (client + its server process), all rounds; the {cores} cores' "
+          f"ceiling for any number of desks = {cores} / CPU per code:")
     for name in runs:
-        client = statistics.median(c for c, _ in CPU[(name, 1)])
-        server = statistics.median(s for _, s in CPU[(name, 1)])
+        rows = sum(n for _, _, n in CPU[(name, 1)])
+        client = sum(c for c, _, _ in CPU[(name, 1)]) / rows
+        server = sum(s for _, s, _ in CPU[(name, 1)]) / rows
         ceiling = cores / (client + server)
         print(f"{name:>12} {client * 1e6:5.0f} us + {server * 1e6:4.0f} us = {(client + server) * 1e6:5.0f} us; "
               f"ceiling {ceiling:,.0f}/s = {ceiling / medians[name][0]:.1f}x its one-desk rate")
