@@ -77,7 +77,10 @@ def issue(
         from issuer.cli.signing import read_key_file, signing_key_path
         from issuer.outputs import check_target
 
+        from issuer.proofs.statements import check_private_key
+
         signing = read_key_file(signing_key_path(sign_key), "signing key")
+        check_private_key(signing)
         check_target(receipt, force=force, what="receipt file")
 
     from issuer.cli.interrupts import batch_told, now, truthful_interrupt

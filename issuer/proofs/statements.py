@@ -79,6 +79,12 @@ def _public(pem: bytes):  # type: ignore[no-untyped-def]
     return key
 
 
+def check_private_key(private_pem: bytes) -> None:
+    """Refuse, with one line, a signing key that is not an Ed25519 private key: before an
+    act that would sign, so that nothing is done (issued, sealed) that the signing then fails."""
+    _private(private_pem)
+
+
 def public_key_pem(private_pem: bytes) -> bytes:
     from cryptography.hazmat.primitives import serialization
 

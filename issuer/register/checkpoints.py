@@ -15,7 +15,7 @@ from sqlalchemy import select
 
 from issuer.errors import NotFound, ProofFailed
 from issuer.proofs import merkle
-from issuer.proofs.statements import Checkpoint, Receipt, sign_checkpoint
+from issuer.proofs.statements import Checkpoint, Receipt, check_private_key, sign_checkpoint
 from issuer.register.admin import snapshot
 from issuer.register.log import leaf_hashes, row_text, seal
 from issuer.register.models import LogEntry, LogLeaf
@@ -28,6 +28,7 @@ def _at(clock: Callable[[], datetime]) -> str:
 
 def make_checkpoint(register: Register, private_pem: bytes) -> Checkpoint:
     """Seal what has committed and sign the tree's size and root."""
+    check_private_key(private_pem)  # a key that cannot sign refuses before anything is sealed
     size = register.write(seal)
     with snapshot(register) as session:
         top = merkle.root(leaf_hashes(session, size))
@@ -46,6 +47,7 @@ def extension_proof(register: Register, old: Checkpoint) -> tuple[int, bytes, li
 
 def receipt_for_batch(register: Register, batch_id: int, private_pem: bytes) -> Receipt:
     """Seal, sign a checkpoint and prove the log entry that opened ``batch_id`` is its leaf."""
+    check_private_key(private_pem)
     size = register.write(seal)
     with snapshot(register) as session:
         found = session.execute(

@@ -173,3 +173,28 @@ def _rewrite_entry(url: str, entry_id: int) -> None:
             previous = digest
         session.execute(text("UPDATE log_chain SET last_hash = :h WHERE chain = :c"), {"h": previous, "c": target.chain})
     engine.dispose()
+
+
+def _sealed_and_issued(url: str) -> tuple[int, int]:
+    engine = create_engine(database_url(url))
+    with engine.connect() as connection:
+        sealed = connection.execute(text("SELECT size FROM log_tree")).scalar_one_or_none() or 0
+        issued = connection.execute(text("SELECT count(*) FROM issued_code")).scalar_one()
+    engine.dispose()
+    return int(sealed), int(issued)
+
+
+def test_a_key_that_cannot_sign_changes_nothing(scene: tuple[str, Path], tmp_path: Path) -> None:
+    """A checkpoint or an issue with a receipt refuses a file that is no signing key before
+    it seals the log or issues a code (found by the CLI fuzz test: the log was sealed, then
+    the signing failed)."""
+    url, _key = scene
+    junk = tmp_path / "junk.pem"
+    junk.write_bytes(b"not a key\n")
+    before = _sealed_and_issued(url)
+    one_line_refusal(cli("log", "checkpoint", "--db", url, "--key", str(junk)), "signing key")
+    receipt = tmp_path / "r.txt"
+    result = cli("issue", "tools", "--db", url, "--receipt", str(receipt), "--key", str(junk), "--actor", "desk")
+    one_line_refusal(result, "signing key")
+    assert _sealed_and_issued(url) == before
+    assert not receipt.exists()
