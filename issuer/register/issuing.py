@@ -184,6 +184,7 @@ def issue_codes(
     ``valid_until`` ends the codes' validity; without it the series' default period
     (if any) runs from the moment of issue.
     """
+    limits.text("series key", key)  # the claim finds the series by key in the database's own statement
     limits.number("count", count)
     limits.text("request id", request_id)
     holder = clean_text(holder, what="holder")

@@ -40,6 +40,8 @@ def _inputs(tmp_path: Path) -> dict[str, tuple[list[str], dict[str, str]]]:
         "config wrong type": (["issue", "tools"], {"ISSUER_CONFIG": _file(tmp_path, "t.toml", "[register]\nbusy_timeout_ms = 'x'\n")}),
         "backup name 300": (["backup", str(tmp_path / ("b" * 300))], {}),
         "holder with NUL": (["issue", "tools", "--holder", "a\x00b"], {}),
+        "series key NUL": (["issue", "\x00"], {}),  # the long fuzz run found it (PostgreSQL)
+        "series key NUL in a bulk": (["issue", "to\x00ls", "--count", "5000"], {}),
         "JSON lone surrogate": (["import", "tools", _file(tmp_path, "s.jsonl", '{"code": "' + tool(90) + '", "holder": "\\ud800"}\n')], {}),
         "JSON NUL": (["import", "tools", _file(tmp_path, "n.jsonl", '{"code": "' + tool(91) + '", "note": "\\u0000"}\n')], {}),
         "JSON deep nesting": (["import", "tools", _file(tmp_path, "d.jsonl", "[" * 20000 + "]" * 20000 + "\n")], {}),
