@@ -31,7 +31,7 @@ from datetime import UTC, datetime
 from pathlib import Path
 from typing import Any, TypeVar
 
-from sqlalchemy import Engine, create_engine, event, text
+from sqlalchemy import Connection, Engine, create_engine, event, text
 from sqlalchemy.engine import make_url
 from sqlalchemy.exc import ArgumentError, DBAPIError, IntegrityError, OperationalError
 from sqlalchemy.orm import Session
@@ -212,6 +212,27 @@ def _refused(exc: DBAPIError) -> PermissionDenied:
     return PermissionDenied(f"the database refused this act for the connected role ({first})")
 
 
+class _WritingSession(Session):
+    """The session of one writing transaction (:meth:`Register.writing`), bound to the
+    connection whose transaction it is. :meth:`connection` hands back that connection
+    without starting the session's own transaction: the statements an act runs on it
+    are in the connection's transaction already. The ORM joins the same transaction the
+    first time it is used (``rollback_only``: its commit flushes, the connection
+    commits)."""
+
+    def __init__(self, connection: Connection, info: dict[str, Any]) -> None:
+        super().__init__(bind=connection, expire_on_commit=False, info=info,
+                         join_transaction_mode="rollback_only")  # fmt: skip
+        self._writing_on = connection
+
+    def connection(
+        self, bind_arguments: Any = None, execution_options: Any = None
+    ) -> Connection:
+        if bind_arguments is None and execution_options is None:
+            return self._writing_on
+        return super().connection(bind_arguments, execution_options)
+
+
 @dataclass
 class Register:
     """An open register: an engine plus who is acting and the clock to use."""
@@ -269,7 +290,12 @@ class Register:
     def writing(self, steps: list[str] | None = None) -> Iterator[Session]:
         """One writing transaction: committed whole on success, rolled back whole on any
         error. Use :meth:`write` to get the retries as well. ``steps`` (if given) gets
-        ``"commit"`` once the work is done and the COMMIT is about to be sent."""
+        ``"commit"`` once the work is done and the COMMIT is about to be sent.
+
+        The transaction is the connection's (BEGIN IMMEDIATE on SQLite); the session
+        joins it only when the ORM is used, and what the ORM holds is flushed before the
+        COMMIT. An act that runs its statements on the connection (an issue) pays for no
+        session transaction at all."""
         from contextlib import ExitStack
 
         from issuer.register.driver import AFTER_TRANSACTION, commit_pipeline
@@ -277,23 +303,25 @@ class Register:
         with self.engine.connect() as connection:
             connection.execution_options(issuer_write=True)
             heard: list[str] = connection.info.get(_WARNINGS, [])
-            with ExitStack() as after, Session(
-                bind=connection, expire_on_commit=False, info=self.session_info()
-            ) as session:
+            with ExitStack() as after, _WritingSession(connection, self.session_info()) as session:
                 session.info[AFTER_TRANSACTION] = after  # closed once the transaction has ended
-                with session.begin():
+                with connection.begin():
                     try:
                         yield session
+                        heard.clear()  # only what the COMMIT itself brings counts
+                        if steps is not None:
+                            steps.append("commit")
+                        # an act whose last writes are in a pipeline commits in it (one round trip)
+                        commit_pipeline(session)
+                        if session.in_transaction():
+                            # the ORM's changes go out now; the session joined the
+                            # connection's transaction, so its commit leaves the COMMIT to it
+                            session.commit()
                     except BaseException:
                         # a pipeline still open is closed before the ROLLBACK (an aborted
                         # pipeline refuses it)
                         after.__exit__(*sys.exc_info())
                         raise
-                    heard.clear()  # only what the COMMIT itself brings counts
-                    if steps is not None:
-                        steps.append("commit")
-                    # an act whose last writes are in a pipeline commits in it (one round trip)
-                    commit_pipeline(session)
             if heard:
                 # committed on this server, but the wait for its synchronous standby was
                 # cut short (a cancel): the standby may not have the act
