@@ -175,28 +175,25 @@ class Prepared:
             self._forms[dialect.name] = form
         return form
 
-    def _run(self, connection: Connection, call: Callable[[Any, _Form], Any]) -> Any:
-        dialect = connection.dialect
-        form = self._form(dialect)
-        cursor = connection.connection.dbapi_connection.cursor()  # type: ignore[union-attr]
-        try:
-            return call(cursor, form)
-        except dialect.loaded_dbapi.Error as exc:
-            # the same wrapped error Core would raise, so retries and callers see one kind
-            raise driver_error(connection, form.sql, exc) from None
-        finally:
-            cursor.close()
+    def _cursor(self, connection: Connection) -> tuple[_Form, Any]:
+        """The statement's form for the connection's dialect and a cursor of its driver."""
+        form = self._forms.get(connection.dialect.name) or self._form(connection.dialect)
+        return form, connection.connection.dbapi_connection.cursor()  # type: ignore[union-attr]
 
     def rows(self, connection: Connection, values: Mapping[str, Any] | None = None) -> list[tuple[Any, ...]]:
         """Run once; the rows it returns (none for a plain write)."""
-
-        def call(cursor: Any, form: _Form) -> list[tuple[Any, ...]]:
+        # (written out rather than shared with send and many: this runs several times an act)
+        form, cursor = self._cursor(connection)
+        try:
             cursor.execute(form.sql, form.parameters(values or {}))
             # in pipeline mode a write's answer is not waited for (its error, if any, comes
             # with the next answer that is); a statement that returns rows waits for them
             return list(cursor.fetchall()) if form.returns_rows else []
-
-        return self._run(connection, call)  # type: ignore[no-any-return]
+        except connection.dialect.loaded_dbapi.Error as exc:
+            # the same wrapped error Core would raise, so retries and callers see one kind
+            raise driver_error(connection, form.sql, exc) from None
+        finally:
+            cursor.close()
 
     def one(self, connection: Connection, values: Mapping[str, Any] | None = None) -> tuple[Any, ...] | None:
         """Run once; its only row, or None."""
@@ -207,8 +204,7 @@ class Prepared:
         """Run once and read its rows later (:meth:`Started.rows`): in pipeline mode the
         statements started after it go out before its answer has come back, and the first
         read waits for all of them (one round trip)."""
-        form = self._form(connection.dialect)
-        cursor = connection.connection.dbapi_connection.cursor()  # type: ignore[union-attr]
+        form, cursor = self._cursor(connection)
         try:
             cursor.execute(form.sql, form.parameters(values or {}))
         except connection.dialect.loaded_dbapi.Error as exc:
@@ -222,19 +218,23 @@ class Prepared:
     def send(self, connection: Connection, values: Mapping[str, Any] | None = None) -> None:
         """Run once and read nothing back: in pipeline mode (:func:`pipeline_to_commit`) it
         goes out without waiting, and an error it meets comes with the COMMIT's answer."""
-
-        def call(cursor: Any, form: _Form) -> None:
+        form, cursor = self._cursor(connection)
+        try:
             cursor.execute(form.sql, form.parameters(values or {}))
-
-        self._run(connection, call)
+        except connection.dialect.loaded_dbapi.Error as exc:
+            raise driver_error(connection, form.sql, exc) from None
+        finally:
+            cursor.close()
 
     def many(self, connection: Connection, values: Iterable[Mapping[str, Any]]) -> None:
         """Run once per mapping of ``values`` (a write), through ``executemany``."""
-
-        def call(cursor: Any, form: _Form) -> None:
+        form, cursor = self._cursor(connection)
+        try:
             cursor.executemany(form.sql, [form.parameters(each) for each in values])
-
-        self._run(connection, call)
+        except connection.dialect.loaded_dbapi.Error as exc:
+            raise driver_error(connection, form.sql, exc) from None
+        finally:
+            cursor.close()
 
 
 class Started:

@@ -25,7 +25,7 @@ import sqlite3
 import sys
 import time
 from collections.abc import Callable, Iterator
-from contextlib import contextmanager
+from contextlib import ExitStack, contextmanager
 from dataclasses import dataclass, field
 from datetime import UTC, datetime
 from pathlib import Path
@@ -225,9 +225,7 @@ class _WritingSession(Session):
                          join_transaction_mode="rollback_only")  # fmt: skip
         self._writing_on = connection
 
-    def connection(
-        self, bind_arguments: Any = None, execution_options: Any = None
-    ) -> Connection:
+    def connection(self, bind_arguments: Any = None, execution_options: Any = None) -> Connection:
         if bind_arguments is None and execution_options is None:
             return self._writing_on
         return super().connection(bind_arguments, execution_options)
@@ -296,8 +294,6 @@ class Register:
         joins it only when the ORM is used, and what the ORM holds is flushed before the
         COMMIT. An act that runs its statements on the connection (an issue) pays for no
         session transaction at all."""
-        from contextlib import ExitStack
-
         from issuer.register.driver import AFTER_TRANSACTION, commit_pipeline
 
         with self.engine.connect() as connection:
