@@ -143,8 +143,26 @@ def _refuse_missing_file(url: str) -> None:
         raise no_register(url)
 
 
+def sqlite_has_json() -> bool:
+    """Whether this Python's SQLite has the JSON functions (built in from 3.38, or the JSON1
+    extension before): the issuing statement reads a batch's numbers with ``json_each``."""
+    probe = sqlite3.connect(":memory:")
+    try:
+        probe.execute("SELECT value FROM json_each('[1]')").fetchall()
+    except sqlite3.OperationalError:
+        return False
+    finally:
+        probe.close()
+    return True
+
+
 def make_engine(url: str, *, busy_timeout_ms: int = 15000) -> Engine:
     if url.startswith("sqlite"):
+        if not sqlite_has_json():
+            raise RegisterError(
+                f"this Python's SQLite ({sqlite3.sqlite_version}) has no JSON functions, which issuer "
+                "needs: use a Python whose SQLite is 3.38 or newer (or built with JSON1)"
+            )
         _prepare_sqlite_file(url)
         engine = create_engine(url, connect_args={"timeout": busy_timeout_ms / 1000})
 

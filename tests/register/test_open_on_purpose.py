@@ -86,3 +86,18 @@ def test_an_empty_postgres_database_is_no_register_until_init(pg_url: str) -> No
     status = register_status(register)
     register.close()
     assert status.current and PASSWORD not in str(status.as_dict())
+
+
+def test_a_sqlite_without_json_functions_is_named_before_anything_is_made(
+    tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    """The issuing statement reads a batch's numbers with json_each (SQLite 3.38 or JSON1);
+    a Python whose SQLite lacks it is told so in one line, and no file is made."""
+    from issuer.register import store
+
+    assert store.sqlite_has_json()  # this machine's SQLite has them
+    monkeypatch.setattr(store, "sqlite_has_json", lambda: False)
+    path = tmp_path / "r.sqlite"
+    with pytest.raises(RegisterError, match="no JSON functions"):
+        open_register(str(path), actor="desk")
+    assert not path.exists()
