@@ -30,10 +30,10 @@ from issuer.register.allotment import (
     settle_counter,
 )
 from issuer.register.bulk import CHUNK, CodeSink, IssuedChunk, store_bulk
-from issuer.register.log import NewEntry, append_entry
+from issuer.register.log import NewEntry, append_entry, validity_detail
 from issuer.register.models import Batch, IssuedCode, Series, in_batch
 from issuer.register.series import code_format
-from issuer.register.standing import clean_text, validity_detail, validity_for
+from issuer.register.standing import clean_text, validity_for
 from issuer.register.store import Register
 
 Progress = Callable[[int], None]

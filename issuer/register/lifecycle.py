@@ -17,10 +17,10 @@ from issuer import limits
 from issuer.checking.reading import Read, Reading, read_code, shown
 from issuer.errors import Conflict, InvalidCheck, InvalidFormat, NotFound
 from issuer.register.allotment import place_codes
-from issuer.register.log import NewEntry, append_entry
+from issuer.register.log import NewEntry, append_entry, validity_detail
 from issuer.register.models import ISSUED, VOIDED, Batch, IssuedCode, LogEntry, Series
 from issuer.register.series import all_series, code_format, unknown_series
-from issuer.register.standing import standing, validity_detail
+from issuer.register.standing import standing
 from issuer.register.store import Register
 
 

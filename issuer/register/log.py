@@ -26,7 +26,7 @@ import hashlib
 import json
 from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass
-from datetime import datetime
+from datetime import UTC, datetime
 from typing import Any, cast
 
 from sqlalchemy import Table, Text, bindparam, func, insert, select, text, update
@@ -47,6 +47,21 @@ _DETAIL = json.JSONEncoder(sort_keys=True, ensure_ascii=False, default=str)
 def timestamp_text(at: datetime) -> str:
     """The one textual form of a time that goes into a hash."""
     return at.strftime("%Y-%m-%dT%H:%M:%S.%fZ")
+
+
+def validity_detail(valid_until: datetime | None) -> str | None:
+    """How a log entry records the end of validity an act gave its codes (None: no end):
+    the replay holds every code never renewed since to it."""
+    return None if valid_until is None else timestamp_text(valid_until)
+
+
+def stored_time(value: Any) -> datetime | None:
+    """A stored or logged time read by plain SQL (SQLite gives text; naive means UTC) as
+    an aware UTC datetime."""
+    if value is None:
+        return None
+    when = value if isinstance(value, datetime) else datetime.fromisoformat(str(value))
+    return when.replace(tzinfo=UTC) if when.tzinfo is None else when.astimezone(UTC)
 
 
 def entry_text(

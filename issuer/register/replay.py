@@ -24,6 +24,7 @@ from typing import Any
 from sqlalchemy import text
 from sqlalchemy.orm import Session
 
+from issuer.register.log import stored_time
 from issuer.register.models import ISSUED, SUSPENDED, VOIDED
 from issuer.register.series import SERIES_SETTINGS
 
@@ -292,6 +293,15 @@ ACTS: dict[str, Effect] = {
 }
 
 
+def json_object(raw: Any) -> dict[str, Any]:
+    """A JSON object's text (a log entry's detail, a frozen result) as a dict; anything else: empty."""
+    try:
+        detail = json.loads(raw)
+    except (TypeError, ValueError):
+        return {}
+    return detail if isinstance(detail, dict) else {}
+
+
 def replay_log(session: Session) -> Replay:
     replay = Replay()
     rows = session.execute(
@@ -299,28 +309,14 @@ def replay_log(session: Session) -> Replay:
         execution_options={"yield_per": 5000},
     )
     for row in rows:
-        try:
-            detail = json.loads(row[7])
-        except ValueError:
-            detail = {}
         entry = Entry(row[0], stored_time(row[1]), row[2], row[3], row[4], row[5], row[6],  # type: ignore[arg-type]
-                      detail if isinstance(detail, dict) else {})  # fmt: skip
+                      json_object(row[7]))  # fmt: skip
         effect = ACTS.get(entry.action)
         if effect is None:
             replay.unknown[entry.action] += 1
         else:
             effect(replay, entry)
     return replay
-
-
-def stored_time(value: Any) -> datetime | None:
-    """A stored time read by plain SQL (SQLite gives text) as an aware UTC datetime."""
-    from datetime import UTC
-
-    if value is None:
-        return None
-    when = value if isinstance(value, datetime) else datetime.fromisoformat(str(value))
-    return when.replace(tzinfo=UTC) if when.tzinfo is None else when.astimezone(UTC)
 
 
 def same_time(one: Any, other: Any) -> bool:

@@ -14,9 +14,9 @@ from typing import Any
 from sqlalchemy import text
 from sqlalchemy.orm import Session
 
-from issuer.register.log import rows_digest, timestamp_text
+from issuer.register.log import rows_digest, stored_time, timestamp_text
 from issuer.register.models import ISSUED, batch_range_sql
-from issuer.register.replay import UNKNOWN, CodeExpect, Replay, replay_log, same_time, stored_time
+from issuer.register.replay import UNKNOWN, CodeExpect, Replay, replay_log, same_time
 from issuer.register.sealing import KeyFileError, fingerprint, keyring_of
 from issuer.register.series import SERIES_SETTINGS, SHAPE_COLUMNS
 

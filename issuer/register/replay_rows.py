@@ -24,7 +24,6 @@ the scanned lines one pass in index order.
 
 from __future__ import annotations
 
-import json
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from datetime import datetime
@@ -33,18 +32,11 @@ from typing import Any
 from sqlalchemy import text
 from sqlalchemy.orm import Session
 
-from issuer.register.replay import UNKNOWN, same_time, stored_time
+from issuer.register.log import stored_time
+from issuer.register.replay import UNKNOWN, json_object, same_time
 
 TOKEN_ACTS = ("token-add", "token-revoke")
 COUNT_ACTS = ("count_open", "count_add", "count_close")
-
-
-def _detail(raw: Any) -> dict[str, Any]:
-    try:
-        detail = json.loads(raw)
-    except (TypeError, ValueError):
-        return {}
-    return detail if isinstance(detail, dict) else {}
 
 
 def _entries(session: Session, acts: tuple[str, ...], where: str = "") -> list[tuple[int, datetime, str, str, Any, dict[str, Any]]]:
@@ -53,7 +45,7 @@ def _entries(session: Session, acts: tuple[str, ...], where: str = "") -> list[t
         text(f"SELECT id, at, actor, action, series_id, detail FROM log_entry WHERE {where}action IN ({marks}) ORDER BY id"),
         {f"a{i}": act for i, act in enumerate(acts)},
     )
-    return [(int(r[0]), stored_time(r[1]), str(r[2]), str(r[3]), r[4], _detail(r[5])) for r in rows]  # type: ignore[misc]
+    return [(int(r[0]), stored_time(r[1]), str(r[2]), str(r[3]), r[4], json_object(r[5])) for r in rows]  # type: ignore[misc]
 
 
 def _differs(held: Any, implied: Any) -> bool:
@@ -230,12 +222,12 @@ def _count_row_problems(row: Any, expect: CountExpect, last_erasure: Callable[[]
     if logged is not None and not erased:
         if row.result is None or result_digest(str(row.result)) != logged:
             problems.append(f"count {name}: its frozen result is not the one logged{where}")
-        elif row.scope == "holder" and _detail(row.result).get("scope") != f"holder {row.scope_text}":
+        elif row.scope == "holder" and json_object(row.result).get("scope") != f"holder {row.scope_text}":
             # the log keeps no holder's name, but the result it vouches for names it
             problems.append(f"count {name}: its holder is not the one its frozen result names{where}")
     else:  # an older entry logged the result's counts only
         counts = {k: v for k, v in closed.detail.items() if k not in ("count", "result_sha256")}
-        stored = _detail(row.result).get("counts") if row.result is not None else None
+        stored = json_object(row.result).get("counts") if row.result is not None else None
         if counts and stored != counts:
             problems.append(f"count {name}: its frozen result's counts are not the ones logged{where}")
     return problems

@@ -8,7 +8,7 @@ from __future__ import annotations
 import hashlib
 from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass
-from datetime import UTC, datetime
+from datetime import datetime
 from typing import Any
 
 from sqlalchemy import select
@@ -17,7 +17,7 @@ from sqlalchemy.orm import Session
 from issuer.errors import Conflict, DuplicateRow, InvalidFormat
 from issuer.register.counting import get_count
 from issuer.register.driver import bind_value, execute_many
-from issuer.register.log import NewEntry, append_entry
+from issuer.register.log import NewEntry, append_entry, stored_time
 from issuer.register.models import COUNT_OPEN, StockCount, StockCountFile, StockCountScan
 from issuer.register.store import Register
 
@@ -143,25 +143,10 @@ def scans_digest(rows: Iterable[tuple[int, str, Any, str | None]]) -> str:
 def scan_line_text(line: int, scanned: str, at: Any, where: str | None) -> bytes:
     """One scanned line as :func:`scans_digest` hashes it (its time as the ISO text of the
     UTC instant, without a zone: cheap to make from either backend's stored form)."""
-    if at is None:
-        moment = ""
-    else:
-        if isinstance(at, str):  # SQLite's stored text
-            at = datetime.fromisoformat(at)
-        if at.tzinfo is not None:
-            at = at.astimezone(UTC).replace(tzinfo=None)
-        moment = at.isoformat()
+    when = stored_time(at)
+    moment = "" if when is None else when.replace(tzinfo=None).isoformat()
     place = "" if where is None else f"{len(where)}:{where}"
     return f"{line}\t{len(scanned)}:{scanned}\t{moment}\t{place}\n".encode("utf-8", "surrogatepass")
-
-
-def _utc(moment: Any) -> datetime:
-    """A time as given or stored (text on SQLite, naive meaning UTC) as an aware UTC datetime."""
-    if isinstance(moment, str):
-        moment = datetime.fromisoformat(moment)
-    if moment.tzinfo is None:
-        return moment.replace(tzinfo=UTC)  # type: ignore[no-any-return]
-    return moment.astimezone(UTC)  # type: ignore[no-any-return]
 
 
 def _refuse_twice(session: Session, count: StockCount, scan_file: ScanFile) -> None:
@@ -232,7 +217,7 @@ def count_scans(session: Session, count: StockCount) -> CountScans:
 
 def _moment_text(moment: Any) -> str:
     """A stored time as the driver gives it (text on SQLite, a datetime elsewhere) as UTC ISO text."""
-    return str(_utc(moment).isoformat())
+    return str(stored_time(moment).isoformat())  # type: ignore[union-attr]
 
 
 __all__ = [

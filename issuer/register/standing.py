@@ -17,7 +17,6 @@ from typing import Any
 
 from issuer import limits
 from issuer.errors import InvalidFormat
-from issuer.register.log import timestamp_text
 from issuer.register.models import EXPIRED, ISSUED, SUSPENDED, VOIDED
 
 #: the widest holder, note and reason texts: the one table of field limits says
@@ -168,12 +167,6 @@ def validity_for(valid_for_days: int | None, at: datetime, explicit: datetime | 
     return None
 
 
-def validity_detail(valid_until: datetime | None) -> str | None:
-    """How a log entry records the end of validity an act gave its codes (None: no end):
-    the replay holds every code never renewed since to it."""
-    return None if valid_until is None else timestamp_text(valid_until)
-
-
 def standing(status: str, valid_until: datetime | None, now: datetime | None) -> str:
     """What a code answers at ``now``: voided and suspended as stored; an issued code past
     its validity is expired (it stays its holder's and is never issued again)."""
@@ -201,6 +194,5 @@ __all__ = [
     "standing",
     "text_digest",
     "text_payload",
-    "validity_detail",
     "validity_for",
 ]

@@ -19,6 +19,7 @@ opening a register whose schema is already current never imports Alembic.
 
 from __future__ import annotations
 
+import functools
 import os
 import random
 import sqlite3
@@ -143,6 +144,7 @@ def _refuse_missing_file(url: str) -> None:
         raise no_register(url)
 
 
+@functools.cache
 def sqlite_has_json() -> bool:
     """Whether this Python's SQLite has the JSON functions (built in from 3.38, or the JSON1
     extension before): the issuing statement reads a batch's numbers with ``json_each``."""
