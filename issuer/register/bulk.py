@@ -30,7 +30,7 @@ from sqlalchemy.orm import Session
 from issuer.checking.codes import CodeFormat
 from issuer.errors import Exhausted, RegisterError
 from issuer.register.coderows import write_codes
-from issuer.register.models import SCATTERED, Batch, IssuedCode, Series, in_batch
+from issuer.register.models import SCATTERED, Batch, IssuedCode, Series, import_batches, in_batch
 from issuer.register.series import capacity, code_format, permutation
 from issuer.register.standing import BatchTexts, search_key
 
@@ -238,7 +238,7 @@ def imported_bases(session: Session, series: Series) -> npt.NDArray[np.int64]:
 
     if not series.imported_count:
         return np.empty(0, dtype=np.int64)
-    imports = session.scalars(select(Batch.id).where(Batch.series_id == series.id, Batch.kind == "import"))
+    imports = session.scalars(select(Batch.id).where(Batch.series_id == series.id, import_batches()))
     found = [base for batch in imports.all() for base in session.scalars(select(IssuedCode.base).where(in_batch(batch)))]
     return np.sort(np.asarray(found, dtype=np.int64))
 

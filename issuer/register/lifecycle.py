@@ -10,7 +10,7 @@ from dataclasses import dataclass
 from datetime import datetime
 from typing import Any
 
-from sqlalchemy import or_, select
+from sqlalchemy import or_, select, union_all
 from sqlalchemy.orm import Session
 
 from issuer import limits
@@ -18,7 +18,7 @@ from issuer.checking.reading import Read, Reading, read_code, shown
 from issuer.errors import Conflict, InvalidCheck, InvalidFormat, NotFound
 from issuer.register.allotment import place_codes
 from issuer.register.log import NewEntry, append_entry, validity_detail
-from issuer.register.models import ISSUED, VOIDED, Batch, IssuedCode, LogEntry, Series
+from issuer.register.models import ISSUED, VOIDED, Batch, IssuedCode, LogEntry, Series, series_arms
 from issuer.register.series import all_series, code_format, unknown_series
 from issuer.register.standing import standing
 from issuer.register.store import Register
@@ -343,18 +343,27 @@ def log_entries(
     limit: int | None = None,
 ) -> list[Event]:
     """Logged events, oldest first, filtered."""
-    statement = select(LogEntry).order_by(LogEntry.id)
+    filters = []
+    arms: tuple[Any, ...] = ()
     if series is not None:
         series_id = session.scalar(select(Series.id).where(Series.key == limits.text("series key", series)))
         if series_id is None:
             raise unknown_series(session, series)
-        statement = statement.where(LogEntry.series_id == series_id)
+        arms = series_arms(series_id)
     if actor is not None:
-        statement = statement.where(LogEntry.actor == limits.text("actor", actor))
+        filters.append(LogEntry.actor == limits.text("actor", actor))
     if since is not None:
-        statement = statement.where(LogEntry.at >= limits.moment("since", since))
-    if limit is not None:
-        limits.number("entries", limit)
-        statement = statement.order_by(None).order_by(LogEntry.id.desc()).limit(limit)
-        return list(reversed(_events(session, statement)))
-    return _events(session, statement)
+        filters.append(LogEntry.at >= limits.moment("since", since))
+    if limit is None:
+        if arms:
+            filters.append(or_(*arms))
+        return _events(session, select(LogEntry).where(*filters).order_by(LogEntry.id))
+    limits.number("entries", limit)
+    statement = select(LogEntry).where(*filters).order_by(LogEntry.id.desc()).limit(limit)
+    if arms:  # the newest of each part, each read backwards along its own index, then of both
+        newest = [
+            select(LogEntry.id).where(arm, *filters).order_by(LogEntry.id.desc()).limit(limit).subquery()
+            for arm in arms
+        ]
+        statement = statement.where(LogEntry.id.in_(union_all(*(select(part.c.id) for part in newest))))
+    return list(reversed(_events(session, statement)))

@@ -69,6 +69,7 @@ def verify_chain(session: Session) -> ChainReport:
         chain = int(entry.chain)
         last_id, previous = tails.get(chain, (0, GENESIS))
         if entry.prev_hash != previous:
+            # (the hash has no index: this reads the log, once, on a log already found broken)
             known = session.scalar(select(LogEntry.id).where(LogEntry.hash == entry.prev_hash).limit(1))
             if entry.prev_hash != GENESIS and known is None:
                 what = (f"links to an entry no longer in the log: an entry of {_chain_name(chain)} "

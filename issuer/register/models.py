@@ -24,7 +24,9 @@ from sqlalchemy import (
     UniqueConstraint,
     and_,
     false,
+    or_,
     func,
+    literal_column,
     select,
 )
 from sqlalchemy.engine import Dialect
@@ -145,11 +147,16 @@ class Batch(Base):
     """One act of issuance (or import): its codes commit together or not at all."""
 
     __tablename__ = "batch"
-    #: unique where given; most batches have none, and those cost no index entry
-    __table_args__ = (_partial_index("request_id", "request_id IS NOT NULL", unique=True),)
+    #: unique where given; most batches have none, and those cost no index entry. A series'
+    #: batches are indexed only where they are imports (what issuing past imported numbers
+    #: looks up): an issue's batch costs no index entry for its series (migration fewer_pages)
+    __table_args__ = (
+        _partial_index("request_id", "request_id IS NOT NULL", unique=True),
+        _partial_index("series_id", "kind = 'import'"),
+    )
 
     id: Mapped[int] = mapped_column(Integer, primary_key=True)
-    series_id: Mapped[int] = mapped_column(ForeignKey("series.id"), index=True)
+    series_id: Mapped[int] = mapped_column(ForeignKey("series.id"))
     kind: Mapped[str] = mapped_column(String(16))  # issue | replace | import
     request_id: Mapped[str | None] = mapped_column(String(200), default=None)
     count: Mapped[int] = mapped_column(Integer)
@@ -261,11 +268,18 @@ class LogEntry(Base):
 
     ``chain`` is 0 for the register's own chain (entries of no series, series added,
     and every entry written before the log was chained per series) and a series' id for
-    that series' chain; each chain is appended under its own lock (:class:`LogChain`)."""
+    that series' chain; each chain is appended under its own lock (:class:`LogChain`).
+
+    A series' entries are found by its chain (``chain`` = its id, the index on ``chain, id``)
+    and, on the register's chain, by ``series_id`` (an index over chain 0 only: a series'
+    adding, and entries written before the log was chained per series): an entry on a
+    series' chain costs no second index entry for its series (:func:`of_series`). The hash
+    has no index: the chains, not its uniqueness, prove the log (migration fewer_pages)."""
 
     __tablename__ = "log_entry"
     __table_args__ = (
-        Index(None, "series_id", "id"), Index(None, "code"), Index(None, "batch_id"), Index(None, "chain", "id"),
+        Index(None, "series_id", "id", info={"where": "chain = 0"}), Index(None, "code"), Index(None, "batch_id"),
+        Index(None, "chain", "id"),
     )
 
     id: Mapped[int] = mapped_column(Integer, primary_key=True)
@@ -278,11 +292,30 @@ class LogEntry(Base):
     #: JSON text with the act's particulars (reason, count, first/last code, ...)
     detail: Mapped[str] = mapped_column(Text, default="{}")
     prev_hash: Mapped[str] = mapped_column(String(64))
-    hash: Mapped[str] = mapped_column(String(64), unique=True)
+    hash: Mapped[str] = mapped_column(String(64))
     #: the database login that appended it (PostgreSQL's session_user); None on SQLite
     login: Mapped[str | None] = mapped_column(String(120), default=None)
     #: the chain it belongs to: 0 the register's, otherwise the series' id
     chain: Mapped[int] = mapped_column(Integer, default=0, server_default="0")
+
+
+def series_arms(series_id: Any) -> tuple[Any, Any]:
+    """The log entries naming series ``series_id`` (a value), in two parts each served by
+    an index: its chain (``chain, id``), and the entries on the register's chain that name
+    it (its adding; entries from before the chains: the partial ``series_id, id``)."""
+    register_chain = literal_column("0", Integer)  # written out, as the index's clause: a bound 0 matches no index
+    return LogEntry.chain == series_id, and_(LogEntry.chain == register_chain, LogEntry.series_id == series_id)
+
+
+def of_series(series_id: Any) -> Any:
+    """The log entries naming series ``series_id``: :func:`series_arms` as one clause."""
+    return or_(*series_arms(series_id))
+
+
+def import_batches() -> Any:
+    """Batches that are imports, written as the partial index over a series' import batches
+    says it (a bound value would match no index)."""
+    return Batch.kind == literal_column("'import'", String(16))
 
 
 class LogChain(Base):

@@ -10,6 +10,11 @@ triggers add what grants cannot say; each names the act it refuses:
   log entry naming that code (or its batch, or an import into its series) or that series;
 * a clerk's login cannot log an admin's act (void, restore, replace, import, series).
 
+An entry naming a series is found on its chain, whose newest entry is this transaction's
+if it appended one (appending waits for the chain's lock), or, for a series' adding, on
+the register's chain; an import into a series by its batch (the log's indexes: migration
+``fewer_pages``, which replaces these functions where they exist).
+
 "The same transaction" is told by the rows' ``xmin``: a log entry appended by this
 transaction carries its transaction id, and only the SECURITY DEFINER function
 ``issuer_log_append`` can append one, with the chain and the login computed inside the
@@ -104,14 +109,19 @@ def rights_statements(schema: str, *, clerk: str, admin: str) -> list[str]:
         *guard("issuer_code_change_logged", "issued_code", "AFTER UPDATE", "DEFERRABLE INITIALLY DEFERRED FOR EACH ROW", f"""
   IF NOT EXISTS (SELECT 1 FROM log_entry e WHERE e.code IN (NEW.code, OLD.code) AND {_THIS_XACT})
      AND NOT EXISTS (SELECT 1 FROM log_entry e WHERE e.batch_id = NEW.batch_id AND {_THIS_XACT})
-     AND NOT EXISTS (SELECT 1 FROM log_entry e WHERE e.series_id = NEW.series_id
-                     AND e.action = 'import' AND {_THIS_XACT}) THEN
+     AND NOT EXISTS (SELECT 1 FROM batch b JOIN log_entry e ON e.batch_id = b.id
+                     WHERE b.series_id = NEW.series_id AND b.kind = 'import'
+                     AND b.xmin = pg_current_xact_id()::xid AND e.action = 'import' AND {_THIS_XACT}) THEN
     {refuse('code % changed without a log entry for it', 'OLD.code')}
   END IF;
   RETURN NULL;""", constraint=True),
         *guard("issuer_series_change_logged", "series", "AFTER UPDATE", "DEFERRABLE INITIALLY DEFERRED FOR EACH ROW", f"""
-  IF NOT EXISTS (SELECT 1 FROM log_entry e WHERE e.series_id = NEW.id AND {_THIS_XACT}) THEN
-    {refuse('series % changed without a log entry for it', 'OLD.key')}
+  IF NOT EXISTS (SELECT 1 FROM (SELECT e.series_id, e.xmin AS x FROM log_entry e WHERE e.chain = NEW.id
+                                ORDER BY e.id DESC LIMIT 1) newest
+                 WHERE newest.series_id = NEW.id AND newest.x = pg_current_xact_id()::xid) THEN
+    IF NOT EXISTS (SELECT 1 FROM log_entry e WHERE e.chain = 0 AND e.series_id = NEW.id AND {_THIS_XACT}) THEN
+      {refuse('series % changed without a log entry for it', 'OLD.key')}
+    END IF;
   END IF;
   RETURN NULL;""", constraint=True),
         *guard("issuer_log_act_by_role", "log_entry", "BEFORE INSERT", "FOR EACH ROW", f"""
