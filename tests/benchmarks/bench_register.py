@@ -9,8 +9,9 @@
    SQLAlchemy's ORM and Rich and answers one command with one query on the same file.
    Target: within 1.3x.
 
-Run: .venv/bin/python tests/benchmarks/bench_register.py [startup]
-(``startup``: part 3 alone; BENCH_ROUNDS start-up rounds, default 21).
+Run: .venv/bin/python tests/benchmarks/bench_register.py [startup | codes]
+(``startup``: part 3 alone; BENCH_ROUNDS start-up rounds, default 21; ``codes``: part 1
+alone, with the pages one issue writes).
 """
 
 from __future__ import annotations
@@ -59,6 +60,39 @@ def per_code_rates(folder: Path, per_round: int = 100) -> tuple[float, float]:
         theirs.append(per_round / (time.perf_counter() - start))
     register.close()
     return statistics.median(ours), statistics.median(theirs)
+
+
+def _wal_frames(path: Path) -> int:
+    """Frames in a WAL file (written since its last reset)."""
+    import struct
+
+    data = path.read_bytes()
+    if len(data) < 32:
+        return 0
+    page_size = struct.unpack(">I", data[8:12])[0]
+    return (len(data) - 32) // (24 + page_size)
+
+
+def frames_per_issue(folder: Path, prior: int = 2000, count: int = 50) -> float:
+    """WAL frames (pages) one durable one-code issue writes, on a register already holding
+    ``prior`` issues in two series (so each index is more than one page), read from the
+    WAL's growth after a truncating checkpoint (``count`` issues stay below the automatic
+    checkpoint's 1000 frames)."""
+    db = folder / "frames.sqlite"
+    register = open_register(str(db), actor="bench")
+    add_series(register, SeriesSpec(key="tools", scheme="damm", length=9, prefix="QTL"))
+    add_series(register, SeriesSpec(key="other", scheme="damm", length=9, prefix="OTH"))
+    for n in range(prior):
+        issue_codes(register, "tools" if n % 3 else "other", 1)
+    with register.engine.connect() as connection:
+        connection.exec_driver_sql("PRAGMA wal_checkpoint(TRUNCATE)")
+    wal = db.with_name(db.name + "-wal")
+    before = _wal_frames(wal)
+    for _ in range(count):
+        issue_codes(register, "tools", 1)
+    frames = _wal_frames(wal) - before
+    register.close()
+    return frames / count
 
 
 def raw_same_work_rate(folder: Path, count: int = 300) -> float:
@@ -224,6 +258,9 @@ def main() -> None:
         floor = raw_same_work_rate(folder)
         print(f"  floor: raw sqlite3 writing the same rows as a logged issue {floor:,.0f}/s, "
               f"{floor / raw:.2f} of the single-insert rate; issuer reaches {ours / floor:.2f} of it")
+        print(f"  pages (WAL frames) one issue writes: {frames_per_issue(folder):.1f}")
+        if sys.argv[1:] == ["codes"]:
+            return
         empty, full = scattered_fill_ratio(folder)
         print(f"scattered issue, per code: empty {empty * 1000:.2f} ms, 99% full {full * 1000:.2f} ms, "
               f"ratio {full / empty:.2f} (target <= 1.2)")
