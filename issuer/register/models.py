@@ -24,7 +24,6 @@ from sqlalchemy import (
     UniqueConstraint,
     and_,
     false,
-    or_,
     func,
     literal_column,
     select,
@@ -273,7 +272,7 @@ class LogEntry(Base):
     A series' entries are found by its chain (``chain`` = its id, the index on ``chain, id``)
     and, on the register's chain, by ``series_id`` (an index over chain 0 only: a series'
     adding, and entries written before the log was chained per series): an entry on a
-    series' chain costs no second index entry for its series (:func:`of_series`). The hash
+    series' chain costs no second index entry for its series (:func:`series_arms`). The hash
     has no index: the chains, not its uniqueness, prove the log (migration fewer_pages)."""
 
     __tablename__ = "log_entry"
@@ -305,11 +304,6 @@ def series_arms(series_id: Any) -> tuple[Any, Any]:
     it (its adding; entries from before the chains: the partial ``series_id, id``)."""
     register_chain = literal_column("0", Integer)  # written out, as the index's clause: a bound 0 matches no index
     return LogEntry.chain == series_id, and_(LogEntry.chain == register_chain, LogEntry.series_id == series_id)
-
-
-def of_series(series_id: Any) -> Any:
-    """The log entries naming series ``series_id``: :func:`series_arms` as one clause."""
-    return or_(*series_arms(series_id))
 
 
 def import_batches() -> Any:

@@ -10,7 +10,7 @@ dirty page on PostgreSQL). Three of them repeated what a key already gives:
 * ``ix_log_entry_series_id_id``: a series' entries are its chain (``chain`` = the series'
   id, served by ``ix_log_entry_chain_id``), except a series' adding and the entries written
   before the log was chained per series, which lie on the register's chain (0). The index
-  now holds those only (``WHERE chain = 0``); readers ask :func:`models.of_series`.
+  now holds those only (``WHERE chain = 0``); readers ask ``models.series_arms``.
 * ``ix_batch_series_id``: only issuing past imported numbers looks a series' batches up,
   and only its imports; the index now holds import batches only (``WHERE kind = 'import'``).
 
