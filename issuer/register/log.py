@@ -193,7 +193,7 @@ def chain_rows(
     return rows
 
 
-#: PostgreSQL: the one append path (SECURITY DEFINER, migrations log_rights and log_chains):
+#: PostgreSQL: the one append path (SECURITY DEFINER, migrations log_rights, log_chains, lean_append):
 #: it locks the entries' chains, computes the hashes and records the login itself
 _APPEND_FUNCTION = Prepared(select(func.issuer_log_append(
     bindparam("at", type_=UTCDateTime()), bindparam("actor", type_=Text()), bindparam("entries", type_=Text())

@@ -54,7 +54,7 @@ from issuer.register.sealing import SESSION_INFO, Keyring, default_key_file
 T = TypeVar("T")
 
 #: the Alembic revision the code expects; a test keeps it equal to the migrations' head
-SCHEMA_HEAD = "fewer_pages"
+SCHEMA_HEAD = "lean_append"
 
 #: how often a writing transaction is tried when another desk holds the lock
 WRITE_ATTEMPTS = 20
