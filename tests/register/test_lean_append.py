@@ -6,6 +6,7 @@ upgrades with its chains going on unbroken, and back down again."""
 from __future__ import annotations
 
 from datetime import UTC, datetime
+from itertools import pairwise
 from typing import Any
 
 from sqlalchemy import create_engine, text
@@ -86,7 +87,8 @@ def test_entries_chained_by_the_database_hash_as_python_computes_them(pg_url: st
     ]
     # (an actor's text is checked before it gets here; the function escapes whatever it is given)
     actor = f"desk {AWKWARD}"
-    assert register.write(lambda session: append_entries(session, entries, actor=actor, at=AT)) == len(entries)
+    appended = register.write(lambda session: append_entries(session, entries, actor=actor, at=AT))
+    assert appended == len(entries)
     issue_codes(register, "tools", 1)  # and through the tool's own path (in a pipeline)
     register.close()
 
@@ -94,15 +96,16 @@ def test_entries_chained_by_the_database_hash_as_python_computes_them(pg_url: st
     for row in rows:
         assert row.hash == _python_hash(row), row.id
         assert row.login == "postgres"
-    appended = [row for row in rows if row.actor == actor]
-    assert [(r.action, r.series_id, r.code) for r in appended] == [(e.action, e.series_id, e.code) for e in entries]
-    assert [r.chain for r in appended[:5]] == [bolts, 0, tools, 0, bolts]
-    assert [r.id for r in appended] == sorted(r.id for r in appended)  # ids in the order given
+    mine = [row for row in rows if row.actor == actor]
+    given = [(e.action, e.series_id, e.code) for e in entries]
+    assert [(r.action, r.series_id, r.code) for r in mine] == given
+    assert [r.chain for r in mine[:5]] == [bolts, 0, tools, 0, bolts]
+    assert [r.id for r in mine] == sorted(r.id for r in mine)  # ids in the order given
     # within each chain each entry follows the one before it, the first the chain's last head
     for chain in (0, tools, bolts):
-        mine = [r for r in rows if r.chain == chain]
-        assert mine[0].prev_hash == GENESIS
-        assert all(later.prev_hash == earlier.hash for earlier, later in zip(mine, mine[1:]))
+        links = [r for r in rows if r.chain == chain]
+        assert links[0].prev_hash == GENESIS
+        assert all(later.prev_hash == earlier.hash for earlier, later in pairwise(links))
 
     register = open_register(pg_url, actor="auditor")
     report = verify_log(register)[0]
