@@ -5,16 +5,16 @@ runs, is replaced by one that computes the same with fewer statements. Same sign
 same SECURITY DEFINER rights (``CREATE OR REPLACE`` keeps its owner and the roles'
 EXECUTE), same login recorded, same hashes:
 
-* the entries are read from their JSON once, in one pass (``json_to_recordset`` into one
-  array per field), where the old function read the array twice and each field of each
-  entry again from its JSON text;
-* the chains they go to are collected as they are read, and sorted by a query only when
-  there is more than one; each chain is still locked once, in ascending order, before any
-  entry id is taken, and its head is moved once at the end (the old function kept heads
-  in jsonb objects rebuilt per entry and walked their keys with another query).
+* the entries' JSON is parsed once (as jsonb: an entry and its fields are then found by
+  expressions, without reading the text again and without a query), where the old function
+  read the array twice by queries and each field of each entry again from its JSON text;
+* the chains they go to are collected in an array, and sorted by a query only when there
+  is more than one; each chain is still locked once, in ascending order, before any entry
+  id is taken, and its head is moved once at the end (the old function kept the heads in
+  jsonb objects rebuilt per entry and walked their keys with another query).
 
-For one entry that is four statements (entries, lock, insert, move) where there were six.
-The hashed text is built exactly as before (keys sorted, no spaces, strings through
+For one entry that is three statements (lock, insert, move) where there were six. The
+hashed text is built exactly as before (keys sorted, no spaces, strings through
 ``to_json``): ``tests/register/test_lean_append.py`` checks that entries it chains hash as
 Python computes them and that a register's chains go on unbroken across the upgrade and a
 downgrade.
@@ -45,20 +45,18 @@ LOG_APPEND = """
 CREATE OR REPLACE FUNCTION {schema}.issuer_log_append(p_at timestamptz, p_actor text, p_entries text)
 RETURNS integer LANGUAGE plpgsql SECURITY DEFINER SET search_path = {schema}, pg_temp AS $$
 DECLARE
-  -- the entries, read once, one array per field
-  v_actions text[] := ARRAY[]::text[];
-  v_series integer[] := ARRAY[]::integer[];
-  v_codes text[] := ARRAY[]::text[];
-  v_batches integer[] := ARRAY[]::integer[];
-  v_details text[] := ARRAY[]::text[];
-  v_of integer[] := ARRAY[]::integer[];       -- each entry's chain
+  -- parsed once; an entry and its fields are then found without reading the text again
+  v_entries jsonb := p_entries::jsonb;
+  v_n integer := jsonb_array_length(v_entries);
+  e jsonb;
   -- the chains written to (ascending), each one's newest hash and id as entries join it
   v_chains integer[] := ARRAY[]::integer[];
   v_heads text[] := ARRAY[]::text[];
   v_lasts bigint[] := ARRAY[]::bigint[];
-  v_n integer := 0;
   v_k integer;
   v_chain integer;
+  v_series integer;
+  v_action text;
   v_id bigint;
   v_prev text;
   v_hash text;
@@ -67,20 +65,12 @@ DECLARE
   v_who text := ',"actor":' || to_json(p_actor)::text || ',"at":'
     || to_json(to_char(p_at AT TIME ZONE 'UTC', 'YYYY-MM-DD"T"HH24:MI:SS.US"Z"'))::text;
   v_signed text := ',"login":' || to_json(v_login)::text || ',"prev":';
-  r record;
 BEGIN
-  FOR r IN
-    SELECT * FROM json_to_recordset(p_entries::json)
-      AS x(action text, series integer, code text, batch integer, detail text)
-  LOOP
-    v_n := v_n + 1;
-    v_actions[v_n] := r.action;
-    v_series[v_n] := r.series;
-    v_codes[v_n] := r.code;
-    v_batches[v_n] := r.batch;
-    v_details[v_n] := r.detail;
-    v_chain := CASE WHEN r.series IS NULL OR r.action = 'series.add' THEN 0 ELSE r.series END;
-    v_of[v_n] := v_chain;
+  -- the chains the entries go to
+  FOR v_i IN 0 .. v_n - 1 LOOP
+    e := v_entries->v_i;
+    v_series := (e->>'series')::integer;
+    v_chain := CASE WHEN v_series IS NULL OR e->>'action' = 'series.add' THEN 0 ELSE v_series END;
     IF NOT v_chain = ANY (v_chains) THEN
       v_chains := v_chains || v_chain;
     END IF;
@@ -98,28 +88,33 @@ BEGIN
     END IF;
     v_heads[v_k] := v_prev;
   END LOOP;
-  FOR v_i IN 1 .. v_n LOOP
-    v_chain := v_of[v_i];
+  -- the entries, in the order given, each after its chain's newest
+  FOR v_i IN 0 .. v_n - 1 LOOP
+    e := v_entries->v_i;
+    v_action := e->>'action';
+    v_series := (e->>'series')::integer;
+    v_chain := CASE WHEN v_series IS NULL OR v_action = 'series.add' THEN 0 ELSE v_series END;
     v_k := array_position(v_chains, v_chain);
     v_prev := v_heads[v_k];
     v_id := nextval('log_entry_id_seq');
     v_hash := encode(sha256(convert_to(
-      '{{"action":' || to_json(v_actions[v_i])::text
+      '{{"action":' || to_json(v_action)::text
       || v_who
-      || ',"batch":' || coalesce(v_batches[v_i]::text, 'null')
+      || ',"batch":' || coalesce((e->>'batch')::integer::text, 'null')
       || CASE WHEN v_chain <> 0 THEN ',"chain":' || v_chain::text ELSE '' END
-      || ',"code":' || coalesce(to_json(v_codes[v_i])::text, 'null')
-      || ',"detail":' || to_json(v_details[v_i])::text
+      || ',"code":' || coalesce(to_json(e->>'code')::text, 'null')
+      || ',"detail":' || to_json(e->>'detail')::text
       || ',"id":' || v_id::text
       || v_signed || to_json(v_prev)::text
-      || ',"series":' || coalesce(v_series[v_i]::text, 'null')
+      || ',"series":' || coalesce(v_series::text, 'null')
       || '}}', 'UTF8')), 'hex');
     INSERT INTO log_entry (id, at, actor, action, series_id, code, batch_id, detail, prev_hash, hash, login, chain)
-    VALUES (v_id, p_at, p_actor, v_actions[v_i], v_series[v_i], v_codes[v_i],
-            v_batches[v_i], v_details[v_i], v_prev, v_hash, v_login, v_chain);
+    VALUES (v_id, p_at, p_actor, v_action, v_series, e->>'code',
+            (e->>'batch')::integer, e->>'detail', v_prev, v_hash, v_login, v_chain);
     v_heads[v_k] := v_hash;
     v_lasts[v_k] := v_id;
   END LOOP;
+  -- each chain's head moved once
   FOR v_k IN 1 .. cardinality(v_chains) LOOP
     UPDATE log_chain SET last_id = v_lasts[v_k], last_hash = v_heads[v_k] WHERE chain = v_chains[v_k];
   END LOOP;

@@ -127,7 +127,7 @@ def test_a_log_the_previous_function_wrote_goes_on_across_the_upgrade_and_back(p
 
     register = open_register(pg_url, actor="desk-bo")  # opening upgrades
     assert register.schema_revision() == SCHEMA_HEAD
-    assert "json_to_recordset" in _append_source(pg_url)
+    assert "jsonb_array_length" in _append_source(pg_url)
     issue_codes(register, "tools", 1)
     issue_codes(register, "bolts", 2)
     add_series(register, SeriesSpec(key="nuts", scheme="luhn", length=6, prefix="N"))
