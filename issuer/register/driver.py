@@ -257,8 +257,9 @@ class Started:
         self.cursor.close()
 
 
-#: ``Session.info`` key: an ``ExitStack`` that :meth:`issuer.register.store.Register.writing`
-#: closes once the transaction has ended (committed or rolled back)
+#: ``Session.info`` key: a list of exit callbacks (``ExitStack.push``'s kind) that
+#: :meth:`issuer.register.store.Register.writing` runs, newest first, once the transaction
+#: has ended (committed or rolled back); present only in a writing transaction
 AFTER_TRANSACTION = "issuer_after_transaction"
 
 
@@ -299,7 +300,7 @@ def pipeline_to_commit(session: Session) -> None:
                 raise
         return False
 
-    after.push(leave)
+    after.append(leave)
 
 
 def leave_pipeline(session: Session) -> None:
@@ -325,7 +326,8 @@ def commit_pipeline(session: Session) -> None:
     pipeline = session.info.get(PIPELINE)
     if pipeline is None:
         return
-    if session.new or session.dirty or session.deleted:
+    # (a writing session the ORM has not been used in holds nothing, and is not made to)
+    if getattr(session, "joined", True) and (session.new or session.dirty or session.deleted):
         leave_pipeline(session)  # the flush goes before the COMMIT, one statement at a time
         return
     del session.info[PIPELINE]

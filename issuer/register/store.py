@@ -49,6 +49,7 @@ from issuer.errors import (
     redact,
 )
 from issuer.outputs import private_folder, protect
+from issuer.register import driver
 from issuer.register.sealing import SESSION_INFO, Keyring, default_key_file
 
 T = TypeVar("T")
@@ -232,23 +233,65 @@ def _refused(exc: DBAPIError) -> PermissionDenied:
     return PermissionDenied(f"the database refused this act for the connected role ({first})")
 
 
+def _after_transaction(callbacks: list[Any], exc_info: Any) -> None:
+    """Run (newest first, as an ``ExitStack`` would) what an act registered to run once its
+    transaction has ended (:data:`~issuer.register.driver.AFTER_TRANSACTION`); nothing is
+    made when nothing registered."""
+    if not callbacks:
+        return
+    stack = ExitStack()
+    for callback in callbacks:
+        stack.push(callback)
+    callbacks.clear()
+    stack.__exit__(*exc_info)
+
+
 class _WritingSession(Session):
     """The session of one writing transaction (:meth:`Register.writing`), bound to the
-    connection whose transaction it is. :meth:`connection` hands back that connection
-    without starting the session's own transaction: the statements an act runs on it
-    are in the connection's transaction already. The ORM joins the same transaction the
-    first time it is used (``rollback_only``: its commit flushes, the connection
-    commits)."""
+    connection whose transaction it is. :meth:`connection` and :meth:`get_bind` hand back
+    that connection without starting the session's own transaction: the statements an act
+    runs on it are in the connection's transaction already.
+
+    The session's own state (identity map, the ORM's registry of sessions) is made the
+    first time anything else of the session is asked for, and it then joins the
+    connection's transaction (``rollback_only``: its commit flushes, the connection
+    commits). Until then it is only the connection and ``info``: an act whose statements
+    all go to the connection (an issue) never makes it, and nothing needs closing."""
 
     def __init__(self, connection: Connection, info: dict[str, Any]) -> None:
-        super().__init__(bind=connection, expire_on_commit=False, info=info,
+        # not Session.__init__ yet (see _join); ``info`` is Session's memoized property,
+        # so the instance's own entry is the one every reader sees
+        self.__dict__.update(_writing_on=connection, info=info, _joined=False)
+
+    def _join(self) -> None:
+        """Make the session's own state now; whatever was set on it before stays."""
+        given = dict(self.__dict__)
+        given["_joined"] = True
+        Session.__init__(self, bind=self._writing_on, expire_on_commit=False,
                          join_transaction_mode="rollback_only")  # fmt: skip
-        self._writing_on = connection
+        self.__dict__.update(given)
+
+    def __getattr__(self, name: str) -> Any:
+        # only called for what the instance lacks: before the first use, the session's state
+        if name.startswith("__") or self.__dict__.get("_joined", True):
+            raise AttributeError(name)
+        self._join()
+        return getattr(self, name)
+
+    @property
+    def joined(self) -> bool:
+        """Whether the ORM was used (the session's state made, its transaction joined)."""
+        return bool(self.__dict__["_joined"])
 
     def connection(self, bind_arguments: Any = None, execution_options: Any = None) -> Connection:
         if bind_arguments is None and execution_options is None:
-            return self._writing_on
+            return self._writing_on  # type: ignore[no-any-return]
         return super().connection(bind_arguments, execution_options)
+
+    def get_bind(self, mapper: Any = None, **kw: Any) -> Any:
+        if mapper is None and not kw:
+            return self._writing_on
+        return super().get_bind(mapper, **kw)
 
 
 @dataclass
@@ -304,6 +347,16 @@ class Register:
                     raise _refused(exc) from None
                 raise
 
+    @property
+    def _writer(self) -> Engine:
+        """The engine as writing transactions use it (its connections begin with BEGIN
+        IMMEDIATE on SQLite): made once, not an option set on every act's connection."""
+        made = self.__dict__.get("_writer_of")
+        if made is None or made[0] is not self.engine:
+            made = (self.engine, self.engine.execution_options(issuer_write=True))
+            self.__dict__["_writer_of"] = made
+        return made[1]  # type: ignore[no-any-return]
+
     @contextmanager
     def writing(self, steps: list[str] | None = None) -> Iterator[Session]:
         """One writing transaction: committed whole on success, rolled back whole on any
@@ -313,31 +366,34 @@ class Register:
         The transaction is the connection's (BEGIN IMMEDIATE on SQLite); the session
         joins it only when the ORM is used, and what the ORM holds is flushed before the
         COMMIT. An act that runs its statements on the connection (an issue) pays for no
-        session transaction at all."""
-        from issuer.register.driver import AFTER_TRANSACTION, commit_pipeline
-
-        with self.engine.connect() as connection:
-            connection.execution_options(issuer_write=True)
-            heard: list[str] = connection.info.get(_WARNINGS, [])
-            with ExitStack() as after, _WritingSession(connection, self.session_info()) as session:
-                session.info[AFTER_TRANSACTION] = after  # closed once the transaction has ended
+        session at all: it is made on the ORM's first use (:class:`_WritingSession`)."""
+        after: list[Any] = []  # exit callbacks, run once the transaction has ended
+        with self._writer.connect() as connection:
+            heard: list[str] | None = connection.info.get(_WARNINGS)
+            session = _WritingSession(connection, {SESSION_INFO: self.keyring, driver.AFTER_TRANSACTION: after})
+            try:
                 with connection.begin():
                     try:
                         yield session
-                        heard.clear()  # only what the COMMIT itself brings counts
+                        if heard:
+                            heard.clear()  # only what the COMMIT itself brings counts
                         if steps is not None:
                             steps.append("commit")
                         # an act whose last writes are in a pipeline commits in it (one round trip)
-                        commit_pipeline(session)
-                        if session.in_transaction():
+                        driver.commit_pipeline(session)
+                        if session.joined and session.in_transaction():
                             # the ORM's changes go out now; the session joined the
                             # connection's transaction, so its commit leaves the COMMIT to it
                             session.commit()
                     except BaseException:
                         # a pipeline still open is closed before the ROLLBACK (an aborted
                         # pipeline refuses it)
-                        after.__exit__(*sys.exc_info())
+                        _after_transaction(after, sys.exc_info())
                         raise
+            finally:
+                if session.joined:
+                    session.close()
+                _after_transaction(after, sys.exc_info())
             if heard:
                 # committed on this server, but the wait for its synchronous standby was
                 # cut short (a cancel): the standby may not have the act
