@@ -34,6 +34,21 @@ def driver_error(connection: Connection, sql: str, exc: Exception) -> DBAPIError
     return cast(DBAPIError, wrapped)
 
 
+def begin_immediate(connection: Connection) -> None:
+    """Begin a writing transaction on SQLite with BEGIN IMMEDIATE, straight to the driver,
+    before SQLAlchemy begins its own on ``connection`` (the engine's BEGIN then sees the
+    transaction open and says nothing): the write lock is taken first, so a transaction
+    never reads a counter and then fails to write it under contention, whatever the busy
+    timeout. A busy register comes back as SQLAlchemy's ``OperationalError``, which the
+    retry loop knows. Elsewhere nothing: PostgreSQL's transactions lock the rows they write."""
+    if connection.dialect.name != "sqlite":
+        return
+    try:
+        connection.connection.dbapi_connection.execute("BEGIN IMMEDIATE")  # type: ignore[union-attr]
+    except connection.dialect.loaded_dbapi.Error as exc:
+        raise driver_error(connection, "BEGIN IMMEDIATE", exc) from None
+
+
 def bind_value(session: Session, column: Column[Any], value: Any) -> Any:
     """``value`` as the driver takes it for ``column`` (what the ORM would send)."""
     dialect = session.get_bind().dialect
@@ -342,4 +357,4 @@ def commit_pipeline(session: Session) -> None:
         cursor.close()
 
 
-__all__ = ["AFTER_TRANSACTION", "PIPELINE", "Prepared", "Started", "bind_value", "commit_pipeline", "driver_error", "driver_rows", "execute_many", "insert_many", "leave_pipeline", "pipeline_to_commit", "stream_rows"]
+__all__ = ["AFTER_TRANSACTION", "PIPELINE", "Prepared", "Started", "begin_immediate", "bind_value", "commit_pipeline", "driver_error", "driver_rows", "execute_many", "insert_many", "leave_pipeline", "pipeline_to_commit", "stream_rows"]

@@ -43,12 +43,12 @@ def upgrade_to_head(engine: Engine, keyring: Keyring | None = None) -> None:
     is made when the register holds no sealed key yet (a new or newly upgraded one)."""
     from alembic import command
 
+    from issuer.register.driver import begin_immediate
     from issuer.register.sealing import Keyring, default_key_file
 
     keyring = keyring or Keyring(default_key_file(engine.url))
     config = alembic_config()
     with engine.connect() as connection:
-        connection.execution_options(issuer_write=True)
         sqlite = connection.dialect.name == "sqlite"
         if sqlite:
             # SQLite alters a table by copying it, and dropping the old copy trips the rows
@@ -57,6 +57,7 @@ def upgrade_to_head(engine: Engine, keyring: Keyring | None = None) -> None:
             # and every link is checked before the COMMIT
             _foreign_keys(connection, on=False)
         try:
+            begin_immediate(connection)  # SQLite: the write lock before anything is read
             config.attributes["connection"] = connection
             sealing_attributes(config, keyring)
             keyring.ensure(connection)

@@ -159,6 +159,18 @@ def sqlite_has_json() -> bool:
     return True
 
 
+def _begin_deferred(pooled: Any) -> None:
+    """SQLite: BEGIN, unless the connection is in a transaction already (a writing one,
+    begun IMMEDIATE by :func:`~issuer.register.driver.begin_immediate`)."""
+    raw = pooled.dbapi_connection
+    if not raw.in_transaction:
+        # straight to the driver; an error comes back as SQLAlchemy's wrapped one
+        try:
+            raw.execute("BEGIN")
+        except sqlite3.Error as exc:
+            raise DBAPIError.instance("BEGIN", None, exc, sqlite3.Error) from None
+
+
 def make_engine(url: str, *, busy_timeout_ms: int = 15000) -> Engine:
     if url.startswith("sqlite"):
         if not sqlite_has_json():
@@ -180,17 +192,12 @@ def make_engine(url: str, *, busy_timeout_ms: int = 15000) -> Engine:
             cursor.execute("PRAGMA foreign_keys = ON")
             cursor.close()
 
-        @event.listens_for(engine, "begin")
-        def _on_begin(connection: Any) -> None:
-            writing = connection.get_execution_options().get("issuer_write", False)
-            sql = "BEGIN IMMEDIATE" if writing else "BEGIN"
-            # straight to the driver (this runs on every act); a busy register still
-            # comes back as SQLAlchemy's OperationalError, which the retry loop knows
-            try:
-                connection.connection.dbapi_connection.execute(sql)
-            except sqlite3.Error as exc:
-                raise DBAPIError.instance(sql, None, exc, sqlite3.Error) from None
-
+        # BEGIN is said by the dialect's own hook for it (SQLAlchemy calls ``do_begin`` with
+        # the pooled connection on every transaction it begins), not by a "begin" event: an
+        # engine with a connection event dispatches events on every connect, begin, commit and
+        # close, which cost an act more than its BEGIN. A writing transaction has said BEGIN
+        # IMMEDIATE already (driver.begin_immediate); anything else begins deferred.
+        engine.dialect.do_begin = _begin_deferred  # type: ignore[method-assign,assignment]
         return engine
     engine = create_engine(url, pool_recycle=POOL_RECYCLE_S)
 
@@ -347,16 +354,6 @@ class Register:
                     raise _refused(exc) from None
                 raise
 
-    @property
-    def _writer(self) -> Engine:
-        """The engine as writing transactions use it (its connections begin with BEGIN
-        IMMEDIATE on SQLite): made once, not an option set on every act's connection."""
-        made = self.__dict__.get("_writer_of")
-        if made is None or made[0] is not self.engine:
-            made = (self.engine, self.engine.execution_options(issuer_write=True))
-            self.__dict__["_writer_of"] = made
-        return made[1]  # type: ignore[no-any-return]
-
     @contextmanager
     def writing(self, steps: list[str] | None = None) -> Iterator[Session]:
         """One writing transaction: committed whole on success, rolled back whole on any
@@ -368,10 +365,11 @@ class Register:
         COMMIT. An act that runs its statements on the connection (an issue) pays for no
         session at all: it is made on the ORM's first use (:class:`_WritingSession`)."""
         after: list[Any] = []  # exit callbacks, run once the transaction has ended
-        with self._writer.connect() as connection:
+        with self.engine.connect() as connection:
             heard: list[str] | None = connection.info.get(_WARNINGS)
             session = _WritingSession(connection, {SESSION_INFO: self.keyring, driver.AFTER_TRANSACTION: after})
             try:
+                driver.begin_immediate(connection)  # SQLite: the write lock first
                 with connection.begin():
                     try:
                         yield session

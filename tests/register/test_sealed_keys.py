@@ -15,6 +15,7 @@ from typing import Any
 import pytest
 from sqlalchemy import create_engine, text
 
+from issuer.register.driver import begin_immediate
 from issuer.register.issuing import issue_codes
 from issuer.register.migrate import alembic_config, sealing_attributes
 from issuer.register.sealing import KEY_BYTES, Keyring, KeyFileError, default_key_file, is_sealed
@@ -42,7 +43,7 @@ def to_revision(register: Any, revision: str, *, down: bool) -> None:
 
     config = alembic_config()
     with register.engine.connect() as connection:
-        connection.execution_options(issuer_write=True)
+        begin_immediate(connection)
         config.attributes["connection"] = connection
         sealing_attributes(config, register.keyring)
         (command.downgrade if down else command.upgrade)(config, revision)

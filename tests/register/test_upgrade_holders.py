@@ -13,6 +13,7 @@ from sqlalchemy import select, text
 
 from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.doctor import run_doctor
+from issuer.register.driver import begin_immediate
 from issuer.register.holders import find_holders
 from issuer.register.issuing import issue_codes
 from issuer.register.lifecycle import void_code
@@ -56,7 +57,7 @@ def test_a_populated_register_upgrades_with_its_log_intact(
         anchor = head(session)
     config = alembic_config()
     with register.engine.connect() as connection:
-        connection.execution_options(issuer_write=True)
+        begin_immediate(connection)
         config.attributes["connection"] = connection
         command.downgrade(config, BEFORE_HOLDERS)
         connection.commit()

@@ -22,6 +22,7 @@ from stdnum import luhn
 from issuer.readers.scanfile import read_table
 from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.doctor import run_doctor
+from issuer.register.driver import begin_immediate
 from issuer.register.importing import IMPORT_ROLES, import_codes
 from issuer.register.issuing import issue_codes
 from issuer.register.lifecycle import code_record, find_code, replace_code, void_code
@@ -98,7 +99,7 @@ def test_a_populated_register_moves_to_lean_rows_and_reads_the_same(
         anchor = head(session)
     config = alembic_config()
     with desk.engine.connect() as connection:
-        connection.execution_options(issuer_write=True)
+        begin_immediate(connection)
         config.attributes["connection"] = connection
         command.downgrade(config, _before())
         connection.commit()

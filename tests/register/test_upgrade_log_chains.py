@@ -13,6 +13,7 @@ from sqlalchemy import Connection, create_engine, text
 from issuer.register.admin import open_existing
 from issuer.register.anchors import current_anchor, verify_log
 from issuer.register.defining import SeriesSpec, add_series
+from issuer.register.driver import begin_immediate
 from issuer.register.issuing import issue_codes
 from issuer.register.log import GENESIS, entry_hash
 from issuer.register.migrate import alembic_config
@@ -66,7 +67,7 @@ def _at_previous_head(url: str) -> int:
     add_series(register, SeriesSpec(key="tools", scheme="luhn", length=6, prefix="T"))  # the register's chain
     config = alembic_config()
     with register.engine.connect() as connection:
-        connection.execution_options(issuer_write=True)
+        begin_immediate(connection)
         config.attributes["connection"] = connection
         command.downgrade(config, PREVIOUS_HEAD)
         connection.commit()

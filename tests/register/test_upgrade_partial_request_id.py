@@ -14,6 +14,7 @@ from sqlalchemy import text
 from issuer.errors import Conflict, DuplicateRow
 from issuer.register.anchors import verify_log
 from issuer.register.defining import SeriesSpec, add_series
+from issuer.register.driver import begin_immediate
 from issuer.register.issuing import issue_codes
 from issuer.register.lifecycle import replace_code
 from issuer.register.migrate import alembic_config
@@ -29,7 +30,7 @@ def _migrate(register: Register, to: str, *, down: bool) -> None:
 
     config = alembic_config()
     with register.engine.connect() as connection:
-        connection.execution_options(issuer_write=True)
+        begin_immediate(connection)
         config.attributes["connection"] = connection
         (command.downgrade if down else command.upgrade)(config, to)
         connection.commit()

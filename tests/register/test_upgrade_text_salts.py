@@ -21,6 +21,7 @@ from issuer.readers.scanfile import read_table
 from issuer.register import holders
 from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.doctor import run_doctor
+from issuer.register.driver import begin_immediate
 from issuer.register.holders import erase_holder, set_holder
 from issuer.register.importing import IMPORT_ROLES, import_codes
 from issuer.register.issuing import issue_codes
@@ -48,7 +49,7 @@ def _downgrade(register: Register) -> None:
 
     config = alembic_config()
     with register.engine.connect() as connection:
-        connection.execution_options(issuer_write=True)
+        begin_immediate(connection)
         config.attributes["connection"] = connection
         command.downgrade(config, _before())
         connection.commit()
