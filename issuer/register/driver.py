@@ -190,22 +190,25 @@ class Prepared:
             self._forms[dialect.name] = form
         return form
 
-    def _cursor(self, connection: Connection) -> tuple[_Form, Any]:
-        """The statement's form for the connection's dialect and a cursor of its driver."""
+    def _execute(self, connection: Connection, values: Mapping[str, Any] | None) -> tuple[_Form, Any]:
+        """Send the statement (the driver's own ``Connection.execute``, which makes the
+        cursor: sqlite3's in C); its form and the cursor holding its answer."""
         form = self._forms.get(connection.dialect.name) or self._form(connection.dialect)
-        return form, connection.connection.dbapi_connection.cursor()  # type: ignore[union-attr]
+        raw: Any = connection.connection.dbapi_connection
+        try:
+            return form, raw.execute(form.sql, form.parameters(values or {}))
+        except connection.dialect.loaded_dbapi.Error as exc:
+            # the same wrapped error Core would raise, so retries and callers see one kind
+            raise driver_error(connection, form.sql, exc) from None
 
     def rows(self, connection: Connection, values: Mapping[str, Any] | None = None) -> list[tuple[Any, ...]]:
         """Run once; the rows it returns (none for a plain write)."""
-        # (written out rather than shared with send and many: this runs several times an act)
-        form, cursor = self._cursor(connection)
+        form, cursor = self._execute(connection, values)
         try:
-            cursor.execute(form.sql, form.parameters(values or {}))
             # in pipeline mode a write's answer is not waited for (its error, if any, comes
             # with the next answer that is); a statement that returns rows waits for them
-            return list(cursor.fetchall()) if form.returns_rows else []
+            return cursor.fetchall() if form.returns_rows else []
         except connection.dialect.loaded_dbapi.Error as exc:
-            # the same wrapped error Core would raise, so retries and callers see one kind
             raise driver_error(connection, form.sql, exc) from None
         finally:
             cursor.close()
@@ -219,31 +222,18 @@ class Prepared:
         """Run once and read its rows later (:meth:`Started.rows`): in pipeline mode the
         statements started after it go out before its answer has come back, and the first
         read waits for all of them (one round trip)."""
-        form, cursor = self._cursor(connection)
-        try:
-            cursor.execute(form.sql, form.parameters(values or {}))
-        except connection.dialect.loaded_dbapi.Error as exc:
-            cursor.close()
-            raise driver_error(connection, form.sql, exc) from None
-        except BaseException:
-            cursor.close()
-            raise
+        form, cursor = self._execute(connection, values)
         return Started(connection, form.sql, cursor)
 
     def send(self, connection: Connection, values: Mapping[str, Any] | None = None) -> None:
         """Run once and read nothing back: in pipeline mode (:func:`pipeline_to_commit`) it
         goes out without waiting, and an error it meets comes with the COMMIT's answer."""
-        form, cursor = self._cursor(connection)
-        try:
-            cursor.execute(form.sql, form.parameters(values or {}))
-        except connection.dialect.loaded_dbapi.Error as exc:
-            raise driver_error(connection, form.sql, exc) from None
-        finally:
-            cursor.close()
+        self._execute(connection, values)[1].close()
 
     def many(self, connection: Connection, values: Iterable[Mapping[str, Any]]) -> None:
         """Run once per mapping of ``values`` (a write), through ``executemany``."""
-        form, cursor = self._cursor(connection)
+        form = self._forms.get(connection.dialect.name) or self._form(connection.dialect)
+        cursor: Any = connection.connection.dbapi_connection.cursor()  # type: ignore[union-attr]
         try:
             cursor.executemany(form.sql, [form.parameters(each) for each in values])
         except connection.dialect.loaded_dbapi.Error as exc:
@@ -262,7 +252,7 @@ class Started:
         """Its rows (waiting for them if they have not come back yet); an error it met
         (or, in pipeline mode, one a statement sent with it met) is raised here."""
         try:
-            return list(self.cursor.fetchall())
+            return self.cursor.fetchall()  # type: ignore[no-any-return]
         except self.connection.dialect.loaded_dbapi.Error as exc:
             raise driver_error(self.connection, self.sql, exc) from None
         finally:

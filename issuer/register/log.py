@@ -176,19 +176,17 @@ def chain_rows(
     for entry in entries:
         last_id += 1
         chain = chain_of(entry.action, entry.series_id)
-        row: dict[str, Any] = {
-            "at": at,
-            "actor": actor,
-            "action": entry.action,
-            "series_id": entry.series_id,
-            "code": entry.code,
-            "batch_id": entry.batch_id,
-            "detail": detail_text(entry.detail),
-            "prev_hash": heads[chain],
-            "chain": chain,
-        }
-        digest = entry_hash(entry_id=last_id, **row)
-        rows.append({"id": last_id, **row, "hash": digest})
+        detail = detail_text(entry.detail)
+        prev_hash = heads[chain]
+        digest = entry_hash(
+            entry_id=last_id, at=at, actor=actor, action=entry.action, series_id=entry.series_id,
+            code=entry.code, batch_id=entry.batch_id, detail=detail, prev_hash=prev_hash, chain=chain,
+        )  # fmt: skip
+        rows.append({
+            "id": last_id, "at": at, "actor": actor, "action": entry.action, "series_id": entry.series_id,
+            "code": entry.code, "batch_id": entry.batch_id, "detail": detail, "prev_hash": prev_hash,
+            "chain": chain, "hash": digest,
+        })  # fmt: skip
         heads[chain] = digest
     return rows
 
