@@ -253,6 +253,16 @@ def _after_transaction(callbacks: list[Any], exc_info: Any) -> None:
     stack.__exit__(*exc_info)
 
 
+def _ended(session: _WritingSession, after: list[Any], exc_info: Any) -> None:
+    """Once a writing transaction has ended: the ORM's session closed (if it was made),
+    then what the act registered to run."""
+    try:
+        if session.joined:
+            session.close()
+    finally:
+        _after_transaction(after, exc_info)
+
+
 class _WritingSession(Session):
     """The session of one writing transaction (:meth:`Register.writing`), bound to the
     connection whose transaction it is. :meth:`connection` and :meth:`get_bind` hand back
@@ -388,10 +398,10 @@ class Register:
                         # pipeline refuses it)
                         _after_transaction(after, sys.exc_info())
                         raise
-            finally:
-                if session.joined:
-                    session.close()
-                _after_transaction(after, sys.exc_info())
+            except BaseException:
+                _ended(session, after, sys.exc_info())
+                raise
+            _ended(session, after, (None, None, None))
             if heard:
                 # committed on this server, but the wait for its synchronous standby was
                 # cut short (a cancel): the standby may not have the act
