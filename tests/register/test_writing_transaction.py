@@ -54,9 +54,9 @@ def test_the_orm_session_is_made_on_first_use_and_commits_with_the_act(register:
     add_series(register, TOOLS)
     with register.writing() as session:
         session.connection().execute(text("SELECT count(*) FROM series"))
-        assert not getattr(session, "joined")  # statements on the connection: no ORM session
+        assert not session.joined  # statements on the connection: no ORM session
         series = session.scalars(select(Series).where(Series.key == "tools")).one()
-        assert getattr(session, "joined")
+        assert session.joined
         series.title = "Tools on loan"
     with register.reading() as session:
         assert session.scalar(select(Series.title)) == "Tools on loan"
