@@ -22,6 +22,7 @@ from issuer.errors import PermissionDenied
 from issuer.readers.scanfile import read_table
 from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.doctor import run_doctor
+from issuer.register.driver import begin_immediate
 from issuer.register.holders import set_holder
 from issuer.register.importing import IMPORT_ROLES, import_codes
 from issuer.register.issuing import issue_codes
@@ -43,7 +44,7 @@ def _migrate(register: Register, to: str, *, down: bool) -> None:
 
     config = alembic_config()
     with register.engine.connect() as connection:
-        connection.execution_options(issuer_write=True)
+        begin_immediate(connection)
         config.attributes["connection"] = connection
         (command.downgrade if down else command.upgrade)(config, to)
         connection.commit()
