@@ -49,7 +49,7 @@ from issuer.errors import (
     redact,
 )
 from issuer.outputs import private_folder, protect
-from issuer.register import driver
+from issuer.register.driver import AFTER_TRANSACTION, begin_immediate, commit_pipeline
 from issuer.register.sealing import SESSION_INFO, Keyring, default_key_file
 
 T = TypeVar("T")
@@ -377,9 +377,9 @@ class Register:
         after: list[Any] = []  # exit callbacks, run once the transaction has ended
         with self.engine.connect() as connection:
             heard: list[str] | None = connection.info.get(_WARNINGS)
-            session = _WritingSession(connection, {SESSION_INFO: self.keyring, driver.AFTER_TRANSACTION: after})
+            session = _WritingSession(connection, {SESSION_INFO: self.keyring, AFTER_TRANSACTION: after})
             try:
-                driver.begin_immediate(connection)  # SQLite: the write lock first
+                begin_immediate(connection)  # SQLite: the write lock first
                 with connection.begin():
                     try:
                         yield session
@@ -388,7 +388,7 @@ class Register:
                         if steps is not None:
                             steps.append("commit")
                         # an act whose last writes are in a pipeline commits in it (one round trip)
-                        driver.commit_pipeline(session)
+                        commit_pipeline(session)
                         if session.joined and session.in_transaction():
                             # the ORM's changes go out now; the session joined the
                             # connection's transaction, so its commit leaves the COMMIT to it

@@ -20,7 +20,7 @@ import pytest
 from sqlalchemy import event, text
 
 from issuer.errors import ConnectionLost
-from issuer.register import driver, store
+from issuer.register import store
 from issuer.register.anchors import verify_log
 from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.issuing import issue_codes
@@ -108,13 +108,13 @@ def test_a_connection_lost_during_commit_says_the_outcome_is_unknown(
 
     # an issue sends its COMMIT in the pipeline of its last writes (driver.commit_pipeline);
     # an act without one commits through SQLAlchemy (its "commit" event): both are covered
-    pipelined = driver.commit_pipeline
+    pipelined = store.commit_pipeline
 
     def commit_pipeline(session: Any) -> None:
         drop_before_commit(None)
         pipelined(session)
 
-    monkeypatch.setattr(driver, "commit_pipeline", commit_pipeline)
+    monkeypatch.setattr(store, "commit_pipeline", commit_pipeline)  # where writing finds it
     event.listen(register.engine, "commit", drop_before_commit)
     try:
         with pytest.raises(ConnectionLost) as raised:
