@@ -14,6 +14,7 @@ from sqlalchemy import create_engine, text
 from issuer.register.anchors import verify_log
 from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.doctor import run_doctor
+from issuer.register.driver import begin_immediate
 from issuer.register.issuing import issue_codes
 from issuer.register.lifecycle import void_code
 from issuer.register.log import GENESIS, NewEntry, append_entries, entry_hash
@@ -64,7 +65,7 @@ def _move(register: Register, revision: str, *, down: bool) -> None:
 
     config = alembic_config()
     with register.engine.connect() as connection:
-        connection.execution_options(issuer_write=True)
+        begin_immediate(connection)
         config.attributes["connection"] = connection
         (command.downgrade if down else command.upgrade)(config, revision)
         connection.commit()
