@@ -338,10 +338,21 @@ def commit_pipeline(session: Session) -> None:
     del session.info[PIPELINE]
     connection = session.connection()
     cursor: Any = connection.connection.dbapi_connection.cursor()  # type: ignore[union-attr]
+    error = connection.dialect.loaded_dbapi.Error
     try:
-        cursor.execute("COMMIT", prepare=False)  # (psycopg's cursor: not worth preparing)
+        try:
+            cursor.execute("COMMIT", prepare=False)  # (psycopg's cursor: not worth preparing)
+        except error:
+            # a refusal of a write sent earlier was back already and came out of the
+            # COMMIT's send: the pipeline is aborted and is closed here (what else it held
+            # is void), or the ROLLBACK that follows would meet the aborted pipeline
+            try:
+                pipeline.__exit__(None, None, None)
+            except error:
+                pass
+            raise
         pipeline.__exit__(None, None, None)
-    except connection.dialect.loaded_dbapi.Error as exc:
+    except error as exc:
         raise driver_error(connection, "COMMIT", exc) from None
     finally:
         cursor.close()

@@ -232,3 +232,44 @@ def test_a_refusal_in_the_pipelined_writes_is_one_line_and_leaves_nothing(
     # came back clean from the aborted pipeline)
     with pytest.raises(DuplicateRow):
         issue_codes(register, "shelf", 1)
+
+
+def test_a_refusal_whose_answer_is_back_before_the_commit_goes_leaves_the_connection_clean(
+    register: Register, pg_url: str, monkeypatch: pytest.MonkeyPatch  # noqa: F811
+) -> None:
+    """When the refusal of a pipelined write has come back before the COMMIT is sent, the
+    driver raises it from the COMMIT's own send; the pipeline is still closed before the
+    ROLLBACK (an aborted pipeline refuses it), so the act is the one-line refusal and the
+    next act on the same pooled connection works (a timing that a loaded machine gives)."""
+    import time
+
+    from issuer.errors import DuplicateRow
+    from issuer.register import store
+
+    issue_codes(register, "shelf", 1)
+    with register.reading() as session:
+        shape = get_series(session, "shelf")
+        from issuer.register.series import code_format
+
+        taken = code_format(shape).code_for_base(shape.range_start + 1)
+    with register.engine.begin() as connection:  # a row put there behind the register's back
+        connection.execute(text(
+            "INSERT INTO batch (series_id, kind, count, created_at, actor) "
+            "SELECT id, 'import', 1, now(), 'test' FROM series WHERE key = 'shelf'"
+        ))  # fmt: skip
+        connection.execute(text(
+            "INSERT INTO issued_code (series_id, code, base, status, batch_id, print_count) "
+            "SELECT s.id, :code, :base, 'issued', (SELECT max(id) FROM batch), 0 FROM series s WHERE s.key = 'shelf'"
+        ), {"code": taken, "base": shape.range_start + 1})
+    pipelined = store.commit_pipeline
+
+    def commit_late(session: Any) -> None:
+        time.sleep(0.2)  # the server's refusal is in the socket before the COMMIT is sent
+        pipelined(session)
+
+    monkeypatch.setattr(store, "commit_pipeline", commit_late)  # where writing finds it
+    for _ in range(2):
+        with pytest.raises(DuplicateRow) as raised:
+            issue_codes(register, "shelf", 1)
+        assert "\n" not in str(raised.value) and "refused a row" in str(raised.value)
+    assert _codes(register)[-1] == taken and _next_counter(register) == 1
