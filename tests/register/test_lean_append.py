@@ -14,13 +14,12 @@ from sqlalchemy import create_engine, text
 from issuer.register.anchors import verify_log
 from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.doctor import run_doctor
-from issuer.register.driver import begin_immediate
 from issuer.register.issuing import issue_codes
 from issuer.register.lifecycle import void_code
 from issuer.register.log import GENESIS, NewEntry, append_entries, entry_hash
-from issuer.register.migrate import alembic_config
 from issuer.register.store import SCHEMA_HEAD, Register, database_url, open_register
 from tests.register.pg import pg_database, pg_url  # noqa: F401
+from tests.register.upgrades import to_revision
 
 PREVIOUS_HEAD = "fewer_pages"
 AT = datetime(2026, 5, 2, 10, 15, 7, 120, tzinfo=UTC)
@@ -61,14 +60,7 @@ def _append_source(url: str) -> str:
 
 
 def _move(register: Register, revision: str, *, down: bool) -> None:
-    from alembic import command
-
-    config = alembic_config()
-    with register.engine.connect() as connection:
-        begin_immediate(connection)
-        config.attributes["connection"] = connection
-        (command.downgrade if down else command.upgrade)(config, revision)
-        connection.commit()
+    to_revision(register, revision, down=down)
     assert register.schema_revision() == revision
 
 

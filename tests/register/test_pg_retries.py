@@ -195,6 +195,26 @@ def test_the_serialisation_failure_is_sqlstate_40001(register: Register, pg_url:
         assert raised.value.sqlstate == "40001"
 
 
+def _take_next_code_behind_the_back(register: Register) -> str:
+    """Put the code the next issue of 'shelf' will draw into the register by plain SQL (as
+    an import batch would hold it), so that issue's code row is refused; returns it."""
+    from issuer.register.series import code_format
+
+    with register.reading() as session:
+        shape = get_series(session, "shelf")
+    taken = code_format(shape).code_for_base(shape.range_start + 1)  # the next code to be drawn
+    with register.engine.begin() as connection:
+        connection.execute(text(
+            "INSERT INTO batch (series_id, kind, count, created_at, actor) "
+            "SELECT id, 'import', 1, now(), 'test' FROM series WHERE key = 'shelf'"
+        ))  # fmt: skip
+        connection.execute(text(
+            "INSERT INTO issued_code (series_id, code, base, status, batch_id, print_count) "
+            "SELECT s.id, :code, :base, 'issued', (SELECT max(id) FROM batch), 0 FROM series s WHERE s.key = 'shelf'"
+        ), {"code": taken, "base": shape.range_start + 1})
+    return taken
+
+
 def test_a_refusal_in_the_pipelined_writes_is_one_line_and_leaves_nothing(
     register: Register, pg_url: str  # noqa: F811
 ) -> None:
@@ -204,20 +224,7 @@ def test_a_refusal_in_the_pipelined_writes_is_one_line_and_leaves_nothing(
     from issuer.errors import DuplicateRow
 
     first = issue_codes(register, "shelf", 1).codes[0].code
-    with register.reading() as session:
-        shape = get_series(session, "shelf")
-        from issuer.register.series import code_format
-
-        taken = code_format(shape).code_for_base(shape.range_start + 1)  # the next code to be drawn
-    with register.engine.begin() as connection:  # a row put there behind the register's back
-        connection.execute(text(
-            "INSERT INTO batch (series_id, kind, count, created_at, actor) "
-            "SELECT id, 'import', 1, now(), 'test' FROM series WHERE key = 'shelf'"
-        ))  # fmt: skip
-        connection.execute(text(
-            "INSERT INTO issued_code (series_id, code, base, status, batch_id, print_count) "
-            "SELECT s.id, :code, :base, 'issued', (SELECT max(id) FROM batch), 0 FROM series s WHERE s.key = 'shelf'"
-        ), {"code": taken, "base": shape.range_start + 1})
+    taken = _take_next_code_behind_the_back(register)
     with register.engine.connect() as connection:
         batches = connection.execute(text("SELECT count(*) FROM batch")).scalar_one()
         entries = connection.execute(text("SELECT count(*) FROM log_entry")).scalar_one()
@@ -247,20 +254,7 @@ def test_a_refusal_whose_answer_is_back_before_the_commit_goes_leaves_the_connec
     from issuer.register import store
 
     issue_codes(register, "shelf", 1)
-    with register.reading() as session:
-        shape = get_series(session, "shelf")
-        from issuer.register.series import code_format
-
-        taken = code_format(shape).code_for_base(shape.range_start + 1)
-    with register.engine.begin() as connection:  # a row put there behind the register's back
-        connection.execute(text(
-            "INSERT INTO batch (series_id, kind, count, created_at, actor) "
-            "SELECT id, 'import', 1, now(), 'test' FROM series WHERE key = 'shelf'"
-        ))  # fmt: skip
-        connection.execute(text(
-            "INSERT INTO issued_code (series_id, code, base, status, batch_id, print_count) "
-            "SELECT s.id, :code, :base, 'issued', (SELECT max(id) FROM batch), 0 FROM series s WHERE s.key = 'shelf'"
-        ), {"code": taken, "base": shape.range_start + 1})
+    taken = _take_next_code_behind_the_back(register)
     pipelined = store.commit_pipeline
 
     def commit_late(session: Any) -> None:

@@ -10,14 +10,11 @@
 from __future__ import annotations
 
 from pathlib import Path
-from typing import Any
 
 import pytest
 from sqlalchemy import create_engine, text
 
-from issuer.register.driver import begin_immediate
 from issuer.register.issuing import issue_codes
-from issuer.register.migrate import alembic_config, sealing_attributes
 from issuer.register.sealing import KEY_BYTES, Keyring, KeyFileError, default_key_file, is_sealed
 from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.series import code_format, get_series, permutation
@@ -25,6 +22,7 @@ from issuer.register.store import database_url, open_register
 from tests.edges.helpers import refused, run
 from tests.register.pg import pg_database, pg_url, register_url  # noqa: F401
 from tests.register.test_roles import Guarded, groups, guarded  # noqa: F401
+from tests.register.upgrades import to_revision
 
 MEMBERS = SeriesSpec(key="members", scheme="luhn", length=7, prefix="QM", mode="scattered")
 
@@ -36,18 +34,6 @@ def stored_key(url: str, series: str = "members") -> bytes:
             return bytes(connection.execute(text("SELECT scatter_key FROM series WHERE key = :k"), {"k": series}).scalar_one())
     finally:
         engine.dispose()
-
-
-def to_revision(register: Any, revision: str, *, down: bool) -> None:
-    from alembic import command
-
-    config = alembic_config()
-    with register.engine.connect() as connection:
-        begin_immediate(connection)
-        config.attributes["connection"] = connection
-        sealing_attributes(config, register.keyring)
-        (command.downgrade if down else command.upgrade)(config, revision)
-        connection.commit()
 
 
 def test_an_older_register_is_sealed_and_issues_the_same_next_codes(register_url: str) -> None:  # noqa: F811

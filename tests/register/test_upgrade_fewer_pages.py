@@ -22,32 +22,20 @@ from issuer.errors import PermissionDenied
 from issuer.readers.scanfile import read_table
 from issuer.register.defining import SeriesSpec, add_series
 from issuer.register.doctor import run_doctor
-from issuer.register.driver import begin_immediate
 from issuer.register.holders import set_holder
 from issuer.register.importing import IMPORT_ROLES, import_codes
 from issuer.register.issuing import issue_codes
 from issuer.register.lifecycle import log_entries, replace_code
 from issuer.register.logverify import verify_chain
-from issuer.register.migrate import alembic_config
 from issuer.register.printing import record_prints
 from issuer.register.series import code_format, get_series
 from issuer.register.store import SCHEMA_HEAD, Register, open_register
 from tests.register.consistency import assert_consistent
+from tests.register.upgrades import to_revision
 from tests.register.pg import pg_database, pg_url, register_url  # noqa: F401
 from tests.register.test_roles import Guarded, as_role, groups, guarded  # noqa: F401
 
 PREVIOUS = "text_salts"
-
-
-def _migrate(register: Register, to: str, *, down: bool) -> None:
-    from alembic import command
-
-    config = alembic_config()
-    with register.engine.connect() as connection:
-        begin_immediate(connection)
-        config.attributes["connection"] = connection
-        (command.downgrade if down else command.upgrade)(config, to)
-        connection.commit()
 
 
 def _fill(register: Register, folder: Path) -> None:
@@ -136,8 +124,8 @@ def _holds_at_head(register: Register, entries: list[tuple[object, ...]]) -> Non
 
 def test_a_register_made_at_the_previous_revision_upgrades(register_url: str, tmp_path: Path) -> None:  # noqa: F811
     made = open_register(register_url, actor="desk-ann")
-    _migrate(made, "base", down=True)
-    _migrate(made, PREVIOUS, down=False)  # the schema exactly as the previous release made it
+    to_revision(made, "base", down=True)
+    to_revision(made, PREVIOUS, down=False)  # the schema exactly as the previous release made it
     at_previous = Register(engine=made.engine, actor="desk-ann")  # (open_register would upgrade)
     assert at_previous.schema_revision() == PREVIOUS
     _fill(at_previous, tmp_path)
@@ -159,7 +147,7 @@ def test_down_to_the_previous_revision_and_up_again(register_url: str, tmp_path:
     register = open_register(register_url, actor="desk-ann")
     _fill(register, tmp_path)
     entries = _entries(register)
-    _migrate(register, PREVIOUS, down=True)
+    to_revision(register, PREVIOUS, down=True)
     assert register.schema_revision() == PREVIOUS
     indexes = _indexes(register)
     assert "uq_log_entry_hash" in indexes and "WHERE" not in indexes["ix_log_entry_series_id_id"]
@@ -198,7 +186,7 @@ def _function_source(url: str, name: str) -> str:
 def test_roles_applied_before_keep_their_rules_through_the_upgrade(guarded: Guarded) -> None:  # noqa: F811
     owner = as_role(guarded.owner, "owner")
     try:
-        _migrate(owner, PREVIOUS, down=True)  # the functions go back to asking by series
+        to_revision(owner, PREVIOUS, down=True)  # the functions go back to asking by series
     finally:
         owner.close()
     assert "WHERE e.series_id = NEW.id AND" in _function_source(guarded.owner, "issuer_series_change_logged")

@@ -14,26 +14,14 @@ from sqlalchemy import text
 from issuer.errors import Conflict, DuplicateRow
 from issuer.register.anchors import verify_log
 from issuer.register.defining import SeriesSpec, add_series
-from issuer.register.driver import begin_immediate
 from issuer.register.issuing import issue_codes
 from issuer.register.lifecycle import replace_code
-from issuer.register.migrate import alembic_config
 from issuer.register.store import SCHEMA_HEAD, Register, open_register
 from tests.register.consistency import assert_consistent
+from tests.register.upgrades import to_revision
 from tests.register.pg import pg_database, pg_url, register_url  # noqa: F401
 
 PREVIOUS = "sealed_keys"
-
-
-def _migrate(register: Register, to: str, *, down: bool) -> None:
-    from alembic import command
-
-    config = alembic_config()
-    with register.engine.connect() as connection:
-        begin_immediate(connection)
-        config.attributes["connection"] = connection
-        (command.downgrade if down else command.upgrade)(config, to)
-        connection.commit()
 
 
 def _add_later_columns(register: Register) -> list[tuple[str, str]]:
@@ -137,8 +125,8 @@ def _holds_after_upgrade(register: Register, issued: dict[str, list[str]]) -> No
 
 def test_a_register_made_at_the_previous_revision_upgrades(register_url: str) -> None:  # noqa: F811
     made = open_register(register_url, actor="desk-ann")
-    _migrate(made, "base", down=True)
-    _migrate(made, PREVIOUS, down=False)  # the schema exactly as the previous release made it
+    to_revision(made, "base", down=True)
+    to_revision(made, PREVIOUS, down=False)  # the schema exactly as the previous release made it
     at_previous = Register(engine=made.engine, actor="desk-ann")  # (open_register would upgrade)
     assert at_previous.schema_revision() == PREVIOUS
     later = _add_later_columns(at_previous)
@@ -164,7 +152,7 @@ def test_a_register_made_at_the_previous_revision_upgrades(register_url: str) ->
 def test_down_to_the_previous_revision_and_up_again(register_url: str) -> None:  # noqa: F811
     register = open_register(register_url, actor="desk-ann")
     issued = _fill(register)
-    _migrate(register, PREVIOUS, down=True)  # with codes pointing at the batches
+    to_revision(register, PREVIOUS, down=True)  # with codes pointing at the batches
     assert register.schema_revision() == PREVIOUS
     rule = _request_id_rule(register)
     assert "WHERE" not in " ".join(rule) and len(rule) == 1, rule

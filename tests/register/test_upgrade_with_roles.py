@@ -30,7 +30,8 @@ from issuer.register.store import database_url as engine_url
 from issuer.register.tokens import add_token
 from tests.register.pg import admin_sql, database_url, new_login_role, pg_database  # noqa: F401
 from tests.register.test_roles import Groups, groups  # noqa: F401
-from tests.register.test_sealed_keys import stored_key, to_revision
+from tests.register.test_sealed_keys import stored_key
+from tests.register.upgrades import to_revision
 
 OLDER_HEAD = "log_rights"
 
