@@ -96,16 +96,17 @@ def consistency_proof(first: int, leaves: Sequence[bytes]) -> list[bytes]:
     return proof
 
 
-def verify_inclusion(
-    index: int, size: int, leaf: bytes, path: Sequence[bytes], expected_root: bytes
-) -> bool:
-    """RFC 9162 section 2.1.3.2: whether ``path`` proves leaf hash ``leaf`` at ``index``."""
+def root_from_path(index: int, size: int, leaf: bytes, path: Sequence[bytes]) -> bytes | None:
+    """The root that ``path`` leads to from leaf hash ``leaf`` at ``index`` of a tree of
+    ``size`` (the computation of RFC 9162 section 2.1.3.2), or None when the path does not
+    fit the tree's shape: O(log n), so a prover who has built a path need not hash every
+    leaf a second time for the root."""
     if not 0 <= index < size:
-        return False
+        return None
     fn, sn, r = index, size - 1, leaf
     for p in path:
         if sn == 0:
-            return False
+            return None
         if fn & 1 or fn == sn:
             r = node_hash(p, r)
             if not fn & 1:
@@ -116,7 +117,15 @@ def verify_inclusion(
             r = node_hash(r, p)
         fn >>= 1
         sn >>= 1
-    return sn == 0 and r == expected_root
+    return r if sn == 0 else None
+
+
+def verify_inclusion(
+    index: int, size: int, leaf: bytes, path: Sequence[bytes], expected_root: bytes
+) -> bool:
+    """RFC 9162 section 2.1.3.2: whether ``path`` proves leaf hash ``leaf`` at ``index``."""
+    found = root_from_path(index, size, leaf, path)
+    return found is not None and found == expected_root
 
 
 def verify_consistency(

@@ -62,6 +62,8 @@ def receipt_for_batch(register: Register, batch_id: int, private_pem: bytes) -> 
         entry, position = found
         text = row_text(entry)
         leaves = leaf_hashes(session, size)
-    top = merkle.root(leaves)
+    path = merkle.inclusion_proof(int(position), leaves)  # hashes every other leaf once...
+    top = merkle.root_from_path(int(position), size, leaves[int(position)], path)  # ...the root from it
+    assert top is not None
     checkpoint = sign_checkpoint(private_pem, size=size, root=top, at=_at(register.clock))
-    return Receipt(text, int(position), merkle.inclusion_proof(int(position), leaves), checkpoint)
+    return Receipt(text, int(position), path, checkpoint)

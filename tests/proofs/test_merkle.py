@@ -72,6 +72,8 @@ def test_reference_inclusion_paths() -> None:
         assert [p.hex() for p in proof] == path
         assert merkle.verify_inclusion(number - 1, size, LEAVES[number - 1], proof, ROOTS[size])
         assert not merkle.verify_inclusion(number - 1, size, LEAVES[number - 1], proof, ROOTS[size - 1])
+        # the root a receipt signs is the one its path leads to
+        assert merkle.root_from_path(number - 1, size, LEAVES[number - 1], proof) == ROOTS[size]
 
 
 def test_reference_consistency_proofs() -> None:
@@ -105,6 +107,7 @@ def test_every_proof_verifies_and_no_flipped_byte_does(case: tuple) -> None:
     top = merkle.root(leaves)
     path = merkle.inclusion_proof(index, leaves)
     assert merkle.verify_inclusion(index, n, leaves[index], path, top)
+    assert merkle.root_from_path(index, n, leaves[index], path) == top
     for bad in _flips(path):
         assert not merkle.verify_inclusion(index, n, leaves[index], bad, top)
     for bad_leaf, bad_root in ((_flips([leaves[index]])[5][0], top), (leaves[index], _flips([top])[7][0])):
