@@ -60,10 +60,11 @@ def receipt_for_batch(register: Register, batch_id: int, private_pem: bytes) -> 
         if found is None:
             raise NotFound(f"batch {batch_id} has no sealed log entry")
         entry, position = found
+        index = int(position)
         text = row_text(entry)
         leaves = leaf_hashes(session, size)
-    path = merkle.inclusion_proof(int(position), leaves)  # hashes every other leaf once...
-    top = merkle.root_from_path(int(position), size, leaves[int(position)], path)  # ...the root from it
+    path = merkle.inclusion_proof(index, leaves)  # hashes every other leaf once...
+    top = merkle.root_from_path(index, size, leaves[index], path)  # ...the root from it
     assert top is not None
     checkpoint = sign_checkpoint(private_pem, size=size, root=top, at=_at(register.clock))
-    return Receipt(text, int(position), path, checkpoint)
+    return Receipt(text, index, path, checkpoint)

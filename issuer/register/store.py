@@ -377,7 +377,7 @@ class Register:
         after: list[Any] = []  # exit callbacks, run once the transaction has ended
         with self.engine.connect() as connection:
             heard: list[str] | None = connection.info.get(_WARNINGS)
-            session = _WritingSession(connection, {SESSION_INFO: self.keyring, AFTER_TRANSACTION: after})
+            session = _WritingSession(connection, {**self.session_info(), AFTER_TRANSACTION: after})
             try:
                 begin_immediate(connection)  # SQLite: the write lock first
                 with connection.begin():

@@ -43,15 +43,21 @@ SERIES_IMPORTS = "kind = 'import'"
 
 _THIS_XACT = "e.xmin = pg_current_xact_id()::xid"
 
+#: a rights trigger's function around its body (as issuer.register.rights writes them)
+_FUNCTION = """
+CREATE OR REPLACE FUNCTION {schema}.{name}() RETURNS trigger LANGUAGE plpgsql
+SET search_path = {schema}, pg_temp AS $$
+BEGIN
+{body}
+END
+$$;
+"""
+
 #: issuer.register.rights, as this revision makes it: a series changed only with an entry
 #: of this transaction naming it, found on its chain (the newest entry there is this
 #: transaction's if it appended one: appending waits for the chain's lock) or, for its
 #: adding, on the register's chain
 SERIES_CHANGE_LOGGED = f"""
-CREATE OR REPLACE FUNCTION {{schema}}.issuer_series_change_logged() RETURNS trigger LANGUAGE plpgsql
-SET search_path = {{schema}}, pg_temp AS $$
-BEGIN
-
   IF NOT EXISTS (SELECT 1 FROM (SELECT e.series_id, e.xmin AS x FROM log_entry e WHERE e.chain = NEW.id
                                 ORDER BY e.id DESC LIMIT 1) newest
                  WHERE newest.series_id = NEW.id AND newest.x = pg_current_xact_id()::xid) THEN
@@ -59,18 +65,11 @@ BEGIN
       RAISE EXCEPTION 'series % changed without a log entry for it', OLD.key USING ERRCODE = 'insufficient_privilege';
     END IF;
   END IF;
-  RETURN NULL;
-END
-$$;
-"""
+  RETURN NULL;"""
 
 #: a code changed only with an entry of this transaction naming it, its batch, or an
 #: import (made by this transaction) into its series
 CODE_CHANGE_LOGGED = f"""
-CREATE OR REPLACE FUNCTION {{schema}}.issuer_code_change_logged() RETURNS trigger LANGUAGE plpgsql
-SET search_path = {{schema}}, pg_temp AS $$
-BEGIN
-
   IF NOT EXISTS (SELECT 1 FROM log_entry e WHERE e.code IN (NEW.code, OLD.code) AND {_THIS_XACT})
      AND NOT EXISTS (SELECT 1 FROM log_entry e WHERE e.batch_id = NEW.batch_id AND {_THIS_XACT})
      AND NOT EXISTS (SELECT 1 FROM batch b JOIN log_entry e ON e.batch_id = b.id
@@ -78,58 +77,42 @@ BEGIN
                      AND b.xmin = pg_current_xact_id()::xid AND e.action = 'import' AND {_THIS_XACT}) THEN
     RAISE EXCEPTION 'code % changed without a log entry for it', OLD.code USING ERRCODE = 'insufficient_privilege';
   END IF;
-  RETURN NULL;
-END
-$$;
-"""
+  RETURN NULL;"""
 
 #: the same two as revision text_salts left them (for the downgrade)
 SERIES_CHANGE_LOGGED_BEFORE = f"""
-CREATE OR REPLACE FUNCTION {{schema}}.issuer_series_change_logged() RETURNS trigger LANGUAGE plpgsql
-SET search_path = {{schema}}, pg_temp AS $$
-BEGIN
-
   IF NOT EXISTS (SELECT 1 FROM log_entry e WHERE e.series_id = NEW.id AND {_THIS_XACT}) THEN
     RAISE EXCEPTION 'series % changed without a log entry for it', OLD.key USING ERRCODE = 'insufficient_privilege';
   END IF;
-  RETURN NULL;
-END
-$$;
-"""
+  RETURN NULL;"""
 
 CODE_CHANGE_LOGGED_BEFORE = f"""
-CREATE OR REPLACE FUNCTION {{schema}}.issuer_code_change_logged() RETURNS trigger LANGUAGE plpgsql
-SET search_path = {{schema}}, pg_temp AS $$
-BEGIN
-
   IF NOT EXISTS (SELECT 1 FROM log_entry e WHERE e.code IN (NEW.code, OLD.code) AND {_THIS_XACT})
      AND NOT EXISTS (SELECT 1 FROM log_entry e WHERE e.batch_id = NEW.batch_id AND {_THIS_XACT})
      AND NOT EXISTS (SELECT 1 FROM log_entry e WHERE e.series_id = NEW.series_id
                      AND e.action = 'import' AND {_THIS_XACT}) THEN
     RAISE EXCEPTION 'code % changed without a log entry for it', OLD.code USING ERRCODE = 'insufficient_privilege';
   END IF;
-  RETURN NULL;
-END
-$$;
-"""
+  RETURN NULL;"""
 
 
 def _quote(name: str) -> str:
     return '"' + name.replace('"', '""') + '"'
 
 
-def _rights_functions(functions: dict[str, str]) -> None:
-    """Replace the rights triggers' functions where ``issuer db roles --apply`` made them."""
+def _rights_functions(bodies: dict[str, str]) -> None:
+    """Replace the rights triggers' functions (by name, their bodies) where ``issuer db roles
+    --apply`` made them."""
     bind = op.get_bind()
     if bind.dialect.name != "postgresql":
         return
     schema = _quote(bind.execute(sa.text("SELECT current_schema()")).scalar_one())
-    for name, function in functions.items():
+    for name, body in bodies.items():
         present = bind.execute(sa.text(
             "SELECT 1 FROM pg_proc WHERE proname = :name AND pronamespace = current_schema()::regnamespace"
         ), {"name": name}).first()  # fmt: skip
         if present:
-            op.execute(function.format(schema=schema))
+            op.execute(_FUNCTION.format(schema=schema, name=name, body=body))
 
 
 def _indexes(*, narrow: bool) -> None:
